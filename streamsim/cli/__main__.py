@@ -1,0 +1,5 @@
+import sys
+
+from streamsim.cli import main
+
+sys.exit(main())

@@ -1,0 +1,31 @@
+"""Shared pieces of the subcommands: deck loading with one-line errors, messages."""
+from __future__ import annotations
+
+import sys
+
+from streamsim.deck import Deck, DeckError, load_deck
+
+
+def error(kind: str, message: str) -> None:
+    """One line on stderr, ``<kind> error: <message>``; never a traceback."""
+    print(f"{kind} error: {message}", file=sys.stderr)
+
+
+def warn(message: str) -> None:
+    print(f"warning: {message}", file=sys.stderr)
+
+
+def add_deck_arguments(parser, deck_help: str = "deck file (TOML); none = the built-in default") -> None:
+    parser.add_argument("deck", nargs="?", default=None, metavar="DECK", help=deck_help)
+    parser.add_argument("--set", dest="overrides", action="append", default=[], metavar="KEY=VALUE",
+                        help="override a deck key, value as a TOML literal "
+                             "(e.g. --set species.electrons.theta=1e-3); repeatable")
+
+
+def deck_from_args(args) -> Deck | None:
+    """The validated deck, or None after printing the one-line deck error."""
+    try:
+        return load_deck(args.deck, args.overrides)
+    except DeckError as ex:
+        error("deck", str(ex))
+        return None

@@ -1,0 +1,73 @@
+"""What a run leaves for analysis: plain arrays in normalised units, the same whether they come
+from memory at the end of :func:`streamsim.run` or from a run folder via
+:func:`streamsim.io.read_run`.
+
+Conventions (all normalised: t in 1/omega_p, x in c/omega_p, u = gamma*beta, densities / n_ref):
+- species order is the deck's order; ``names[s]`` is species s;
+- contrast arrays have one column per species and a last column for the total number density of
+  all species together ("pair total");
+- ``mode_amplitude[:, m-1]`` is the complex Fourier coefficient of E for box mode m = 1..M,
+  E_m = (1/N_cells) sum_i E_i exp(-i k_m x_i), k_m = 2 pi m / L; its modulus is |E_k|.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+
+@dataclass
+class TimeSeries:
+    t: np.ndarray               # (n,) diagnostics times
+    kinetic: np.ndarray         # (n, S) kinetic energy sum w m (gamma - 1) per species
+    field_energy: np.ndarray    # (n,) integral of E^2/2 dx
+    momentum: np.ndarray        # (n, S) momentum sum w m u per species
+    mode_amplitude: np.ndarray  # (n, M) complex E_m, m = 1..M
+    contrast_max: np.ndarray    # (n, S+1) max over the grid of delta n / n
+    contrast_rms: np.ndarray    # (n, S+1) rms over the grid of delta n / n
+
+    @property
+    def total_energy(self) -> np.ndarray:
+        return self.kinetic.sum(axis=1) + self.field_energy
+
+    @property
+    def total_momentum(self) -> np.ndarray:
+        return self.momentum.sum(axis=1)
+
+
+@dataclass
+class DensitySnapshots:
+    t: np.ndarray               # (n_f,)
+    density: np.ndarray         # (n_f, S, cells) n_s(x) / n_ref on the grid nodes
+    efield: np.ndarray          # (n_f, cells) E on the grid nodes
+
+
+@dataclass
+class ParticleSnapshot:
+    """Positions of every macro-particle at one time (for the coherence form factor)."""
+    t: float
+    x: dict[str, np.ndarray]    # species name -> positions in [0, L)
+    weight: dict[str, float]    # species name -> weight of each macro-particle (uniform)
+
+
+@dataclass
+class PhaseSpace:
+    t: np.ndarray               # (n_p,)
+    x: dict[str, np.ndarray]    # species -> (n_p, n_sub)
+    u: dict[str, np.ndarray]    # species -> (n_p, n_sub)
+
+
+@dataclass
+class RunData:
+    deck: dict                  # the resolved deck, as Deck.to_dict()
+    names: list[str]
+    length: float
+    cells: int
+    dt: float
+    series: TimeSeries
+    snapshots: DensitySnapshots
+    phase_space: PhaseSpace
+    peak: ParticleSnapshot | None     # at the diagnostic time of maximum delta n/n of any species
+    end: ParticleSnapshot | None      # at the end of the run
+    theory: dict | None = None        # the theory block of summary.json
+    extra: dict = field(default_factory=dict)
