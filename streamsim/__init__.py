@@ -4,7 +4,7 @@ Public API (thin over the rooms of the package)::
 
     deck = streamsim.load_deck("runs/pair-beams.toml")      # or a dict, or None for the default
     result = streamsim.run(deck)                             # -> Result with named fields
-    disp = streamsim.theory(deck)                            # linear theory for the same deck
+    disp = streamsim.linear_theory(deck)                     # linear theory for the same deck
 """
 from __future__ import annotations
 
@@ -19,7 +19,7 @@ def run(deck, **kwargs):
     return _run(deck, **kwargs)
 
 
-def theory(deck, **kwargs):
+def linear_theory(deck, **kwargs):
     """Linear theory for a deck's species and box; see :func:`streamsim.theory.theory_for_deck`."""
     from .theory import theory_for_deck
     return theory_for_deck(load_deck(deck), **kwargs)
@@ -31,4 +31,4 @@ def analyze(source, **kwargs):
     return _analyze(source, **kwargs)
 
 
-__all__ = ["Deck", "DeckError", "load_deck", "run", "theory", "analyze", "__version__"]
+__all__ = ["Deck", "DeckError", "load_deck", "run", "linear_theory", "analyze", "__version__"]

@@ -437,9 +437,9 @@ def _validate(raw: dict) -> Deck:
     if b["length"] is not None:
         length = b["length"]
     elif b["fastest_wavelengths"] is not None:
-        from . import theory  # lazy: the deck asks the theory only when it must
         try:
-            fast = theory.fastest_mode(species)
+            from .theory import fastest_mode  # lazy: the deck asks the theory only when it must
+            fast = fastest_mode(species)
         except Exception as ex:  # noqa: BLE001 - reported as a deck error naming the key
             raise DeckError("box.fastest_wavelengths", f"the linear theory could not find the "
                             f"fastest mode for these species ({ex})", b["fastest_wavelengths"])

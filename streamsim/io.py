@@ -1,0 +1,413 @@
+"""Files of a run folder: openPMD fields, time series, particle snapshots, checkpoints, summary.
+
+Every file is written atomically: into a temporary file in the same folder, flushed and fsynced,
+then renamed over the target (rename is atomic on POSIX), so a crash leaves either the old file
+or the new one, never half of one. File-system failures become :class:`OutputError` with one
+readable line.
+
+Run folder layout::
+
+    deck.toml        the resolved deck (loads back to the same run)
+    summary.json     the contract keys (README, "summary.json")
+    theory.json      the linear theory for the deck's box modes
+    timeseries.h5    energies, momenta, complex E_k, contrast vs time
+    fields.h5        openPMD 1.1: meshes E, rho, density_<species>; particle subsample
+    particles.h5     all positions at the time of maximum contrast and at the end
+    checkpoint.h5    full state for --resume
+"""
+from __future__ import annotations
+
+import contextlib
+import datetime as _dt
+import json
+import math
+import os
+import tempfile
+from pathlib import Path
+
+import h5py
+import numpy as np
+
+from . import __version__, units
+from .rundata import DensitySnapshots, ParticleSnapshot, PhaseSpace, RunData, TimeSeries
+
+FILES = {"deck": "deck.toml", "summary": "summary.json", "theory": "theory.json",
+         "series": "timeseries.h5", "fields": "fields.h5", "particles": "particles.h5",
+         "checkpoint": "checkpoint.h5"}
+
+
+def _umask() -> int:
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
+_UMASK = _umask()
+
+
+class OutputError(OSError):
+    """A file could not be written or read; ``str()`` is one line for the user."""
+
+
+# ----------------------------------------------------------------------------------------------
+# atomic writes
+# ----------------------------------------------------------------------------------------------
+def _fsync_dir(folder: Path) -> None:
+    with contextlib.suppress(OSError):
+        fd = os.open(folder, os.O_RDONLY)
+        try:
+            os.fsync(fd)
+        finally:
+            os.close(fd)
+
+
+def _describe(ex: OSError, path: Path) -> str:
+    reason = ex.strerror or ex.__class__.__name__
+    return f"cannot write {path}: {reason}"
+
+
+@contextlib.contextmanager
+def atomic_path(path: str | Path):
+    """Yield a temporary path beside ``path``; on success fsync it and rename it over ``path``."""
+    path = Path(path)
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+        os.close(fd)
+        os.chmod(tmp, 0o666 & ~_UMASK)  # mkstemp makes 0600; give the usual permissions
+    except OSError as ex:
+        raise OutputError(_describe(ex, path)) from None
+    tmp = Path(tmp)
+    try:
+        yield tmp
+        fd = os.open(tmp, os.O_RDONLY)
+        try:
+            os.fsync(fd)
+        finally:
+            os.close(fd)
+        os.replace(tmp, path)
+        _fsync_dir(path.parent)
+    except OSError as ex:
+        with contextlib.suppress(OSError):
+            tmp.unlink()
+        raise OutputError(_describe(ex, path)) from None
+    except BaseException:
+        with contextlib.suppress(OSError):
+            tmp.unlink()
+        raise
+
+
+def write_text(path: str | Path, text: str) -> None:
+    with atomic_path(path) as tmp:
+        with open(tmp, "w", encoding="utf-8") as fh:
+            fh.write(text)
+            fh.flush()
+
+
+def _json_clean(obj):
+    if isinstance(obj, dict):
+        return {str(k): _json_clean(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_json_clean(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return _json_clean(obj.tolist())
+    if isinstance(obj, (np.floating, float)):
+        v = float(obj)
+        return v if math.isfinite(v) else None
+    if isinstance(obj, np.integer):
+        return int(obj)
+    if isinstance(obj, np.bool_):
+        return bool(obj)
+    return obj
+
+
+def write_json(path: str | Path, data: dict) -> None:
+    """JSON with NaN/inf written as null (summary.json is read by other languages too)."""
+    write_text(path, json.dumps(_json_clean(data), indent=2, allow_nan=False) + "\n")
+
+
+@contextlib.contextmanager
+def atomic_h5(path: str | Path):
+    """An h5py.File open for writing that appears at ``path`` only when complete."""
+    with atomic_path(path) as tmp:
+        try:
+            with h5py.File(tmp, "w") as f:
+                yield f
+        except OSError:
+            raise
+        except (ValueError, RuntimeError) as ex:  # h5py reports some I/O failures this way
+            raise OutputError(f"cannot write {path}: {ex}") from None
+
+
+# ----------------------------------------------------------------------------------------------
+# openPMD 1.1 fields file
+# ----------------------------------------------------------------------------------------------
+def _b(s: str) -> np.bytes_:
+    return np.bytes_(s.encode("ascii"))
+
+
+def _dims(L=0, M=0, T=0, I=0, theta=0, N=0, J=0) -> np.ndarray:
+    return np.array([L, M, T, I, theta, N, J], dtype=np.float64)
+
+
+def _si_scales(density_cm3: float) -> dict:
+    """SI value of one normalised unit of each quantity."""
+    import scipy.constants as sc
+    wp = units.omega_p_rad_s(density_cm3)
+    n_si = density_cm3 * 1.0e6
+    return {"time": 1.0 / wp, "length": sc.c / wp, "efield": sc.m_e * sc.c * wp / sc.e,
+            "rho": sc.e * n_si, "density": n_si, "momentum": sc.m_e * sc.c, "charge": sc.e,
+            "mass": sc.m_e}
+
+
+def write_openpmd(path, deck, snapshots: DensitySnapshots, phase: PhaseSpace,
+                  charges: list[float], weights: list[float], steps_fields: list[int],
+                  steps_phase: list[int]) -> None:
+    """Meshes (E, rho, density_<species>) at the field cadence and the phase-space subsample at
+    its cadence, in one groupBased openPMD 1.1 file (openPMD standard 1.1.0)."""
+    si = _si_scales(deck.units.density_cm3)
+    dx = deck.box.dx
+    names = [s.name for s in deck.species]
+    iterations = sorted(set(steps_fields) | set(steps_phase))
+    fidx = {s: i for i, s in enumerate(steps_fields)}
+    pidx = {s: i for i, s in enumerate(steps_phase)}
+    with atomic_h5(path) as f:
+        f.attrs["openPMD"] = _b("1.1.0")
+        f.attrs["openPMDextension"] = np.uint32(0)
+        f.attrs["basePath"] = _b("/data/%T/")
+        f.attrs["meshesPath"] = _b("meshes/")
+        f.attrs["particlesPath"] = _b("particles/")
+        f.attrs["iterationEncoding"] = _b("groupBased")
+        f.attrs["iterationFormat"] = _b("/data/%T/")
+        f.attrs["author"] = _b(os.environ.get("USER", "streamsim user") or "streamsim user")
+        f.attrs["software"] = _b("streamsim")
+        f.attrs["softwareVersion"] = _b(__version__)
+        f.attrs["date"] = _b(_dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M:%S +0000"))
+        f.attrs["comment"] = _b(f"deck: {deck.title}; normalised data, unitSI converts to SI")
+        for it in iterations:
+            g = f.create_group(f"data/{it}")
+            g.attrs["time"] = np.float64(it * deck.time.dt)
+            g.attrs["dt"] = np.float64(deck.time.dt)
+            g.attrs["timeUnitSI"] = np.float64(si["time"])
+            meshes = g.create_group("meshes")
+            parts = g.create_group("particles")
+            if it in fidx:
+                i = fidx[it]
+                rho = np.tensordot(np.asarray(charges), snapshots.density[i], axes=1)
+                records = [("E", snapshots.efield[i], si["efield"], _dims(L=1, M=1, T=-3, I=-1), True),
+                           ("rho", rho, si["rho"], _dims(L=-3, T=1, I=1), False)]
+                for s, name in enumerate(names):
+                    records.append((f"density_{name}", snapshots.density[i, s], si["density"],
+                                    _dims(L=-3), False))
+                for rname, data, unit_si, dims, vector in records:
+                    if vector:
+                        rec = meshes.create_group(rname)
+                        comp = rec.create_dataset("x", data=np.asarray(data, dtype=np.float64))
+                    else:
+                        rec = comp = meshes.create_dataset(rname, data=np.asarray(data, dtype=np.float64))
+                    rec.attrs["geometry"] = _b("cartesian")
+                    rec.attrs["dataOrder"] = _b("C")
+                    rec.attrs["axisLabels"] = np.array([b"x"])
+                    rec.attrs["gridSpacing"] = np.array([dx], dtype=np.float64)
+                    rec.attrs["gridGlobalOffset"] = np.array([0.0], dtype=np.float64)
+                    rec.attrs["gridUnitSI"] = np.float64(si["length"])
+                    rec.attrs["unitDimension"] = dims
+                    rec.attrs["timeOffset"] = np.float64(0.0)
+                    comp.attrs["position"] = np.array([0.0], dtype=np.float64)
+                    comp.attrs["unitSI"] = np.float64(unit_si)
+            if it in pidx:
+                i = pidx[it]
+                for s, name in enumerate(names):
+                    xs = np.asarray(phase.x[name][i], dtype=np.float64)
+                    us = np.asarray(phase.u[name][i], dtype=np.float64)
+                    n = xs.size
+                    sp = parts.create_group(name)
+                    sub_weight = weights[s] * (deck.box.cells * deck.species[s].particles_per_cell) / max(n, 1)
+
+                    def record(rname, dims, macro=0, power=1.0, time_offset=0.0):
+                        r = sp.create_group(rname)
+                        r.attrs["unitDimension"] = dims
+                        r.attrs["timeOffset"] = np.float64(time_offset)
+                        r.attrs["macroWeighted"] = np.uint32(macro)
+                        r.attrs["weightingPower"] = np.float64(power)
+                        return r
+
+                    def constant(group, value, unit_si, comp=None):
+                        c = group.create_group(comp) if comp else group
+                        c.attrs["value"] = np.float64(value)
+                        c.attrs["shape"] = np.array([n], dtype=np.uint64)
+                        c.attrs["unitSI"] = np.float64(unit_si)
+
+                    r = record("position", _dims(L=1))
+                    r.create_dataset("x", data=xs).attrs["unitSI"] = np.float64(si["length"])
+                    constant(record("positionOffset", _dims(L=1)), 0.0, si["length"], "x")
+                    r = record("momentum", _dims(L=1, M=1, T=-1), time_offset=-0.5 * deck.time.dt)
+                    r.create_dataset("x", data=us).attrs["unitSI"] = np.float64(si["momentum"])
+                    # weighting: real particles per macro-particle of the subsample (per unit
+                    # transverse area, since the model is 1D)
+                    w = sp.create_dataset("weighting", data=np.full(n, sub_weight * si["density"] * si["length"]))
+                    w.attrs["unitDimension"] = _dims()
+                    w.attrs["timeOffset"] = np.float64(0.0)
+                    w.attrs["macroWeighted"] = np.uint32(1)
+                    w.attrs["weightingPower"] = np.float64(1.0)
+                    w.attrs["unitSI"] = np.float64(1.0)
+                    constant(record("charge", _dims(T=1, I=1)), deck.species[s].charge, si["charge"])
+                    constant(record("mass", _dims(M=1)), deck.species[s].mass, si["mass"])
+                    pp = sp.create_group("particlePatches")
+                    for pname, val in (("numParticles", n), ("numParticlesOffset", 0)):
+                        d = pp.create_dataset(pname, data=np.array([val], dtype=np.uint64))
+                        d.attrs["unitSI"] = np.float64(1.0)
+                    for pname, val in (("offset", 0.0), ("extent", deck.box.length)):
+                        grp = pp.create_group(pname)
+                        grp.attrs["unitDimension"] = _dims(L=1)
+                        d = grp.create_dataset("x", data=np.array([val], dtype=np.float64))
+                        d.attrs["unitSI"] = np.float64(si["length"])
+
+
+# ----------------------------------------------------------------------------------------------
+# time series, particle snapshots
+# ----------------------------------------------------------------------------------------------
+def write_series(path, names: list[str], series: TimeSeries, meta: dict) -> None:
+    with atomic_h5(path) as f:
+        f.attrs["species"] = np.array([n.encode() for n in names])
+        f.attrs["units"] = _b("normalised: t in 1/omega_p, energies in n_ref m_e c^2 c/omega_p, "
+                              "momenta in n_ref m_e c c/omega_p, E_k in m_e c omega_p / e")
+        for k, v in meta.items():
+            f.attrs[k] = v
+        for k in Recorder_SERIES:
+            f.create_dataset(k, data=getattr(series, k))
+
+
+Recorder_SERIES = ("t", "kinetic", "field_energy", "momentum", "mode_amplitude", "contrast_max",
+                   "contrast_rms")
+
+
+def read_series(path) -> tuple[list[str], TimeSeries]:
+    with h5py.File(path, "r") as f:
+        names = [n.decode() for n in f.attrs["species"]]
+        return names, TimeSeries(**{k: f[k][()] for k in Recorder_SERIES})
+
+
+def write_particles(path, snaps: dict[str, ParticleSnapshot | None]) -> None:
+    with atomic_h5(path) as f:
+        for label, snap in snaps.items():
+            if snap is None:
+                continue
+            g = f.create_group(label)
+            g.attrs["t"] = snap.t
+            for name, x in snap.x.items():
+                d = g.create_dataset(name, data=x)
+                d.attrs["weight"] = snap.weight[name]
+
+
+def read_particles(path) -> dict[str, ParticleSnapshot | None]:
+    out = {"peak": None, "end": None}
+    if not Path(path).exists():
+        return out
+    with h5py.File(path, "r") as f:
+        for label in f:
+            g = f[label]
+            out[label] = ParticleSnapshot(t=float(g.attrs["t"]), x={n: g[n][()] for n in g},
+                                          weight={n: float(g[n].attrs["weight"]) for n in g})
+    return out
+
+
+def read_openpmd_meshes(path, names: list[str]) -> tuple[DensitySnapshots, PhaseSpace]:
+    with h5py.File(path, "r") as f:
+        its = sorted(f["data"], key=int)
+        st, dens, ef, pt = [], [], [], []
+        px = {n: [] for n in names}
+        pu = {n: [] for n in names}
+        for it in its:
+            g = f["data"][it]
+            t = float(g.attrs["time"])
+            m = g["meshes"]
+            if "E" in m:
+                st.append(t)
+                ef.append(m["E"]["x"][()])
+                dens.append(np.stack([m[f"density_{n}"][()] for n in names]))
+            p = g["particles"]
+            if len(p):
+                pt.append(t)
+                for n in names:
+                    px[n].append(p[n]["position"]["x"][()])
+                    pu[n].append(p[n]["momentum"]["x"][()])
+    snaps = DensitySnapshots(t=np.array(st), density=np.array(dens), efield=np.array(ef))
+    phase = PhaseSpace(t=np.array(pt), x={n: np.array(v) for n, v in px.items()},
+                       u={n: np.array(v) for n, v in pu.items()})
+    return snaps, phase
+
+
+# ----------------------------------------------------------------------------------------------
+# checkpoints
+# ----------------------------------------------------------------------------------------------
+def write_checkpoint(path, step: int, xs, us, recorder_arrays: dict, counts: dict,
+                     extra: dict, peak: ParticleSnapshot | None, peak_value: float) -> None:
+    """Full state at a step boundary: positions x^n, momenta u^{n-1/2}, diagnostics so far."""
+    with atomic_h5(path) as f:
+        f.attrs["step"] = step
+        f.attrs["extra"] = json.dumps(extra)
+        f.attrs["peak_value"] = peak_value
+        for i, (x, u) in enumerate(zip(xs, us)):
+            f.create_dataset(f"x/{i}", data=x)
+            f.create_dataset(f"u/{i}", data=u)
+        g = f.create_group("recorder")
+        for k, v in recorder_arrays.items():
+            g.create_dataset(k, data=v)
+        g.attrs["counts"] = json.dumps(counts)
+        if peak is not None:
+            pg = f.create_group("peak")
+            pg.attrs["t"] = peak.t
+            for i, (name, x) in enumerate(peak.x.items()):
+                pg.create_dataset(str(i), data=x)
+
+
+def read_checkpoint(path, names: list[str]) -> dict:
+    try:
+        with h5py.File(path, "r") as f:
+            S = len(f["x"])
+            out = {"step": int(f.attrs["step"]), "extra": json.loads(f.attrs["extra"]),
+                   "peak_value": float(f.attrs["peak_value"]),
+                   "x": [f[f"x/{i}"][()] for i in range(S)], "u": [f[f"u/{i}"][()] for i in range(S)],
+                   "counts": json.loads(f["recorder"].attrs["counts"]), "arrays": {}, "peak": None}
+            f["recorder"].visititems(lambda k, v: out["arrays"].__setitem__(k, v[()])
+                                     if isinstance(v, h5py.Dataset) else None)
+            if "peak" in f:
+                pg = f["peak"]
+                out["peak"] = (float(pg.attrs["t"]), [pg[str(i)][()] for i in range(len(names))])
+    except (OSError, KeyError) as ex:
+        raise OutputError(f"cannot read checkpoint {path}: {ex}") from None
+    return out
+
+
+# ----------------------------------------------------------------------------------------------
+# a whole run folder
+# ----------------------------------------------------------------------------------------------
+def is_run_folder(folder) -> bool:
+    folder = Path(folder)
+    return (folder / FILES["deck"]).is_file() and (folder / FILES["series"]).is_file()
+
+
+def read_run(folder) -> RunData:
+    """Everything analysis needs from a finished (or interrupted) run folder."""
+    import tomllib
+    folder = Path(folder)
+    if not is_run_folder(folder):
+        raise OutputError(f"{folder} is not a streamsim run folder (no {FILES['deck']} and "
+                          f"{FILES['series']})")
+    deck = tomllib.loads((folder / FILES["deck"]).read_text(encoding="utf-8"))
+    names, series = read_series(folder / FILES["series"])
+    if (folder / FILES["fields"]).exists():
+        snaps, phase = read_openpmd_meshes(folder / FILES["fields"], names)
+    else:
+        snaps = DensitySnapshots(np.zeros(0), np.zeros((0, len(names), deck["box"]["cells"])),
+                                 np.zeros((0, deck["box"]["cells"])))
+        phase = PhaseSpace(np.zeros(0), {}, {})
+    parts = read_particles(folder / FILES["particles"])
+    theory = None
+    if (folder / FILES["theory"]).exists():
+        theory = json.loads((folder / FILES["theory"]).read_text())
+    return RunData(deck=deck, names=names, length=float(deck["box"]["length"]),
+                   cells=int(deck["box"]["cells"]), dt=float(deck["time"]["dt"]), series=series,
+                   snapshots=snaps, phase_space=phase, peak=parts["peak"], end=parts["end"],
+                   theory=theory)
