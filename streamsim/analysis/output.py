@@ -5,8 +5,6 @@ from __future__ import annotations
 import csv
 import io
 import math
-import os
-import tempfile
 from pathlib import Path
 
 import numpy as np
@@ -34,24 +32,14 @@ def jsonable(obj):
     return obj
 
 
-def _tmp(path: Path):
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, name = tempfile.mkstemp(prefix="." + path.name + ".", suffix=".tmp", dir=path.parent)
-    return fd, Path(name)
-
-
 def atomic_write_bytes(path, data: bytes) -> Path:
+    """Write bytes atomically (:func:`streamsim.io.atomic_path`); OSError -> io.OutputError."""
+    from ..io import atomic_path
     path = Path(path)
-    fd, tmp = _tmp(path)
-    try:
-        with os.fdopen(fd, "wb") as f:
-            f.write(data)
-            f.flush()
-            os.fsync(f.fileno())
-        os.replace(tmp, path)
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
+    with atomic_path(path) as tmp:
+        with open(tmp, "wb") as fh:
+            fh.write(data)
+            fh.flush()
     return path
 
 
@@ -81,38 +69,25 @@ def write_csv(path, header: list[str], rows) -> Path:
 def write_h5(path, tables: dict) -> Path:
     """tables: {"group/name": {"column": array, ...} or array, ...}; attributes under "@attrs"."""
     import h5py
+
+    from ..io import atomic_h5
     path = Path(path)
-    fd, tmp = _tmp(path)
-    os.close(fd)
-    try:
-        with h5py.File(tmp, "w") as h:
-            h.attrs["content"] = "streamsim analysis tables (normalised units unless the column " \
-                                 "name ends in _cm, _ns, _per_cm or _hz)"
-            for name, table in tables.items():
-                attrs = {}
-                if isinstance(table, dict):
-                    attrs = table.get("@attrs", {})
-                    g = h.require_group(name)
-                    for col, arr in table.items():
-                        if col == "@attrs":
-                            continue
-                        a = np.asarray(arr)
-                        if a.dtype.kind in "OU":
-                            a = np.asarray([("" if v is None else str(v)) for v in a.ravel()],
-                                           dtype=h5py.string_dtype())
-                        g.create_dataset(col, data=a)
-                    for ak, av in attrs.items():
-                        g.attrs[ak] = "" if av is None else av
-                else:
-                    h.create_dataset(name, data=np.asarray(table))
-            h.flush()
-        fd2 = os.open(tmp, os.O_RDONLY)
-        try:
-            os.fsync(fd2)
-        finally:
-            os.close(fd2)
-        os.replace(tmp, path)
-    except BaseException:
-        tmp.unlink(missing_ok=True)
-        raise
+    with atomic_h5(path) as h:
+        h.attrs["content"] = "streamsim analysis tables (normalised units unless the column " \
+                             "name ends in _cm, _ns, _per_cm or _hz)"
+        for name, table in tables.items():
+            if isinstance(table, dict):
+                g = h.require_group(name)
+                for col, arr in table.items():
+                    if col == "@attrs":
+                        continue
+                    a = np.asarray(arr)
+                    if a.dtype.kind in "OU":
+                        a = np.asarray([("" if v is None else str(v)) for v in a.ravel()],
+                                       dtype=h5py.string_dtype())
+                    g.create_dataset(col, data=a)
+                for ak, av in table.get("@attrs", {}).items():
+                    g.attrs[ak] = "" if av is None else av
+            else:
+                h.create_dataset(name, data=np.asarray(table))
     return path
