@@ -36,6 +36,7 @@ FIGURES = {
 def _save(fig, path: Path) -> Path:
     from .analysis.output import atomic_write_bytes
     buf = io.BytesIO()
+    fig.tight_layout()
     fig.savefig(buf, format="png", dpi=110)
     plt.close(fig)
     return atomic_write_bytes(path, buf.getvalue())
@@ -225,6 +226,10 @@ def _coherence(data, blocks, path):
         kc = (by.get(name) or {}).get("k_cutoff")
         if kc:
             ax.axvline(kc, color=line.get_color(), ls="--", lw=1, label=f"k_c, {name}")
+    floors = [v.get("noise_floor") for v in by.values() if v.get("noise_floor")]
+    if floors:
+        lo, hi = ax.get_ylim()
+        ax.set_ylim(max(lo, 1e-4 * min(floors)), hi)
     ax.axvline(math.pi * data.cells / data.length, color="0.6", lw=0.8, ls="-.",
                label="grid Nyquist")
     ax.set_xlabel("k [w_p/c]")

@@ -34,6 +34,9 @@ MIN_EFOLDS = 3.0
 MAX_RMS = 0.05
 MAX_DEV = 0.15
 EDGE_POINTS = 240
+#: a fitted rate above this multiple of the theory's largest rate is nonlinear driving
+#: (common practice: 25 % above the fastest linear root leaves room for fit error)
+DRIVEN_FACTOR = 1.25
 
 
 @dataclass
@@ -183,21 +186,51 @@ def _num(v):
     return v if math.isfinite(v) else None
 
 
-def fit_modes(t, mode_amplitude, length, theory: dict | None = None, **kw) -> list[dict]:
+def theory_max_growth(theory: dict | None) -> float | None:
+    """The largest linear growth rate the theory knows (fastest root or best box mode)."""
+    if not theory:
+        return None
+    vals = [_num(r.get("growth")) for r in _theory_modes(theory).values()]
+    fast = theory.get("fastest")
+    if isinstance(fast, dict):
+        vals.append(_num(fast.get("growth")))
+    vals = [v for v in vals if v is not None]
+    return max(vals) if vals else None
+
+
+def fit_modes(t, mode_amplitude, length, theory: dict | None = None,
+              driven_factor: float = DRIVEN_FACTOR, **kw) -> list[dict]:
     """One row per box mode m = 1..M: the fitted growth of |E_m| and the theory of the same mode.
 
     Rates in omega_p; ``ratio`` = measured / theory when the theory grows (> 0), else None.
+
+    A window growing faster than ``driven_factor`` x the theory's largest rate cannot be a linear
+    phase (no linear root grows faster than the fastest one): it is growth driven by the
+    nonlinear coupling of growing modes (harmonics and beats, which grow at sums of their rates).
+    It is reported under "driven" and the search is repeated before it.
     """
     amp = np.abs(np.asarray(mode_amplitude))
     th = _theory_modes(theory)
+    g_max = theory_max_growth(theory)
     rows = []
     for m in range(1, amp.shape[1] + 1):
         k = 2.0 * math.pi * m / length
-        fit = find_linear_phase(t, amp[:, m - 1], **kw)
         g_th = _num(th.get(m, {}).get("growth")) if m in th else None
         row = {"mode": m, "k": k, "measured": None, "measured_err": None, "systematic": None,
                "theory": g_th, "ratio": None, "window": None, "efolds": None,
                "status": NO_PHASE}
+        fit = find_linear_phase(t, amp[:, m - 1], **kw)
+        t_max = kw.pop("t_max", None)
+        for _ in range(4):
+            if fit is None or g_max is None or g_max <= 0 or fit.rate <= driven_factor * g_max:
+                break
+            row.setdefault("driven", {"rate": fit.rate, "window": [fit.t0, fit.t1]})
+            fit = find_linear_phase(t, amp[:, m - 1], t_max=fit.t0 if t_max is None
+                                    else min(t_max, fit.t0), **kw)
+        if t_max is not None:
+            kw["t_max"] = t_max
+        if fit is None and "driven" in row:
+            row["status"] = NO_PHASE + " (later growth is nonlinearly driven)"
         if fit is not None:
             row.update(fit.as_dict())
             row["status"] = "fit"

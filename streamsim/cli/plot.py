@@ -1,0 +1,56 @@
+"""`streamsim plot RUN_DIR`: redraw the figures of a run into RUN_DIR/figures/."""
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+from streamsim.cli.common import error
+
+HELP = "redraw the figures of a run folder into RUN_DIR/figures/"
+
+_BLOCKS = ("growth", "modes", "field_energy_growth", "contrast", "clumps", "coherence")
+
+
+def add_arguments(p) -> None:
+    p.add_argument("run_dir", metavar="RUN_DIR", help="a run folder written by `streamsim run`")
+
+
+def main(args) -> int:
+    from streamsim import io
+    folder = Path(args.run_dir)
+    if not folder.is_dir():
+        error("run", f"{folder}: no such folder")
+        return 2
+    if not io.is_run_folder(folder):
+        error("run", f"{folder} is not a streamsim run folder (no {io.FILES['deck']} and "
+                     f"{io.FILES['series']})")
+        return 2
+    try:
+        data = io.read_run(folder)
+    except (OSError, KeyError, ValueError) as ex:
+        error("run", f"{folder}: cannot read the run ({ex})")
+        return 2
+    blocks = None
+    summ = folder / io.FILES["summary"]
+    if summ.is_file():
+        try:
+            s = json.loads(summ.read_text(encoding="utf-8"))
+            if isinstance(s, dict) and all(k in s for k in _BLOCKS):
+                blocks = {k: s[k] for k in _BLOCKS}
+        except (OSError, ValueError):
+            blocks = None
+    try:
+        if blocks is None:  # never analysed (or an old summary): analyse without writing
+            from streamsim.analysis import compute
+            blocks, _ = compute(data)
+        from streamsim.plots import make_figures
+        paths = make_figures(data, blocks, folder)
+    except io.OutputError as ex:
+        error("output", str(ex))
+        return 4
+    except OSError as ex:
+        error("output", f"{folder}: {ex.strerror or ex}")
+        return 4
+    for p in paths:
+        print(p)
+    return 0
