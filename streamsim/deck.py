@@ -454,7 +454,7 @@ def _validate(raw: dict) -> Deck:
 
     if t["dt"] == "auto":
         from .health import auto_dt
-        dt = auto_dt(box, species)
+        dt = auto_dt(box, species, t["end"])
     else:
         dt = t["dt"]
     if dt > t["end"]:

@@ -40,13 +40,15 @@ def velocity_max(s) -> float:
     return best
 
 
-def auto_dt(box, species) -> float:
-    """The step for ``dt = "auto"``: omega_p dt <= 0.1 and v_max dt <= 0.5 dx, rounded down so
-    that it divides nothing awkwardly (a 2-significant-digit value)."""
+def auto_dt(box, species, end: float | None = None) -> float:
+    """The step for ``dt = "auto"``: omega_p dt <= 0.1 and v_max dt <= 0.5 dx, rounded down to
+    two significant digits and, given the run's ``end``, shortened so that it divides it."""
     dt = OMEGA_DT_ACCURATE / max(omega_p_total(species), 1e-300)
     vmax = max(velocity_max(s) for s in species)
     if vmax > 0:
         dt = min(dt, CELL_CROSSING_AUTO * box.dx / vmax)
     exp = math.floor(math.log10(dt))
-    mant = math.floor(dt / 10**exp * 10) / 10
-    return mant * 10**exp
+    dt = float(f"{math.floor(dt / 10**exp * 10) / 10:.1f}e{exp}")
+    if end is not None and end > dt:
+        dt = end / math.ceil(end / dt * (1 - 1e-12))
+    return dt
