@@ -292,14 +292,19 @@ class _Juttner:
         c0 = np.empty(z.shape, complex)
         c1 = np.empty(z.shape, complex)
         inside = np.abs(z.real) < 1.0
-        near = inside & (z.real > self.va - self.width) & (z.real < self.vb + self.width)
-        far = ~near
+        # the pole is subtracted only where it is close to the nodes; further away (|Im z| more
+        # than half the window) plain Gauss-Legendre is exact to rounding, and G(z) there grows
+        # like exp((Im z)^2 / 2 v_th^2), which would only amplify rounding
+        near = inside & (z.real > self.va - self.width) & (z.real < self.vb + self.width) & (
+            np.abs(z.imag) < 0.5 * self.width)
+        below = inside & (z.imag < 0.0)
+        need = near | below
         with np.errstate(all="ignore"):
             gz = np.zeros(z.shape, complex)
             g1z = np.zeros(z.shape, complex)
-            if inside.any():
-                ez = np.arctanh(z[inside])
-                gz[inside], g1z[inside] = self._g(ez, ez - self.eta_d)
+            if need.any():
+                ez = np.arctanh(z[need])
+                gz[need], g1z[need] = self._g(ez, ez - self.eta_d)
             # one complex division per (z, node), then one real matrix product for
             # [Sum W G/(z-v), Sum W G'/(z-v), Sum W/(z-v)]
             inv = 1.0 / (z[:, None] - self.v[None, :])
@@ -312,7 +317,6 @@ class _Juttner:
                 resid = (np.log(zn - self.va) - np.log(zn - self.vb)) - s[near, 2]
                 c0[near] += gz[near] * resid
                 c1[near] += g1z[near] * resid
-            below = inside & (z.imag < 0.0)
             if below.any():
                 c0[below] -= 2j * math.pi * gz[below]
                 c1[below] -= 2j * math.pi * g1z[below]
@@ -378,16 +382,24 @@ def _merge(terms):
     return [_Rational(c, a, b) for (a, b), c in rational.items()] + rest
 
 
-def _eps(terms, k, w):
-    """(eps, d eps/d omega, d eps/d k) for arrays k, w of one shape."""
+def _eps(terms, k, w, scale: bool = False):
+    """(eps, d eps/d omega, d eps/d k) for arrays k, w of one shape.
+
+    With ``scale``, also 1 + Sum_s |chi_s|: the size of the terms that cancel at a root, against
+    which the residual |eps| is judged (at small k the single chi_s grow like 1/k^2).
+    """
     e = np.ones(np.shape(w), complex)
     ew = np.zeros(np.shape(w), complex)
     ek = np.zeros(np.shape(w), complex)
+    size = np.ones(np.shape(w))
     for t in terms:
         c, cw, ck = t.chi(k, w)
         e = e + c
         ew = ew + cw
         ek = ek + ck
+        size = size + np.abs(c)
+    if scale:
+        return e, ew, ek, size
     return e, ew, ek
 
 
@@ -546,8 +558,8 @@ def _newton(terms, k, w0, maxiter: int = 60, rtol: float = 1e-13):
             active[idx[done | bad]] = False
         if conv.any():
             idx = np.nonzero(conv)[0]
-            e, ew, _ = _eps(terms, k[idx], w[idx])
-            conv[idx[~(np.abs(e) < 1e-8)]] = False
+            e, _, _, size = _eps(terms, k[idx], w[idx], scale=True)
+            conv[idx[~(np.abs(e) < 1e-8 * size)]] = False
     return w, conv
 
 
@@ -815,7 +827,7 @@ def _bands_from(solver, k, w, g, bisect: int = 48):
                 a, wa = m, r
             else:
                 b = m
-            if abs(b - a) <= 1e-13 * abs(a):
+            if abs(b - a) <= 1e-10 * abs(a):
                 break
         return 0.5 * (a + b)
 
@@ -889,6 +901,8 @@ class BoxMode:
     k: float
     growth: float     # omega_p; 0.0 when stable (negative: damping rate, maxwellian model only)
     omega_r: float | None
+    maxwellian_growth: float | None = None   # juttner model only: the maxwellian model's rate,
+                                             # which gives the Landau damping of stable modes
 
 
 def _num(x):
@@ -950,8 +964,11 @@ class Dispersion:
             "unstable_band": list(self.unstable_band) if self.unstable_band else None,
             "unstable_bands": [list(b) for b in self.unstable_bands],
             "box_length": _num(self.box_length),
-            "box_modes": [{"mode": m.mode, "k": m.k, "growth": _num(m.growth),
-                           "omega_r": _num(m.omega_r)} for m in self.box_modes],
+            "box_modes": [dict({"mode": m.mode, "k": m.k, "growth": _num(m.growth),
+                                "omega_r": _num(m.omega_r)},
+                               **({} if m.maxwellian_growth is None else
+                                  {"maxwellian_growth": _num(m.maxwellian_growth)}))
+                          for m in self.box_modes],
             "curve": {"k": [_num(x) for x in self.k], "growth": [_num(x) for x in self.growth],
                       "omega_r": [_num(x) for x in self.omega_r]},
             "notes": list(self.notes),
@@ -1023,9 +1040,17 @@ def theory_for_deck(deck, model: str | None = None, kmax: float | None = None,
     extra = np.where(np.isfinite(w[j]), w[j] * km / k[j], np.nan) if not solver.rational else None
     wm = solver.best(km, extra=extra)
     gm = solver.growth(wm)
+    alt = [None] * nmodes
+    if model == "juttner":
+        mx = _Solver(species, "maxwellian")
+        alt = list(mx.growth(mx.best(km)))
+        notes.append("box_modes[].maxwellian_growth: the same modes in the maxwellian model "
+                     "(negative = Landau damping rate), since the juttner model gives growing "
+                     "roots only")
     modes = [BoxMode(int(mi), float(ki), float(gi) if np.isfinite(gi) else 0.0,
-                     float(wi.real) if np.isfinite(wi) else None)
-             for mi, ki, gi, wi in zip(m, km, gm, wm)]
+                     float(wi.real) if np.isfinite(wi) else None,
+                     None if ai is None or not np.isfinite(ai) else float(ai))
+             for mi, ki, gi, wi, ai in zip(m, km, gm, wm, alt)]
     if length and fastest is not None:
         notes.append(f"box holds {length * fastest.k / (2 * math.pi):.4g} fastest wavelengths")
     return Dispersion(model=model, k=k, growth=g, omega_r=np.where(np.isfinite(w), w.real, np.nan),
