@@ -113,7 +113,8 @@ def synthetic_run(*, names=("electrons", "positrons"), length=20.0, cells=128, m
     theory = {"model": "synthetic (prescribed rates)",
               "fastest": {"k": float(k[np.argmax(rates)]), "growth": float(rates.max()),
                           "omega_r": 0.0},
-              "unstable_band": [float(k[rates > 0].min()), float(k[rates > 0].max())],
+              "unstable_band": [float(k[rates > 0].min()), float(k[rates > 0].max())]
+              if (rates > 0).any() else None,
               "box_modes": [{"mode": int(mm), "k": float(kk), "growth": float(g), "omega_r": 0.0}
                             for mm, kk, g in zip(m, k, rates)]}
     deck = {"title": "synthetic", "units": {"density_cm3": density_cm3},

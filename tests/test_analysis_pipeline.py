@@ -1,0 +1,94 @@
+"""analyze() / human_summary() / figures on a synthetic RunData whose content is prescribed
+(streamsim.analysis.synthetic): the checks are against the prescription, never against output."""
+import json
+import math
+
+import numpy as np
+import pytest
+
+from streamsim.analysis import analyze, human_summary
+from streamsim.analysis.synthetic import synthetic_run
+
+CONTRACT = {"growth": ["mode", "k", "measured", "measured_err", "theory", "ratio", "window"],
+            "contrast": ["max", "t_max", "t_unity", "t_unity_ns"],
+            "clumps": ["count", "size_median", "size_median_cm"],
+            "coherence": ["k_cutoff", "frequency_cutoff_hz", "bulk_gamma", "noise_floor"]}
+
+
+@pytest.fixture(scope="module")
+def synthetic(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("synthetic_run")
+    data = synthetic_run(seed=3)
+    blocks = analyze(data, folder=folder, write=True)
+    return data, blocks, folder
+
+
+def test_contract_keys_and_plain_json(synthetic):
+    _, blocks, _ = synthetic
+    for block, keys in CONTRACT.items():
+        for k in keys:
+            assert k in blocks[block], (block, k)
+    assert isinstance(blocks["modes"], list) and blocks["modes"]
+    assert {"mode", "k", "measured", "measured_err", "theory", "ratio", "window"} <= set(blocks["modes"][0])
+    json.dumps(blocks, allow_nan=False)      # no NaN/inf anywhere
+
+
+def test_prescribed_content_is_recovered(synthetic):
+    data, blocks, _ = synthetic
+    g = blocks["growth"]
+    # prescribed: mode 4 grows fastest at 0.35 (synthetic_run's parabola)
+    assert g["mode"] == 4
+    assert g["measured"] == pytest.approx(0.35, rel=0.01)
+    assert g["ratio"] == pytest.approx(1.0, rel=0.01)
+    # prescribed: 4 Gaussian bunches per species, 2 species
+    assert blocks["clumps"]["count"] == 8
+    # quantile bunches of rms 0.3 (prescribed): |F|^2 = f^2 exp(-k^2 sigma^2) at the harmonics
+    # k = 2 pi 4 j / L of the train (analytic); drop 0.5 -> the last harmonic above half the peak
+    co = blocks["coherence"]
+    k1 = 2 * math.pi * 4 / data.length
+    j = np.arange(1, 40)
+    P = np.exp(-(j * k1 * 0.3) ** 2)
+    kc = k1 * j[P >= 0.5 * P[0]].max()
+    assert co["k_cutoff"] == pytest.approx(kc, rel=1e-9)
+    assert co["noise_floor"] == pytest.approx(1 / 40000)
+    assert co["bulk_gamma"] == 1.0
+
+
+def test_options_override_the_deck(synthetic):
+    data, blocks, _ = synthetic
+    b10 = analyze(data, bulk_gamma=10.0, write=False)
+    # nu_c = Gamma c k_c / 2 pi: linear in Gamma (its definition)
+    assert b10["coherence"]["frequency_cutoff_hz"] == pytest.approx(
+        10 * blocks["coherence"]["frequency_cutoff_hz"], rel=1e-12)
+    high = analyze(data, clump_threshold=1e6, write=False)
+    assert high["clumps"]["count"] == 0 and high["clumps"]["size_median"] is None
+    with pytest.raises(ValueError):
+        analyze(data, coherence_drop=1.5, write=False)
+
+
+def test_files_written(synthetic):
+    _, _, folder = synthetic
+    import h5py
+    for name in ("growth_modes.csv", "contrast.csv", "clumps.csv", "clump_sizes.csv",
+                 "density_spectrum.csv", "form_factor.csv"):
+        p = folder / "analysis" / name
+        assert p.is_file() and len(p.read_text().splitlines()) > 1
+    with h5py.File(folder / "analysis.h5", "r") as h:
+        assert "clumps/peak/width" in h and "form_factor/peak/k" in h and "growth/modes/measured" in h
+    for name in ("field_energy", "growth_rates", "phase_space", "contrast", "clumps", "coherence"):
+        p = folder / "figures" / f"{name}.png"
+        assert p.stat().st_size > 5000
+        assert p.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    assert not list(folder.rglob("*.tmp"))
+
+
+def test_human_summary_says_plainly_what_is_missing():
+    data = synthetic_run(rates=np.full(16, -0.1), contrast_peak=0.2, particles=2000,
+                         bunched_fraction=0.0, seed=5)
+    data.peak.x = {k: np.random.default_rng(9).random(2000) * data.length for k in data.names}
+    blocks = analyze(data, write=False)
+    text = human_summary(blocks, 1e10)
+    assert "no linear phase found" in text
+    assert "no clump" in text
+    assert "no cutoff above the noise floor" in text
+    assert blocks["contrast"]["t_unity"] is None and blocks["coherence"]["k_cutoff"] is None
