@@ -360,7 +360,9 @@ def _f(v, fmt=".4g"):
 
 
 def human_summary(blocks: dict, density_cm3: float) -> str:
-    """A few plain lines for the terminal: growth, clump formation, clumps, coherence cutoff."""
+    """A few plain lines for the terminal: growth, clump formation, clumps, coherence cutoff.
+
+    ``density_cm3`` converts what the blocks do not already carry in physical units."""
     lines = []
     g = blocks.get("growth") or {}
     if g.get("mode") is None:
@@ -385,7 +387,9 @@ def human_summary(blocks: dict, density_cm3: float) -> str:
     n_all = len(blocks.get("modes") or [])
     if n_all:
         lines.append(f"modes with a linear phase: {n_fit} of {n_all}")
-    c = blocks.get("contrast") or {}
+    c = dict(blocks.get("contrast") or {})
+    if c.get("t_unity") is not None and c.get("t_unity_ns") is None:
+        c["t_unity_ns"] = units.time_ns(c["t_unity"], density_cm3)
     if c.get("max") is None:
         lines.append("density contrast: not recorded")
     else:
