@@ -439,7 +439,20 @@ def _rational_roots(terms, k) -> np.ndarray:
     if n > 1:
         idx = np.arange(n - 1)
         comp[:, idx + 1, idx] = 1.0
-    return np.linalg.eigvals(comp)
+    roots = np.linalg.eigvals(comp)
+    # polish on eps itself (better conditioned than the expanded polynomial where roots cluster,
+    # e.g. a weak beam); a Newton step is kept only where it lowers |eps|
+    kk = np.broadcast_to(k[:, None], roots.shape)
+    with np.errstate(all="ignore"):
+        e0 = np.abs(_eps(terms, kk, roots)[0])
+        for _ in range(3):
+            e, ew, _ = _eps(terms, kk, roots)
+            trial = roots - e / ew
+            e1 = np.abs(_eps(terms, kk, trial)[0])
+            take = np.isfinite(e1) & (e1 < e0) & (np.abs(trial - roots) < 1e-6 * (1 + np.abs(roots)))
+            roots = np.where(take, trial, roots)
+            e0 = np.where(take, e1, e0)
+    return roots
 
 
 def _species_list(species):
