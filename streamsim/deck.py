@@ -130,7 +130,7 @@ class Output:
     phase_space_every: float      # 1/omega_p: (x, u) subsample
     phase_space_particles: int    # per species
     modes: int                    # |E_k| recorded for m = 1..modes
-    checkpoint_every: float       # 1/omega_p; 0 = only at the end and on a signal
+    checkpoint_every: float       # 1/omega_p (default end/10); 0 = only at the end and on a signal
     threads: int                  # numba threads; 0 = all cores
 
 
@@ -262,7 +262,7 @@ _OUTPUT = {
     "phase_space_every": _Key("float", None, _finite_pos),
     "phase_space_particles": _Key("int", 4096, _ge(0)),
     "modes": _Key("int", None, _ge(1)),
-    "checkpoint_every": _Key("float", 0.0, lambda v: None if (math.isfinite(v) and v >= 0) else "must be >= 0"),
+    "checkpoint_every": _Key("float", None, lambda v: None if (math.isfinite(v) and v >= 0) else "must be >= 0"),
     "threads": _Key("int", 0, _ge(0)),
 }
 _ANALYSIS = {
@@ -306,7 +306,8 @@ def _coerce(path: str, spec: _Key, value: Any) -> Any:
         if not isinstance(value, str):
             raise DeckError(path, "must be a string (in quotes)", value)
         if spec.choices and value not in spec.choices:
-            close = difflib.get_close_matches(value, spec.choices, n=1)
+            close = [c for c in spec.choices if c == value.strip().lower()] or \
+                difflib.get_close_matches(value, spec.choices, n=1)
             hint = f"; did you mean '{close[0]}'?" if close else ""
             raise DeckError(path, "must be one of " + ", ".join(f'"{c}"' for c in spec.choices) + hint,
                             value)
@@ -467,6 +468,8 @@ def _validate(raw: dict) -> Deck:
     diag = o["diagnostics_every"] or max(dt, t["end"] / 4000.0)
     fields_every = o["fields_every"] or t["end"] / 20.0
     ps_every = o["phase_space_every"] or t["end"] / 8.0
+    if time.dt_auto:  # the user did not choose dt, so a cadence below it means "every step"
+        diag, fields_every, ps_every = (max(v, dt) for v in (diag, fields_every, ps_every))
     for key, v in (("diagnostics_every", diag), ("fields_every", fields_every),
                    ("phase_space_every", ps_every)):
         if v < dt * (1 - 1e-12):
@@ -476,7 +479,8 @@ def _validate(raw: dict) -> Deck:
         raise DeckError("output.modes", f"must be <= cells/2 = {b['cells'] // 2}", modes)
     output = Output(folder=folder, diagnostics_every=diag, fields_every=fields_every,
                     phase_space_every=ps_every, phase_space_particles=o["phase_space_particles"],
-                    modes=modes, checkpoint_every=o["checkpoint_every"], threads=o["threads"])
+                    modes=modes, threads=o["threads"],
+                    checkpoint_every=t["end"] / 10.0 if o["checkpoint_every"] is None else o["checkpoint_every"])
     return Deck(title=title, random_seed=top["random_seed"], units=units, box=box, time=time,
                 species=species,
                 perturbation=Perturbation(modes=tuple(p["modes"]), amplitude=p["amplitude"],

@@ -21,7 +21,8 @@ from pathlib import Path
 import numpy as np
 
 from . import __version__, fields, io, kernels, loading, units
-from .deck import Deck, load_deck
+from .deck import Deck, DeckError, load_deck
+from .health import check_deck
 from .diagnostics import Cadence, Recorder, contrast
 from .rundata import ParticleSnapshot, RunData
 
@@ -125,6 +126,7 @@ class Simulation:
         self.energy0 = None
         self.energy_err_max = 0.0
         self.momentum_drift_max = 0.0
+        self.findings = []
         self._deposit_all()
         # u^0 -> u^{-1/2}: a backward half kick with E^0
         for s in range(len(self.names)):
@@ -308,18 +310,24 @@ def _theory_block(deck: Deck) -> dict | None:
         return {"error": f"{ex.__class__.__name__}: {ex}"}
 
 
+class HealthRefusal(DeckError):
+    """A numerical-health rule says the run would be meaningless (``force=True`` runs it anyway)."""
+
+
 def run(deck=None, out: str | Path | None = None, *, quiet: bool = True, resume: bool = False,
         write: bool = True, analyze: bool = True, threads: int | None = None,
         progress: bool | None = None, overrides: list[str] | None = None,
-        stop_after_steps: int | None = None) -> Result:
+        stop_after_steps: int | None = None, force: bool = False) -> Result:
     """Run one deck to its end and return a :class:`Result`.
 
     deck: a Deck, a path to a TOML file, a dict, or None for the built-in default.
     out: the run folder (default: the deck's ``output.folder``). write=False keeps everything in
     memory. resume=True continues from ``<out>/checkpoint.h5``. progress: a tqdm bar on stderr
     (default: only when stderr is a terminal and not quiet). stop_after_steps: stop (as if
-    interrupted) after this many steps — for tests of checkpointing.
-    Raises DeckError, NumericalError (after writing what was good), Interrupted, io.OutputError.
+    interrupted) after this many steps — for tests of checkpointing. force: run even when a
+    health rule refuses the deck.
+    Raises DeckError (HealthRefusal), NumericalError (after writing what was good), Interrupted,
+    io.OutputError.
     """
     deck = load_deck(deck, overrides)
     folder = Path(out if out is not None else deck.output.folder) if write else None
@@ -330,14 +338,22 @@ def run(deck=None, out: str | Path | None = None, *, quiet: bool = True, resume:
         if not quiet:
             print(f"warning: {msg}", file=sys.stderr)
 
+    theory = _theory_block(deck)
+    findings = check_deck(deck, theory)
+    for f in findings:
+        if f.level == "refusal" and not force:
+            raise HealthRefusal(f.key, f"{f.message} (--force runs it anyway)",
+                                *(() if f.value is None else (f.value,)))
+    for f in findings:
+        say(str(f) if f.level == "warning" else f"{f} (run forced)")
     sim = Simulation(deck, threads)
+    sim.findings = findings
     if resume:
         if folder is None or not (folder / io.FILES["checkpoint"]).exists():
             raise io.OutputError(f"nothing to resume: no {io.FILES['checkpoint']} in {folder}")
         sim.restore(folder / io.FILES["checkpoint"])
         if getattr(sim, "resume_note", None):
             say(sim.resume_note)
-    theory = _theory_block(deck)
     if folder is not None:
         io.write_text(folder / io.FILES["deck"], deck.to_toml())
         if theory is not None:
@@ -442,6 +458,8 @@ def _write_outputs(sim: Simulation, folder: Path | None, theory, *, status, wall
                      "drift_max_relative": sim.momentum_drift_max / sim.momentum_scale
                      if getattr(sim, "momentum_scale", 0) else None},
         "warnings": warnings,
+        "health": [{"level": f.level, "rule": f.rule, "key": f.key, "message": f.message}
+                   for f in sim.findings],
     }
     if theory is not None:
         summary["theory"] = theory

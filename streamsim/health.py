@@ -2,16 +2,44 @@
 Hockney & Eastwood 1988), and the step that ``time.dt = "auto"`` picks from them.
 
 Each rule is one small function returning the number it checks; :func:`check_deck` turns them
-into warnings and refusals.
+into findings: a *warning* says the number and the fix; a *refusal* marks a run that would be
+meaningless (the CLI stops with exit status 2 unless ``--force``).
 """
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 #: accuracy bound on omega_p dt for leapfrog (common practice: 0.1-0.2; stability needs < 2)
 OMEGA_DT_ACCURATE = 0.1
+OMEGA_DT_WARN = 0.2
+#: leapfrog stability limit of a plasma oscillation, omega_p dt < 2 (Birdsall & Langdon 1991, sec. 4-6)
+OMEGA_DT_LIMIT = 2.0
 #: fraction of a cell a particle may cross per step (common practice)
 CELL_CROSSING_AUTO = 0.5
+#: Debye-length resolution against the finite-grid instability: dx <= pi lambda_D
+#: (common practice for CIC; Birdsall & Langdon 1991, sec. 8-9 show the heating grows with dx/lambda_D)
+DX_OVER_DEBYE_WARN = math.pi
+DX_OVER_DEBYE_REFUSE = 4.0 * math.pi
+#: cold drifting beam: aliased beam resonances couple when the grid wavenumber 2 pi/dx times
+#: v_d comes near omega_p; keep omega_p dx / |v_d| <= 1 (from memory, Birdsall & Langdon 1991,
+#: sec. 8-10 on the cold-beam grid instability; common practice)
+COLD_BEAM_WARN = 1.0
+#: cells per wavelength of the fastest-growing mode (common practice)
+CELLS_PER_WAVELENGTH_WARN = 8
+CELLS_PER_WAVELENGTH_REFUSE = 4
+
+
+@dataclass(frozen=True)
+class Finding:
+    level: str        # "warning" | "refusal"
+    rule: str         # short name of the rule
+    key: str          # the deck key to change
+    message: str      # the number and the fix
+    value: object = None  # the key's current value
+
+    def __str__(self) -> str:
+        return f"{self.rule}: {self.message}"
 
 
 def omega_p_total(species) -> float:
@@ -19,16 +47,27 @@ def omega_p_total(species) -> float:
     return math.sqrt(sum(s.omega_p2 for s in species))
 
 
+def debye_length(s) -> float:
+    """lambda_D,s = v_th,s / omega_ps with v_th^2 = theta c^2 (non-relativistic; in c/omega_p)."""
+    if s.distribution == "waterbag":
+        vth = s.spread_u / math.sqrt(3.0)     # rms of a flat distribution of half-width D
+    else:
+        vth = math.sqrt(s.theta)
+    return vth / math.sqrt(s.omega_p2) if vth > 0 else 0.0
+
+
 def velocity_max(s) -> float:
     """A bound on |v| for a species' loaded particles, in c.
 
-    Cold: |beta_d|. Waterbag: the faster edge u_d-boost of +-spread_u. Juttner: the drift-frame
-    momentum at 7 standard deviations, boosted (common practice for the sampled tail).
+    Cold: |beta_d|. Waterbag: the faster boosted edge of +-spread_u. Juttner: the drift-frame
+    momentum six standard deviations out (a fraction ~1e-9 lies beyond), boosted.
     """
     if s.distribution == "waterbag":
         edge = s.spread_u
     elif s.distribution == "juttner" and s.theta > 0:
-        edge = 7.0 * math.sqrt(s.theta * (1.0 + s.theta)) + 7.0 * s.theta
+        from .loading import juttner_u_range
+        lo, hi = juttner_u_range(0.0, s.theta, sigmas=6.0)
+        edge = hi
     else:
         edge = 0.0
     g_d, b_d = s.drift_gamma, s.drift_beta
@@ -52,3 +91,95 @@ def auto_dt(box, species, end: float | None = None) -> float:
     if end is not None and end > dt:
         dt = end / math.ceil(end / dt * (1 - 1e-12))
     return dt
+
+
+def check_deck(deck, theory: dict | None = None) -> list[Finding]:
+    """All health findings for a deck. ``theory``: the deck's theory block (to_dict), if known."""
+    out: list[Finding] = []
+    dt, dx = deck.time.dt, deck.box.dx
+    wp = omega_p_total(deck.species)
+
+    # -- time step against the plasma frequency ------------------------------------------
+    wdt = wp * dt
+    if wdt >= OMEGA_DT_LIMIT:
+        out.append(Finding("refusal", "leapfrog stability", "time.dt", value=dt, message=
+                           f"omega_p dt = {wdt:.3g} >= 2, the leapfrog limit: the run would blow up; "
+                           f"use dt <= {OMEGA_DT_ACCURATE / wp:.3g} (or dt = \"auto\")"))
+    elif wdt > OMEGA_DT_WARN:
+        out.append(Finding("warning", "time-step accuracy", "time.dt", value=dt, message=
+                           f"omega_p dt = {wdt:.3g} > {OMEGA_DT_WARN}: frequencies and growth rates "
+                           f"carry errors of order (omega_p dt)^2/24 = {wdt**2 / 24:.1e}; use dt <= "
+                           f"{OMEGA_DT_ACCURATE / wp:.3g} (or dt = \"auto\")"))
+
+    # -- cell crossing -----------------------------------------------------------------
+    for s in deck.species:
+        v = velocity_max(s)
+        if v * dt >= dx:
+            out.append(Finding("warning", "cell crossing", "time.dt", value=dt, message=
+                               f"species {s.name}: v_max dt = {v * dt:.3g} >= dx = {dx:.3g}: particles "
+                               f"skip cells; use dt <= {CELL_CROSSING_AUTO * dx / v:.3g} (or dt = \"auto\")"))
+
+    # -- Debye length / finite-grid instability, cold-beam grid instability -------------
+    for s in deck.species:
+        lam = debye_length(s)
+        if lam > 0:
+            ratio = dx / lam
+            if ratio > DX_OVER_DEBYE_REFUSE:
+                level = "refusal"
+            elif ratio > DX_OVER_DEBYE_WARN:
+                level = "warning"
+            else:
+                continue
+            need = math.ceil(deck.box.length / (DX_OVER_DEBYE_WARN * lam))
+            out.append(Finding(level, "finite-grid instability", "box.cells", value=deck.box.cells, message=
+                               f"species {s.name}: dx/lambda_D = {ratio:.3g} > pi: aliasing heats the "
+                               f"plasma (Birdsall & Langdon 1991, ch. 8); use box.cells >= {need}"))
+        elif s.drift_u != 0:
+            ratio = math.sqrt(s.omega_p2) * dx / abs(s.drift_beta)
+            if ratio > COLD_BEAM_WARN:
+                need = math.ceil(deck.box.length * math.sqrt(s.omega_p2) / abs(s.drift_beta) / COLD_BEAM_WARN)
+                out.append(Finding("warning", "cold-beam grid instability", "box.cells", value=deck.box.cells, message=
+                                   f"species {s.name}: omega_p dx/|v_d| = {ratio:.3g} > 1: a cold beam "
+                                   f"on a coarse grid heats numerically; use box.cells >= {need} or "
+                                   f"give the beam a small theta"))
+
+    # -- the fastest mode: resolved and contained ----------------------------------------
+    if theory and isinstance(theory.get("fastest"), dict) and theory["fastest"].get("k"):
+        kf = theory["fastest"]["k"]
+        lam_f = 2 * math.pi / kf
+        cells = lam_f / dx
+        if cells < CELLS_PER_WAVELENGTH_REFUSE:
+            level = "refusal"
+        elif cells < CELLS_PER_WAVELENGTH_WARN:
+            level = "warning"
+        else:
+            level = None
+        if level:
+            need = math.ceil(CELLS_PER_WAVELENGTH_WARN * deck.box.length / lam_f)
+            out.append(Finding(level, "fastest mode resolution", "box.cells", value=deck.box.cells, message=
+                               f"the fastest-growing wavelength {lam_f:.3g} c/omega_p spans only "
+                               f"{cells:.2g} cells; use box.cells >= {need}"))
+        if deck.box.length < lam_f:
+            out.append(Finding("warning", "fastest mode containment", "box.length", value=deck.box.length, message=
+                               f"the box ({deck.box.length:.3g} c/omega_p) is shorter than the "
+                               f"fastest-growing wavelength {lam_f:.3g}; use box.fastest_wavelengths "
+                               f">= 1 or box.length >= {lam_f:.3g}"))
+        modes = theory.get("box_modes") or []
+        if modes and not any((m.get("growth") or 0) > 0 for m in modes) and theory["fastest"].get("growth", 0) > 0:
+            out.append(Finding("refusal", "no unstable box mode", "box.length", value=deck.box.length, message=
+                               "none of the box modes lies in the unstable band, so nothing can grow; "
+                               "use box.fastest_wavelengths = 8"))
+
+    # -- noise against the contrast to be measured --------------------------------------
+    thr = deck.analysis.clump_threshold
+    for s in deck.species:
+        if s.loading == "random":
+            noise = 1.0 / math.sqrt(s.particles_per_cell)   # per-cell shot noise of delta n/n
+            if noise > thr / 3.0:
+                need = math.ceil((3.0 / thr) ** 2)
+                out.append(Finding("warning", "noise floor", f"species.{s.name}.particles_per_cell", value=s.particles_per_cell, message=
+                                   f"species {s.name}: random-loading noise delta n/n ~ 1/sqrt(ppc) = "
+                                   f"{noise:.2g} is within 3x of analysis.clump_threshold = {thr:g}: "
+                                   f"noise alone would count as clumps; use particles_per_cell >= {need} "
+                                   f"or loading = \"quiet\""))
+    return out

@@ -50,5 +50,5 @@ def pair_deck(*, beta=0.1, cells=128, ppc=64, nwaves=8, dt=0.05, end=40.0, theta
         "box": {"length": nwaves * 2 * math.pi / kfast, "cells": cells, "shape": shape},
         "time": {"dt": dt, "end": end}, "species": species,
         "perturbation": {"modes": [nwaves], "amplitude": amplitude},
-        "output": {"diagnostics_every": dt, "modes": 16},
+        "output": {"diagnostics_every": dt, "modes": min(16, cells // 2)},
     }

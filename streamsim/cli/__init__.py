@@ -62,6 +62,16 @@ def main(argv: list[str] | None = None) -> int:
         return 130
     except BrokenPipeError:
         return 0
+    except MemoryError:
+        print("streamsim: out of memory: use fewer particles_per_cell or cells", file=sys.stderr)
+        return 4
+    except Exception as ex:  # noqa: BLE001 - no traceback for users; STREAMSIM_DEBUG=1 shows it
+        import os
+        if os.environ.get("STREAMSIM_DEBUG"):
+            raise
+        print(f"streamsim: internal error ({ex.__class__.__name__}: {ex}); please report it, "
+              f"and rerun with STREAMSIM_DEBUG=1 for the traceback", file=sys.stderr)
+        return 1
 
 
 if __name__ == "__main__":

@@ -21,6 +21,8 @@ def add_arguments(p) -> None:
     p.add_argument("--threads", type=int, default=None, metavar="T",
                    help="numba threads (default: the deck's output.threads, 0 = all cores)")
     p.add_argument("--no-analysis", action="store_true", help="write the raw outputs only")
+    p.add_argument("--force", action="store_true",
+                   help="run even when a numerical-health rule refuses the deck")
 
 
 def main(args) -> int:
@@ -41,7 +43,10 @@ def main(args) -> int:
     from streamsim.engine import Interrupted, NumericalError, run
     try:
         result = run(deck, out=folder, quiet=args.quiet, resume=bool(args.resume),
-                     analyze=not args.no_analysis, threads=args.threads)
+                     analyze=not args.no_analysis, threads=args.threads, force=args.force)
+    except DeckError as ex:
+        error("deck", str(ex))
+        return 2
     except NumericalError as ex:
         error("numerical", f"{ex}; the last good checkpoint (if any) and the diagnostics so far "
                            f"are in {folder or deck.output.folder}")
