@@ -36,8 +36,6 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Sequence
-
 import numpy as np
 from scipy import optimize, special
 
@@ -637,8 +635,8 @@ def juttner_growing_root(k: float, species, guess=None) -> complex | None:
 # ============================================================================================
 # Growth curves, band, fastest mode
 # ============================================================================================
-def _pick(roots, damped: bool):
-    """Per row: the root of largest Im (ties: largest Re); growth clipped to 0 unless damped."""
+def _pick(roots):
+    """Per row: the root of largest Im (ties: largest Re), after omega -> -conj(omega) for Re < 0."""
     roots = _mirror(roots)
     im = np.where(np.isfinite(roots), roots.imag, -np.inf)
     best = im.max(axis=1, keepdims=True)
@@ -671,7 +669,7 @@ class _Solver:
         """
         k = np.atleast_1d(np.asarray(k, float))
         if self.rational:
-            w = _pick(_rational_roots(self.terms, k), True)
+            w = _pick(_rational_roots(self.terms, k))
             return w
         seeds = _mirror(np.concatenate([_rational_roots(t, k) for t in self.seed_terms], axis=1))
         if extra is not None:
@@ -694,7 +692,7 @@ class _Solver:
             sol, conv = _newton(self.terms, kk[ok_seed], seeds[ok_seed])
             sol[~conv] = np.nan
             w[ok_seed] = sol
-        best = _pick(w, self.damped)
+        best = _pick(w)
         return self._continue(k, best)
 
     def _continue(self, k, best, reach: int = 1):
@@ -762,7 +760,7 @@ def _auto_kmax(species) -> float:
     if dv:
         ks = math.sqrt(wb2) / min(dv)
         k = np.geomspace(1e-3 * ks, 1e2 * ks, 400)
-        g = _pick(_rational_roots(cold, k), True).imag
+        g = _pick(_rational_roots(cold, k)).imag
         unstable = np.nonzero(g > GROWTH_TOL)[0]
         if unstable.size:
             return 1.5 * float(k[unstable[-1]])
@@ -870,11 +868,19 @@ def unstable_bands(species, model: str | None = None, kmax: float | None = None,
     return _bands_from(solver, k, w, solver.growth(w))
 
 
-def _curve_and_fastest(solver, kmax, nk, extend: bool):
+def _curve_and_fastest(solver, kmax, nk, extend: bool, helper=None):
+    """Growth curve on nk points of (0, kmax] (kmax doubled while the maximum sits at the end)
+    and the refined fastest mode.  ``helper``: a second solver (the maxwellian model) whose
+    roots seed this one where it finds no growing root at all."""
     for _ in range(6):
         k = np.linspace(kmax / nk, kmax, nk)
         w = solver.best(k)
         g = solver.growth(w)
+        if helper is not None and not np.any(g > GROWTH_TOL):
+            wh = helper.best(k)
+            if np.any(helper.growth(wh) > GROWTH_TOL):
+                w = solver.best(k, extra=np.where(wh.imag > 0, wh, np.nan))
+                g = solver.growth(w)
         if not np.any(g > GROWTH_TOL):
             return k, w, g, None
         i = int(np.nanargmax(g))
@@ -894,7 +900,9 @@ def fastest_mode(species, model: str | None = None):
     species = _species_list(species)
     model = model or model_for_species(species)
     solver = _Solver(species, model)
-    _, _, _, fast = _curve_and_fastest(solver, _auto_kmax(species), 160, extend=True)
+    helper = _Solver(species, "maxwellian") if model == "juttner" else None
+    _, _, _, fast = _curve_and_fastest(solver, _auto_kmax(species), 160, extend=True,
+                                       helper=helper)
     if fast is None:
         return None
     kf, wf = fast
@@ -1031,12 +1039,16 @@ def theory_for_deck(deck, model: str | None = None, kmax: float | None = None,
                 notes.append(f"species {s.name}: theta <= {THETA_COLD:g}, treated as cold")
     solver = _Solver(species, model)
     kmax_used = float(kmax) if kmax else _auto_kmax(species)
-    k, w, g, fast = _curve_and_fastest(solver, kmax_used, int(nk), extend=kmax is None)
+    helper = _Solver(species, "maxwellian") if model == "juttner" else None
+    k, w, g, fast = _curve_and_fastest(solver, kmax_used, int(nk), extend=kmax is None,
+                                       helper=helper)
     if model == "juttner" and fast is None:
-        cold_fast = fastest_mode(species, "waterbag")
-        if cold_fast is not None and cold_fast[1] > 1e-3:
-            notes.append("the Juttner quadrature found no growing root although the waterbag "
-                         f"model grows at {cold_fast[1]:.4g}; check with --model maxwellian")
+        other = fastest_mode(species, "maxwellian")
+        if other is not None and other[1] > 10 * GROWTH_TOL:
+            notes.append("no growing Juttner root was found (also from the maxwellian roots as "
+                         f"seeds) although the maxwellian model grows at {other[1]:.4g} omega_p "
+                         f"(k = {other[0]:.4g}); the Juttner result may be stable by relativistic "
+                         "effects or the root was missed: compare with --model maxwellian")
     fastest = FastestMode(*map(float, (fast[0], fast[1].imag, fast[1].real))) if fast else None
     bands = _bands_from(solver, k, w, g)
     band = None
