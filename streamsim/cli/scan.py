@@ -1,0 +1,109 @@
+"""`streamsim scan SCAN.toml [--out DIR] [--workers N] [--threads T]
+[--scheduler tcp://HOST:PORT | --local-cluster] [--resume] [--retry-failed] [--set k=v ...]`."""
+from __future__ import annotations
+
+import sys
+
+from streamsim.cli.common import error, warn
+
+HELP = "run a parameter scan (a base deck over axes of deck keys) locally or on Dask"
+
+
+def add_arguments(p) -> None:
+    p.add_argument("scan", metavar="SCAN", help="scan file (TOML): base deck, mode, replicas, "
+                   "[[axis]] tables")
+    p.add_argument("--out", metavar="DIR", help="scan folder (default: runs/out/<scan file name>)")
+    p.add_argument("--workers", type=int, default=None, metavar="N",
+                   help="runs at once: local processes or LocalCluster workers (default: one per "
+                        "core)")
+    p.add_argument("--threads", type=int, default=None, metavar="T",
+                   help="numba threads per run (default: cores // workers; on Dask: cores of the "
+                        "node // worker processes on it, T caps it)")
+    where = p.add_mutually_exclusive_group()
+    where.add_argument("--scheduler", metavar="ADDRESS",
+                       help="send the runs to a running Dask scheduler, e.g. tcp://HOST:8786")
+    where.add_argument("--local-cluster", action="store_true",
+                       help="run on a dask.distributed LocalCluster on 127.0.0.1")
+    p.add_argument("--resume", action="store_true",
+                   help="continue the scan in DIR: completed runs are kept, interrupted ones "
+                        "continue from their checkpoints")
+    p.add_argument("--retry-failed", action="store_true",
+                   help="with --resume, also rerun the runs that failed")
+    p.add_argument("--set", dest="overrides", action="append", default=[], metavar="KEY=VALUE",
+                   help="override a key of the base deck for every run (TOML literal); repeatable")
+    p.add_argument("--no-figures", action="store_true", help="tables only, no scan figures")
+    p.add_argument("--quiet", action="store_true", help="no progress bar and no summary")
+
+
+def main(args) -> int:
+    from streamsim import io
+    from streamsim.scan import (ScanError, ScanSetupError, SchedulerError, default_out,
+                                load_scan, run_scan)
+    if args.retry_failed and not args.resume:
+        error("argument", "--retry-failed needs --resume")
+        return 2
+    try:
+        scan = load_scan(args.scan, args.overrides)
+    except ScanError as ex:
+        error("scan", str(ex))
+        return 2
+    for w in scan.warnings:
+        warn(w)
+    out = args.out or str(default_out(scan))
+    try:
+        res = run_scan(scan, out, workers=args.workers, threads=args.threads,
+                       scheduler=args.scheduler, local_cluster=args.local_cluster,
+                       resume=args.resume, retry_failed=args.retry_failed,
+                       progress=None if not args.quiet else False, quiet=args.quiet,
+                       figures=not args.no_figures)
+    except ScanSetupError as ex:
+        error("argument", str(ex))
+        return 2
+    except SchedulerError as ex:
+        error("dask", str(ex))
+        return 4
+    except io.OutputError as ex:
+        error("output", str(ex))
+        return 4
+    for w in res.warnings[len(scan.warnings):]:
+        warn(w)
+    if not args.quiet:
+        _print_summary(scan, res)
+    if res.interrupted:
+        print(f"interrupted: {res.completed + res.failed} of {len(res.rows)} runs done; continue "
+              f"with: streamsim scan {args.scan} --out {out} --resume", file=sys.stderr)
+        return 130
+    if res.lost:
+        error("dask", f"lost the scheduler with {res.lost} run(s) left; continue with --resume")
+        return 4
+    return 0
+
+
+def _fmt(v, spec=".3g") -> str:
+    return "-" if v is None else format(v, spec) if isinstance(v, (int, float)) else str(v)
+
+
+def _print_summary(scan, res) -> None:
+    lines = [f"{scan.title}: {len(res.rows)} runs ({res.completed} completed, {res.failed} failed"
+             + (f", {res.pending} not done" if res.pending else "") + f"); this time ran "
+             f"{res.ran}, skipped {res.skipped} already done"
+             + (f" [{res.executor}]" if res.executor else "")]
+    if len(res.rows) <= 40:
+        names = [a.name for a in scan.axes]
+        head = names + (["replica"] if scan.replicas > 1 else []) + \
+            ["growth ns", "theory ns", "ratio", "t_unity ns", "clump cm", "nu_c Hz", "status"]
+        table = [head]
+        for r in res.rows:
+            table.append([_fmt(r[n]) for n in names] + ([str(r["replica"])] if scan.replicas > 1
+                                                        else []) +
+                         [_fmt(r["growth_time_ns"]), _fmt(r["theory_growth_time_ns"]),
+                          _fmt(r["growth_ratio"]), _fmt(r["t_unity_ns"]),
+                          _fmt(r["clump_size_median_cm"]), _fmt(r["nu_c_hz"]),
+                          r["status"] + (f": {r['error']}" if r["status"] == "failed" else "")])
+        widths = [max(len(row[j]) for row in table) for j in range(len(head) - 1)]
+        for row in table:
+            lines.append("  " + "  ".join(c.rjust(w) for c, w in zip(row, widths)) + "  " + row[-1])
+    lines.append(f"  tables: {res.tables[0]}, {res.tables[1]}" if res.tables else "")
+    if res.figures:
+        lines.append(f"  figures: {res.out / 'figures'} ({len(res.figures)})")
+    print("\n".join(line for line in lines if line))

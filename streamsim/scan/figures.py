@@ -1,0 +1,218 @@
+"""Figures of a scan (matplotlib, Agg, PNG, written atomically) in <scan>/figures/.
+
+- ``growth_time_vs_<axis>.png``: measured e-folding time (ns) against the axis, one line per
+  combination of the other axes; markers are the mean over replicas with the standard deviation
+  of the replicas as error bars (one replica: the fit's 1-sigma error); the line is the linear
+  theory for the same box mode, the dashed line the theory's fastest mode.
+- ``nu_c_vs_<axis>.png``: the coherence cutoff frequency nu_c (Hz) against the axis.
+- ``growth_time_map.png`` (two axes, product scan): measured growth time and measured/theory
+  over the two axes.
+"""
+from __future__ import annotations
+
+import io
+import math
+import re
+from pathlib import Path
+
+import matplotlib
+
+matplotlib.use("Agg")
+import matplotlib.pyplot as plt  # noqa: E402
+import numpy as np  # noqa: E402
+
+__all__ = ["make_figures", "replica_stats"]
+
+MAX_LINES = 12
+
+
+def _save(fig, path: Path) -> Path:
+    from ..io import atomic_path
+    buf = io.BytesIO()
+    fig.tight_layout()
+    fig.savefig(buf, format="png", dpi=110)
+    plt.close(fig)
+    with atomic_path(path) as tmp:
+        Path(tmp).write_bytes(buf.getvalue())
+    return path
+
+
+def _slug(name: str) -> str:
+    return re.sub(r"[^A-Za-z0-9]+", "_", name).strip("_") or "axis"
+
+
+def replica_stats(rows: list[dict], column: str, err_column: str | None = None) -> dict:
+    """{point: (mean, error, n)} over the completed replicas of each point with a value.
+
+    error: the sample standard deviation of the replicas (n >= 2), else the row's own error
+    column (the fit's 1-sigma), else None."""
+    by_point: dict[int, list[dict]] = {}
+    for r in rows:
+        if r.get("status") == "completed" and r.get(column) is not None:
+            by_point.setdefault(r["point"], []).append(r)
+    out = {}
+    for p, rs in by_point.items():
+        v = np.array([r[column] for r in rs], dtype=float)
+        if v.size >= 2:
+            err = float(np.std(v, ddof=1))
+        else:
+            err = rs[0].get(err_column) if err_column else None
+        out[p] = (float(v.mean()), err, int(v.size))
+    return out
+
+
+def _first(rows: list[dict], column: str) -> dict:
+    """{point: value} of a column that is the same for every replica (theory)."""
+    out = {}
+    for r in rows:
+        if r.get(column) is not None and r["point"] not in out:
+            out[r["point"]] = r[column]
+    return out
+
+
+def _groups(scan, rows, i: int):
+    """Points grouped by the values of the other axes -> {label: [(x, point), ...]}."""
+    groups: dict[tuple, list] = {}
+    seen = set()
+    for r in rows:
+        if r["point"] in seen:
+            continue
+        seen.add(r["point"])
+        others = tuple((a.name, r[a.name]) for j, a in enumerate(scan.axes) if j != i)
+        groups.setdefault(others, []).append((r[scan.axes[i].name], r["point"]))
+    out = {}
+    for others, pts in groups.items():
+        label = ", ".join(f"{n} = {_fmt(v)}" for n, v in others) or None
+        out[label] = sorted(pts, key=lambda t: t[0])
+    return out
+
+
+def _fmt(v) -> str:
+    return format(v, ".3g") if isinstance(v, float) else str(v)
+
+
+def _line_plot(scan, rows, i, ax, column, err_column, theory_columns, ylabel):
+    axis = scan.axes[i]
+    stats = replica_stats(rows, column, err_column)
+    theories = [(_first(rows, c), style, lab) for c, style, lab in theory_columns]
+    groups = _groups(scan, rows, i)
+    colours = plt.rcParams["axes.prop_cycle"].by_key()["color"]
+    drawn = 0
+    for g, (label, pts) in enumerate(list(groups.items())[:MAX_LINES]):
+        col = colours[g % len(colours)]
+        xs = [x for x, p in pts if p in stats]
+        if xs:
+            ys = [stats[p][0] for x, p in pts if p in stats]
+            es = [stats[p][1] if stats[p][1] is not None else 0.0 for x, p in pts if p in stats]
+            ax.errorbar(xs, ys, yerr=es, fmt="o", color=col, capsize=3, ms=5,
+                        label=("measured" + (f" ({label})" if label else "")))
+            drawn += 1
+        for values, style, tlabel in theories:
+            tx = [x for x, p in pts if p in values]
+            ty = [values[p] for x, p in pts if p in values]
+            if tx:
+                ax.plot(tx, ty, style, color=col, lw=1.2,
+                        label=tlabel if g == 0 else None)
+                drawn += 1
+    if len(groups) > MAX_LINES:
+        ax.set_title(f"first {MAX_LINES} of {len(groups)} lines", fontsize=8)
+    ax.set_xlabel(axis.name)
+    ax.set_ylabel(ylabel)
+    if axis.log:
+        ax.set_xscale("log")
+    ys_all = [s[0] for s in stats.values()] + [v for vals, _, _ in theories for v in vals.values()]
+    if ys_all and min(ys_all) > 0 and max(ys_all) / min(ys_all) > 10:
+        ax.set_yscale("log")
+    if drawn:
+        ax.legend(fontsize=7)
+    else:
+        ax.text(0.5, 0.5, "no completed run has this value", ha="center", va="center",
+                transform=ax.transAxes)
+
+
+def _growth_vs_axis(scan, rows, i, folder) -> Path:
+    fig, ax = plt.subplots(figsize=(7, 4.5))
+    _line_plot(scan, rows, i, ax, "growth_time_ns", "growth_time_err_ns",
+               [("theory_growth_time_ns", "-", "theory, same box mode"),
+                ("theory_fastest_growth_time_ns", "--", "theory, fastest mode")],
+               "growth time 1/gamma (ns)")
+    fig.suptitle(f"{scan.title}: e-folding time of the field vs {scan.axes[i].name}", fontsize=10)
+    return _save(fig, folder / f"growth_time_vs_{_slug(scan.axes[i].name)}.png")
+
+
+def _nu_c_vs_axis(scan, rows, i, folder) -> Path:
+    fig, ax = plt.subplots(figsize=(7, 4.5))
+    _line_plot(scan, rows, i, ax, "nu_c_hz", None, [], "coherence cutoff nu_c (Hz)")
+    gammas = sorted({r["bulk_gamma"] for r in rows if r.get("bulk_gamma") is not None})
+    g = ", ".join(_fmt(v) for v in gammas) if gammas else "n/a"
+    fig.suptitle(f"{scan.title}: nu_c = Gamma c k_c / 2 pi (Gamma = {g}) vs {scan.axes[i].name}",
+                 fontsize=10)
+    return _save(fig, folder / f"nu_c_vs_{_slug(scan.axes[i].name)}.png")
+
+
+def _edges(values, log: bool) -> np.ndarray:
+    v = np.asarray(values, dtype=float)
+    if v.size == 1:
+        return np.array([v[0] * 0.5, v[0] * 1.5]) if log else np.array([v[0] - 0.5, v[0] + 0.5])
+    w = np.log(v) if log else v
+    mid = 0.5 * (w[1:] + w[:-1])
+    e = np.concatenate([[w[0] - (mid[0] - w[0])], mid, [w[-1] + (w[-1] - mid[-1])]])
+    return np.exp(e) if log else e
+
+
+def _map(scan, rows, folder) -> Path | None:
+    a, b = scan.axes
+    if not (a.numeric and b.numeric):
+        return None
+    order_a = np.argsort(a.values)
+    order_b = np.argsort(b.values)
+    stats = replica_stats(rows, "growth_time_ns")
+    ratio = replica_stats(rows, "growth_ratio")
+    point_of = {}
+    for r in rows:
+        point_of[(r[f"{a.name}#index"], r[f"{b.name}#index"])] = r["point"]
+    fig, axes = plt.subplots(1, 2, figsize=(11, 4.5))
+    for ax, st, title, cmap, norm in (
+            (axes[0], stats, "growth time (ns)", "viridis", "log"),
+            (axes[1], ratio, "measured / theory growth", "coolwarm", None)):
+        grid = np.full((len(b.values), len(a.values)), np.nan)
+        for ia, ja in enumerate(order_a):
+            for ib, jb in enumerate(order_b):
+                p = point_of.get((int(ja), int(jb)))
+                if p in st:
+                    grid[ib, ia] = st[p][0]
+        xe = _edges(np.asarray(a.values, float)[order_a], a.log)
+        ye = _edges(np.asarray(b.values, float)[order_b], b.log)
+        finite = grid[np.isfinite(grid)]
+        kw = {}
+        if norm == "log" and finite.size and finite.min() > 0:
+            kw["norm"] = matplotlib.colors.LogNorm(vmin=finite.min(), vmax=finite.max())
+        if norm is None and finite.size:
+            d = max(abs(finite.max() - 1.0), abs(finite.min() - 1.0), 1e-3)
+            kw["vmin"], kw["vmax"] = 1.0 - d, 1.0 + d
+        mesh = ax.pcolormesh(xe, ye, np.ma.masked_invalid(grid), cmap=cmap, shading="flat", **kw)
+        fig.colorbar(mesh, ax=ax, label=title)
+        if a.log:
+            ax.set_xscale("log")
+        if b.log:
+            ax.set_yscale("log")
+        ax.set_xlabel(a.name)
+        ax.set_ylabel(b.name)
+        ax.set_title(title + " (blank: no fit)", fontsize=9)
+    fig.suptitle(f"{scan.title}: mean over replicas", fontsize=10)
+    return _save(fig, folder / "growth_time_map.png")
+
+
+def make_figures(scan, rows: list[dict], folder) -> list[Path]:
+    folder = Path(folder)
+    written = []
+    for i, a in enumerate(scan.axes):
+        if not a.numeric:
+            continue
+        written.append(_growth_vs_axis(scan, rows, i, folder))
+        written.append(_nu_c_vs_axis(scan, rows, i, folder))
+    if len(scan.axes) == 2 and scan.mode == "product":
+        m = _map(scan, rows, folder)
+        if m is not None:
+            written.append(m)
+    return written
