@@ -127,6 +127,7 @@ class Simulation:
         self.energy_err_max = 0.0
         self.momentum_drift_max = 0.0
         self.findings = []
+        self.finished = False   # finish() has recorded the last time level
         self._deposit_all()
         # u^0 -> u^{-1/2}: a backward half kick with E^0
         for s in range(len(self.names)):
@@ -196,6 +197,7 @@ class Simulation:
             self.recorder.snapshot(t, self.density, self.efield)
         if self.recorder.arrays["ps_t"].size > self.recorder.counts["phase"]:
             self._phase(t)
+        self.finished = True
 
     # -- pieces --------------------------------------------------------------------------
     def _record_series(self, t, cmax, crms) -> None:
@@ -256,7 +258,8 @@ class Simulation:
                 "momentum_scale": getattr(self, "momentum_scale", None),
                 "momentum_drift_max": self.momentum_drift_max, "peak_t": self.peak_t,
                 "threads": self.threads, "rng_state": _jsonable(self.rng_state),
-                "version": __version__}
+                "version": __version__, "finished": self.finished,
+                "deck": _comparable(self.deck)}
 
     def save(self, path) -> None:
         arrays, counts = self.recorder.state()
@@ -266,6 +269,12 @@ class Simulation:
 
     def restore(self, path) -> None:
         ck = io.read_checkpoint(path, self.names)
+        theirs = ck["extra"].get("deck")
+        if theirs is not None:
+            diff = _first_difference(theirs, _comparable(self.deck))
+            if diff:
+                raise io.OutputError(f"checkpoint {path} was written by a different deck "
+                                     f"({diff} differs); resume with the run's own deck.toml")
         if len(ck["x"]) != len(self.x) or any(a.shape != b.shape for a, b in zip(ck["x"], self.x)):
             raise io.OutputError(f"checkpoint {path} does not belong to this deck (particle counts differ)")
         self.x, self.u = ck["x"], ck["u"]
@@ -280,6 +289,7 @@ class Simulation:
         self.momentum_drift_max = e["momentum_drift_max"]
         self.peak_value = ck["peak_value"]
         self.peak_t = e["peak_t"]
+        self.finished = bool(e.get("finished", False))
         if ck["peak"] is not None:
             self.peak_x = [np.array(a) for a in ck["peak"][1]]
         if e.get("threads") != self.threads:
@@ -288,9 +298,34 @@ class Simulation:
         self._deposit_all()
 
 
+def _comparable(deck: Deck) -> dict:
+    """The deck as plain data without what may change between a run and its resume."""
+    d = deck.to_dict()
+    d["output"] = {k: v for k, v in d["output"].items() if k not in ("folder", "threads")}
+    return _jsonable(d)
+
+
+def _first_difference(a, b, path="") -> str | None:
+    if isinstance(a, dict) and isinstance(b, dict):
+        for k in sorted(set(a) | set(b)):
+            found = _first_difference(a.get(k), b.get(k), f"{path}.{k}" if path else k)
+            if found:
+                return found
+        return None
+    if isinstance(a, list) and isinstance(b, list) and len(a) == len(b):
+        for i, (x, y) in enumerate(zip(a, b)):
+            found = _first_difference(x, y, f"{path}[{i}]")
+            if found:
+                return found
+        return None
+    return None if a == b else (path or "the deck")
+
+
 def _jsonable(obj):
     if isinstance(obj, dict):
         return {k: _jsonable(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_jsonable(v) for v in obj]
     if isinstance(obj, (np.integer,)):
         return int(obj)
     return obj
@@ -414,7 +449,8 @@ def run(deck=None, out: str | Path | None = None, *, quiet: bool = True, resume:
         raise Interrupted(f"stopped at step {sim.step} of {sim.steps} "
                           f"(t = {sim.step * sim.dt:.6g}/omega_p)"
                           + (f"; resume with --resume {folder}" if folder is not None else ""))
-    sim.finish()
+    if not sim.finished:
+        sim.finish()
     summary, data = _write_outputs(sim, folder, theory, status=status, wall=wall,
                                    steps_done=sim.step - step0, warnings=warnings, analyze=analyze,
                                    quiet=quiet)
