@@ -265,7 +265,7 @@ class Simulation:
         arrays, counts = self.recorder.state()
         peak = self.snapshot("peak")
         io.write_checkpoint(path, self.step, self.x, self.u, arrays, counts,
-                            self.checkpoint_extra(), peak, self.peak_value)
+                            self.checkpoint_extra(), peak, self.peak_value, self.density)
 
     def restore(self, path) -> None:
         ck = io.read_checkpoint(path, self.names)
@@ -295,7 +295,11 @@ class Simulation:
         if e.get("threads") != self.threads:
             self.resume_note = (f"checkpoint was written with {e.get('threads')} threads, resuming "
                                 f"with {self.threads}: results stay correct but not bit-identical")
-        self._deposit_all()
+        if ck["density"] is not None and ck["density"].shape == self.density.shape:
+            self.density = ck["density"]
+            self._solve()
+        else:
+            self._deposit_all()
 
 
 def _comparable(deck: Deck) -> dict:

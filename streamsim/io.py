@@ -342,10 +342,15 @@ def read_openpmd_meshes(path, names: list[str]) -> tuple[DensitySnapshots, Phase
 # checkpoints
 # ----------------------------------------------------------------------------------------------
 def write_checkpoint(path, step: int, xs, us, recorder_arrays: dict, counts: dict,
-                     extra: dict, peak: ParticleSnapshot | None, peak_value: float) -> None:
-    """Full state at a step boundary: positions x^n, momenta u^{n-1/2}, diagnostics so far."""
+                     extra: dict, peak: ParticleSnapshot | None, peak_value: float,
+                     density: np.ndarray | None = None) -> None:
+    """Full state at a step boundary: positions x^n, momenta u^{n-1/2}, the grid densities n^n
+    (kept, not re-deposited, so that a resume is bit-identical whatever the deposit's summation
+    order), diagnostics so far."""
     with atomic_h5(path) as f:
         f.attrs["step"] = step
+        if density is not None:
+            f.create_dataset("density", data=density)
         f.attrs["extra"] = json.dumps(extra)
         f.attrs["peak_value"] = peak_value
         for i, (x, u) in enumerate(zip(xs, us)):
@@ -369,7 +374,8 @@ def read_checkpoint(path, names: list[str]) -> dict:
             out = {"step": int(f.attrs["step"]), "extra": json.loads(f.attrs["extra"]),
                    "peak_value": float(f.attrs["peak_value"]),
                    "x": [f[f"x/{i}"][()] for i in range(S)], "u": [f[f"u/{i}"][()] for i in range(S)],
-                   "counts": json.loads(f["recorder"].attrs["counts"]), "arrays": {}, "peak": None}
+                   "counts": json.loads(f["recorder"].attrs["counts"]), "arrays": {}, "peak": None,
+                   "density": f["density"][()] if "density" in f else None}
             f["recorder"].visititems(lambda k, v: out["arrays"].__setitem__(k, v[()])
                                      if isinstance(v, h5py.Dataset) else None)
             if "peak" in f:
