@@ -58,7 +58,13 @@ class ScanError(ValueError):
     def __init__(self, where: str, message: str):
         self.where = where
         self.message = message
-        super().__init__(f"{where}: {message}" if where else message)
+        if not where:
+            text = message
+        elif message.startswith("= "):       # "key = value: what is wrong", as for decks
+            text = f"{where} {message}"
+        else:
+            text = f"{where}: {message}"
+        super().__init__(text)
 
 
 def _show(v: Any) -> str:
@@ -188,9 +194,9 @@ def _read(path: Path) -> tuple[dict, str]:
         return tomllib.loads(text), text
     except tomllib.TOMLDecodeError as ex:
         line, col = getattr(ex, "lineno", None), getattr(ex, "colno", None)
-        where = f"line {line}, column {col}" if line else "unknown position"
-        raise ScanError(str(path), f"not valid TOML at {where}: {getattr(ex, 'msg', str(ex))}") \
-            from None
+        msg = getattr(ex, "msg", str(ex))
+        where = f" at line {line}, column {col}" if line else ""
+        raise ScanError(str(path), f"not valid TOML{where}: {msg}") from None
 
 
 def _number(where: str, v, *, positive=False) -> float:
@@ -235,10 +241,13 @@ def _check_key(where: str, key: str, base_raw: dict) -> list[str]:
     """Check one axis key against the deck schema; return it with ``species.*`` expanded."""
     if key in FORBIDDEN_KEYS:
         raise ScanError(where, f"= {key!r}: cannot be scanned ({FORBIDDEN_KEYS[key]})")
+    wild = key.startswith("species.*.")
     try:
-        parts, _ = parse_override(f"{key}=0")
+        parts, _ = parse_override((key.replace("*", "X", 1) if wild else key) + "=0")
     except DeckError as ex:
         raise ScanError(where, f"= {key!r}: {ex.message}") from None
+    if wild:
+        parts[1] = "*"
     species = [s.get("name") for s in base_raw.get("species", []) if isinstance(s, dict)]
     top = getattr(_deck, "_TOP", None)
     sections = getattr(_deck, "_SECTIONS", None)
@@ -353,14 +362,12 @@ def load_scan(source: str | Path | dict, overrides: list[str] | None = None, *,
         here = path.resolve().parent
         label = str(path)
 
-    def fail(ex: ScanError):
-        raise ScanError(f"{label}: {ex.where}" if ex.where else label, ex.message) from None
-
     try:
-        scan = _validate(raw, path, here, text, list(overrides or []), resolve)
+        return _validate(raw, path, here, text, list(overrides or []), resolve)
     except ScanError as ex:
-        fail(ex)
-    return scan
+        if ex.where.startswith(label):      # already names the file (a TOML syntax error)
+            raise
+        raise ScanError(f"{label}: {ex.where}" if ex.where else label, ex.message) from None
 
 
 def _validate(raw: dict, path, here: Path, text: str, cli_set: list[str], resolve: bool) -> Scan:

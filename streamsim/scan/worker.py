@@ -163,7 +163,7 @@ def run_point(task: dict) -> dict:
                 kind, error = "exception", f"{ex.__class__.__name__}: {_one_line(ex)}"
         wall = time.time() - t0
         stamp = {"hash": task["hash"], "run": task["run"], "finished": time.time(),
-                 "wall_s": wall, "host": rec["host"], "threads": threads}
+                 "wall_s": wall, "host": rec["host"], "pid": rec["pid"], "threads": threads}
         if error is not None:
             write_failure(folder, task["hash"], task["run"], kind, error, tb, extra=stamp)
             return dict(rec, status="failed", error=error, kind=kind, wall_s=wall)
