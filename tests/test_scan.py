@@ -203,8 +203,10 @@ def read_csv(path: Path) -> list[dict]:
 def test_an_invalid_point_is_recorded_and_the_rest_finish(tmp_path):
     path = write_scan(tmp_path, '[[axis]]\nkey = "box.cells"\nvalues = [1, 64]\n')
     out = tmp_path / "out"
-    proc = cli("scan", str(path), "--out", str(out), "--workers", "1", "--no-figures")
+    proc = cli("scan", str(path), "--out", str(out), "--workers", "1")
     assert proc.returncode == 0, proc.stderr
+    for name in ("growth_time_vs_box_cells.png", "nu_c_vs_box_cells.png"):
+        assert (out / "figures" / name).read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     rows = read_csv(out / "scan.csv")
     assert [r["status"] for r in rows] == ["failed", "completed"]
     assert "box.cells = 1" in rows[0]["error"] and rows[0]["error_kind"] == "deck"
@@ -275,3 +277,16 @@ def test_rerun_without_resume_is_refused_and_resume_skips_everything(tmp_path):
     res2 = run_scan(path, out, workers=1, resume=True, figures=False)
     assert (res2.ran, res2.skipped, res2.completed) == (0, 1, 1)
     assert res2.rows[0]["growth_measured"] == res.rows[0]["growth_measured"]
+
+
+def test_workers_times_threads_never_exceed_the_cores(tmp_path):
+    from streamsim.scan import ScanSetupError
+    path = write_scan(tmp_path, '[[axis]]\nkey = "units.density_cm3"\nvalues = [1.0e9]\n')
+    cores = len(os.sched_getaffinity(0))
+    with pytest.raises(ScanSetupError, match="cores"):
+        run_scan(path, tmp_path / "a", workers=cores + 1)
+    with pytest.raises(ScanSetupError, match="cores"):
+        run_scan(path, tmp_path / "b", workers=1, threads=cores + 1)
+    proc = cli("scan", str(path), "--out", str(tmp_path / "c"), "--workers", str(cores + 1))
+    assert proc.returncode == 2 and proc.stderr.startswith("argument error:")
+    assert not (tmp_path / "a").exists()

@@ -111,8 +111,18 @@ def run_scan(scan: Scan | str | Path, out: str | Path | None = None, *, workers:
         raise ScanSetupError(f"--threads {threads}: must be >= 1")
     if scheduler and local_cluster:
         raise ScanSetupError("give --scheduler or --local-cluster, not both")
+    if not scheduler:
+        n = workers or 1
+        if n > cores:
+            raise ScanSetupError(f"--workers {n} exceeds the {cores} cores of this machine")
+        if threads is not None and n * threads > cores:
+            raise ScanSetupError(f"--workers {n} x --threads {threads} = {n * threads} exceeds "
+                                 f"the {cores} cores of this machine")
     manifest = out / MANIFEST
-    if manifest.exists() and not resume:
+    runs_dir = out / "runs"
+    started = runs_dir.is_dir() and any(not e.name.startswith("invalid-")
+                                        for e in runs_dir.iterdir())
+    if manifest.exists() and started and not resume:
         raise ScanSetupError(f"{out} already holds a scan ({MANIFEST}); pass --resume to continue "
                              "it (and --retry-failed to rerun its failures), or choose another "
                              "--out")
@@ -137,12 +147,6 @@ def run_scan(scan: Scan | str | Path, out: str | Path | None = None, *, workers:
             todo.append(p)
     result = ScanResult(out=out, rows=[], skipped=skipped, warnings=list(scan.warnings))
     n_local = workers or max(1, min(cores, len(todo)))
-    if not scheduler:
-        if n_local > cores:
-            raise ScanSetupError(f"--workers {n_local} exceeds the {cores} cores of this machine")
-        if threads is not None and n_local * threads > cores:
-            raise ScanSetupError(f"--workers {n_local} x --threads {threads} = "
-                                 f"{n_local * threads} exceeds the {cores} cores of this machine")
 
     tracker = _Tracker(scan, out, len(todo), progress, quiet)
     try:
