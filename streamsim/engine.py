@@ -11,7 +11,6 @@ u^{n+1/2} (second-order accurate at t_n).
 from __future__ import annotations
 
 import math
-import os
 import signal
 import sys
 import time as _time
@@ -257,7 +256,7 @@ class Simulation:
                 "momentum0": getattr(self, "momentum0", None),
                 "momentum_scale": getattr(self, "momentum_scale", None),
                 "momentum_drift_max": self.momentum_drift_max, "peak_t": self.peak_t,
-                "threads": self.threads, "rng_state": _jsonable(self.rng_state),
+                "threads": self.threads, "rng_state": io.jsonable(self.rng_state),
                 "version": __version__, "finished": self.finished,
                 "deck": _comparable(self.deck)}
 
@@ -306,7 +305,7 @@ def _comparable(deck: Deck) -> dict:
     """The deck as plain data without what may change between a run and its resume."""
     d = deck.to_dict()
     d["output"] = {k: v for k, v in d["output"].items() if k not in ("folder", "threads")}
-    return _jsonable(d)
+    return io.jsonable(d)
 
 
 def _first_difference(a, b, path="") -> str | None:
@@ -323,16 +322,6 @@ def _first_difference(a, b, path="") -> str | None:
                 return found
         return None
     return None if a == b else (path or "the deck")
-
-
-def _jsonable(obj):
-    if isinstance(obj, dict):
-        return {k: _jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_jsonable(v) for v in obj]
-    if isinstance(obj, (np.integer,)):
-        return int(obj)
-    return obj
 
 
 # ----------------------------------------------------------------------------------------------

@@ -104,26 +104,29 @@ def write_text(path: str | Path, text: str) -> None:
             fh.flush()
 
 
-def _json_clean(obj):
+def jsonable(obj):
+    """Plain JSON data: numpy scalars/arrays to Python, NaN/inf to None, tuples to lists."""
     if isinstance(obj, dict):
-        return {str(k): _json_clean(v) for k, v in obj.items()}
+        return {str(k): jsonable(v) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
-        return [_json_clean(v) for v in obj]
+        return [jsonable(v) for v in obj]
     if isinstance(obj, np.ndarray):
-        return _json_clean(obj.tolist())
-    if isinstance(obj, (np.floating, float)):
-        v = float(obj)
-        return v if math.isfinite(v) else None
+        return [jsonable(v) for v in obj.tolist()]
+    if isinstance(obj, (np.bool_, bool)):
+        return bool(obj)
     if isinstance(obj, np.integer):
         return int(obj)
-    if isinstance(obj, np.bool_):
-        return bool(obj)
+    if isinstance(obj, (float, np.floating)):
+        v = float(obj)
+        return v if math.isfinite(v) else None
+    if isinstance(obj, Path):
+        return str(obj)
     return obj
 
 
 def write_json(path: str | Path, data: dict) -> None:
     """JSON with NaN/inf written as null (summary.json is read by other languages too)."""
-    write_text(path, json.dumps(_json_clean(data), indent=2, allow_nan=False) + "\n")
+    write_text(path, json.dumps(jsonable(data), indent=2, allow_nan=False) + "\n")
 
 
 @contextlib.contextmanager

@@ -9,27 +9,9 @@ from pathlib import Path
 
 import numpy as np
 
+from ..io import jsonable  # noqa: E402,F401 - re-exported: one JSON cleaner for the package
+
 __all__ = ["jsonable", "atomic_write_bytes", "atomic_write_text", "write_csv", "write_h5"]
-
-
-def jsonable(obj):
-    """Plain JSON data: numpy scalars/arrays to Python, NaN/inf to None, tuples to lists."""
-    if isinstance(obj, dict):
-        return {str(k): jsonable(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [jsonable(v) for v in obj]
-    if isinstance(obj, np.ndarray):
-        return [jsonable(v) for v in obj.tolist()]
-    if isinstance(obj, (np.bool_, bool)):
-        return bool(obj)
-    if isinstance(obj, (np.integer,)):
-        return int(obj)
-    if isinstance(obj, (float, np.floating)):
-        v = float(obj)
-        return v if math.isfinite(v) else None
-    if isinstance(obj, Path):
-        return str(obj)
-    return obj
 
 
 def atomic_write_bytes(path, data: bytes) -> Path:

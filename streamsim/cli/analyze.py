@@ -4,9 +4,8 @@ from __future__ import annotations
 import json
 import math
 import sys
-from pathlib import Path
 
-from streamsim.cli.common import error
+from streamsim.cli.common import error, read_run_folder
 
 HELP = "analyse a run folder again: growth fits, density contrast, clumps, coherence cutoff"
 
@@ -44,20 +43,10 @@ def main(args) -> int:
     if bad:
         error("argument", bad)
         return 2
-    folder = Path(args.run_dir)
-    if not folder.is_dir():
-        error("run", f"{folder}: no such folder")
-        return 2
-    if not io.is_run_folder(folder):
-        error("run", f"{folder} is not a streamsim run folder (no {io.FILES['deck']} and "
-                     f"{io.FILES['series']})")
+    folder, data = read_run_folder(args.run_dir)
+    if data is None:
         return 2
     from streamsim.analysis import analyze, human_summary
-    try:
-        data = io.read_run(folder)
-    except (OSError, KeyError, ValueError) as ex:
-        error("run", f"{folder}: cannot read the run ({ex})")
-        return 2
     try:
         blocks = analyze(data, folder=folder, bulk_gamma=args.bulk_gamma,
                          clump_threshold=args.clump_threshold,

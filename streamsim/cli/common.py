@@ -29,3 +29,23 @@ def deck_from_args(args) -> Deck | None:
     except DeckError as ex:
         error("deck", str(ex))
         return None
+
+
+def read_run_folder(path):
+    """(folder, RunData) of a run folder, or (folder, None) after printing a one-line error."""
+    from pathlib import Path
+
+    from streamsim import io
+    folder = Path(path)
+    if not folder.is_dir():
+        error("run", f"{folder}: no such folder")
+        return folder, None
+    if not io.is_run_folder(folder):
+        error("run", f"{folder} is not a streamsim run folder (no {io.FILES['deck']} and "
+                     f"{io.FILES['series']})")
+        return folder, None
+    try:
+        return folder, io.read_run(folder)
+    except (OSError, KeyError, ValueError) as ex:
+        error("run", f"{folder}: cannot read the run ({ex})")
+        return folder, None

@@ -2,9 +2,8 @@
 from __future__ import annotations
 
 import json
-from pathlib import Path
 
-from streamsim.cli.common import error
+from streamsim.cli.common import error, read_run_folder
 
 HELP = "redraw the figures of a run folder into RUN_DIR/figures/"
 
@@ -17,18 +16,8 @@ def add_arguments(p) -> None:
 
 def main(args) -> int:
     from streamsim import io
-    folder = Path(args.run_dir)
-    if not folder.is_dir():
-        error("run", f"{folder}: no such folder")
-        return 2
-    if not io.is_run_folder(folder):
-        error("run", f"{folder} is not a streamsim run folder (no {io.FILES['deck']} and "
-                     f"{io.FILES['series']})")
-        return 2
-    try:
-        data = io.read_run(folder)
-    except (OSError, KeyError, ValueError) as ex:
-        error("run", f"{folder}: cannot read the run ({ex})")
+    folder, data = read_run_folder(args.run_dir)
+    if data is None:
         return 2
     blocks = None
     summ = folder / io.FILES["summary"]

@@ -4,7 +4,7 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from streamsim.cli.common import add_deck_arguments, error, warn
+from streamsim.cli.common import add_deck_arguments, error
 from streamsim.deck import DeckError, load_deck
 
 HELP = "run a deck (none: the built-in symmetric pair-beam demo) and analyse it"
