@@ -1,0 +1,55 @@
+"""`streamsim bench [--particles N ...] [--threads T ...] [--steps S] [--json]`."""
+from __future__ import annotations
+
+import json
+import sys
+
+HELP = "measure particle-steps/s of the engine against the memory roofline and a numpy peer"
+
+
+def _count(text: str) -> int:
+    value = float(text)
+    if not value >= 1 or value != int(value):
+        raise ValueError(text)
+    return int(value)
+
+
+def add_arguments(p) -> None:
+    p.add_argument("--particles", type=_count, nargs="+", default=None, metavar="N",
+                   help="total particle counts (default: 1e5 1e6 1e7; 1e6 style accepted)")
+    p.add_argument("--threads", type=int, nargs="+", default=None, metavar="T",
+                   help="thread counts (default: 1 .. all cores)")
+    p.add_argument("--steps", type=int, default=10, metavar="S",
+                   help="steps per timed batch at N <= 2e6 (fewer above; default 10)")
+    p.add_argument("--repeats", type=int, default=3, metavar="R",
+                   help="timed batches per configuration, best kept (default 3)")
+    p.add_argument("--no-memory", action="store_true", help="skip the peak-memory subprocess")
+    p.add_argument("--no-start", action="store_true", help="skip the cached start-up timing")
+    p.add_argument("--json", action="store_true", help="print the figures as one JSON object")
+
+
+def main(args) -> int:
+    from streamsim import bench
+    from streamsim.cli.common import error
+    import numba
+    particles = args.particles or list(bench.DEFAULT_PARTICLES)
+    threads = args.threads
+    if threads is not None and any(t < 1 or t > numba.config.NUMBA_NUM_THREADS for t in threads):
+        error("arguments", f"--threads must be between 1 and {numba.config.NUMBA_NUM_THREADS}")
+        return 2
+    if args.steps < 1 or args.repeats < 1:
+        error("arguments", "--steps and --repeats must be >= 1")
+        return 2
+
+    def progress(row):
+        if not args.json:
+            print(f"  measured N = {row['particles']}, {row['threads']} thread(s): "
+                  f"{row['particle_steps_per_s']:.3g} particle-steps/s", file=sys.stderr)
+
+    result = bench.run(particles, threads, steps=args.steps, repeats=args.repeats,
+                       memory=not args.no_memory, start=not args.no_start, progress=progress)
+    if args.json:
+        print(json.dumps(result, indent=1))
+    else:
+        print(bench.format_table(result))
+    return 0

@@ -1,0 +1,81 @@
+"""The benchmark's pieces: the numpy peer computes the same step as the engine's reference
+kernel, the copy used for the roofline really copies, the deck hits the particle count, and
+`streamsim bench --json` keeps its key contract. Correctness only: no timing is asserted."""
+import json
+
+import numpy as np
+import pytest
+
+from streamsim import bench, kernels
+from streamsim.cli import main as cli_main
+from streamsim.engine import Simulation
+
+CONTRACT = ("particle_steps_per_s", "roofline_particle_steps_per_s", "roofline_fraction",
+            "numpy_particle_steps_per_s", "speedup_vs_numpy", "bytes_per_particle_peak",
+            "cached_start_s", "scaling")
+
+
+@pytest.mark.parametrize("shape", ["ngp", "cic", "tsc"])
+def test_numpy_peer_step_matches_reference_kernel(shape):
+    Peer = bench.load_numpy_peer()
+    assert Peer is not None
+    deck = bench.bench_deck(2 * 256 * 8)
+    from streamsim import load_deck
+    deck = load_deck(deck, [f'box.shape="{shape}"'])
+    sim = Simulation(deck, threads=1)
+    peer = Peer(sim)
+    x0 = [x.copy() for x in sim.x]
+    u0 = [u.copy() for u in sim.u]
+    density, kinetic, momentum, we = peer.step()
+    b = deck.box
+    g1 = lambda v: v * v / (np.sqrt(1 + v * v) + 1)
+    for s in range(len(x0)):
+        xr, ur, rho = kernels.reference_step(x0[s], u0[s], sim.efield, sim.qm[s] * sim.dt, sim.dt,
+                                             b.length, kernels.SHAPES[shape])
+        np.testing.assert_allclose(peer.u[s], ur, rtol=0, atol=1e-14)
+        np.testing.assert_allclose(peer.x[s], xr, rtol=0, atol=1e-13)
+        np.testing.assert_allclose(density[s], rho * sim.weights[s] / b.dx, rtol=1e-12)
+        want_ke = 0.5 * (g1(u0[s]).sum() + g1(ur).sum()) * sim.weights[s] * sim.masses[s]
+        assert kinetic[s] == pytest.approx(want_ke, rel=1e-12)
+    # the engine's own step gives the same densities and field energy (within round-off)
+    sim.advance()
+    np.testing.assert_allclose(sim.density, density, rtol=1e-10, atol=1e-12)
+    assert 0.5 * b.dx * np.dot(sim.efield, sim.efield) == pytest.approx(we, rel=1e-8, abs=1e-18)
+
+
+def test_roofline_copy_copies():
+    rng = np.random.default_rng(4)
+    xs, us = rng.random(1001), rng.random(1001)
+    xd, ud = np.zeros(1001), np.zeros(1001)
+    assert bench.copy_seconds(xs, us, xd, ud, 1) > 0
+    np.testing.assert_array_equal(xd, xs)
+    np.testing.assert_array_equal(ud, us)
+
+
+@pytest.mark.parametrize("n", [10_000, 1_000_000])
+def test_bench_deck_hits_the_particle_count(n):
+    deck = bench.bench_deck(n)
+    total = sum(s.particles_per_cell * deck.box.cells for s in deck.species)
+    assert abs(total - n) <= len(deck.species) * deck.box.cells / 2
+    assert deck.box.cells == bench.CELLS
+
+
+def test_cli_json_contract(capsys):
+    status = cli_main(["bench", "--particles", "6e3", "--threads", "1", "--steps", "2",
+                       "--repeats", "1", "--no-memory", "--no-start", "--json"])
+    assert status == 0
+    out = json.loads(capsys.readouterr().out)
+    for key in CONTRACT:
+        assert key in out
+    row = out["scaling"][0]
+    assert row["particles"] == 2 * 256 * 12
+    assert row["threads"] == 1
+    assert out["roofline_fraction"] == pytest.approx(
+        out["particle_steps_per_s"] / out["roofline_particle_steps_per_s"])
+    assert out["speedup_vs_numpy"] == pytest.approx(
+        out["particle_steps_per_s"] / out["numpy_particle_steps_per_s"])
+
+
+def test_cli_rejects_bad_thread_count(capsys):
+    assert cli_main(["bench", "--threads", "0", "--no-memory", "--no-start"]) == 2
+    assert "threads" in capsys.readouterr().err
