@@ -245,6 +245,8 @@ def fig_convergence(d, path):
     fine = np.geomspace(dt.min() / 1.5, dt.max() * 1.5, 50)
     a1.loglog(fine, [2 / x * math.asin(x / 2) - 1 for x in fine], "-",
               label="leapfrog (2/Δt) asin(Δt/2) − 1")
+    from matplotlib.ticker import NullFormatter
+    a1.xaxis.set_minor_formatter(NullFormatter())
     a1.set_xlabel("ω_p Δt")
     a1.set_ylabel("frequency error / ω_p")
     a1.legend(fontsize=7)
