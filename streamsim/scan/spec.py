@@ -237,6 +237,12 @@ def _space(where: str, raw, log: bool) -> tuple:
     return tuple(float(f"{v:.12g}") for v in vals)
 
 
+def _plain(v) -> bool:
+    if isinstance(v, list):
+        return all(_plain(x) for x in v)
+    return isinstance(v, (bool, int, float, str))
+
+
 def _check_key(where: str, key: str, base_raw: dict) -> list[str]:
     """Check one axis key against the deck schema; return it with ``species.*`` expanded."""
     if key in FORBIDDEN_KEYS:
@@ -339,6 +345,9 @@ def _axis(i: int, raw, base_raw: dict) -> Axis:
                 raise ScanError(f"{where}.values[{j}]", f"= {_show(v)}: a scaled axis needs "
                                                         "numbers")
     for j, v in enumerate(values):
+        if not _plain(v):
+            raise ScanError(f"{where}.values[{j}]", f"= {_show(v)}: must be a number, a string, "
+                                                    "true/false or a list of those")
         if isinstance(v, float) and not math.isfinite(v):
             raise ScanError(f"{where}.values[{j}]", f"= {_show(v)}: must be finite")
     name = raw.get("name", written[0])
