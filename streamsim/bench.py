@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import importlib.util
 import json
+import math
 import os
 import platform
 import subprocess
@@ -84,6 +85,45 @@ def copy_seconds(xs, us, xd, ud, threads: int) -> float:
     t = time.perf_counter()
     _COPY(xs, us, xd, ud, threads, reps)
     return (time.perf_counter() - t) / reps
+
+
+def _burn_kernel():
+    import numba as nb
+
+    @nb.njit(parallel=True)
+    def burn(n, nchunks):
+        out = np.zeros(nchunks)
+        for c in nb.prange(nchunks):
+            s = 0.0
+            for j in range(n):
+                s += math.sqrt(s + j)
+            out[c] = s
+        return out
+    return burn
+
+
+def core_capacity(threads: int, n: int = 4_000_000) -> float:
+    """How many cores' worth of compute ``threads`` threads actually got just now: T times the
+    time of one thread's fixed work over the time of T threads doing T such works (T on an
+    idle machine, less when other jobs share the cores)."""
+    import numba
+    burn = _burn_kernel()
+    burn(10, 1)
+    saved = numba.get_num_threads()
+    try:
+        best = {}
+        for t in (1, threads):
+            numba.set_num_threads(t)
+            best[t] = min(_timed(lambda: burn(n, t)) for _ in range(3))
+    finally:
+        numba.set_num_threads(saved)
+    return threads * best[1] / best[threads]
+
+
+def _timed(f) -> float:
+    t = time.perf_counter()
+    f()
+    return time.perf_counter() - t
 
 
 def load_numpy_peer():
@@ -175,7 +215,16 @@ base = psutil.Process().memory_info().rss
 sim = Simulation(bench_deck(n, threads), threads)
 for _ in range(3):
     sim.advance()
-peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+def hwm():   # this process's peak RSS (VmHWM is per address space; ru_maxrss survives exec)
+    try:
+        with open("/proc/self/status") as f:
+            for line in f:
+                if line.startswith("VmHWM:"):
+                    return int(line.split()[1]) * 1024
+    except OSError:
+        pass
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
+peak = hwm()
 held = psutil.Process().memory_info().rss
 print(json.dumps({"particles": int(sum(x.size for x in sim.x)), "base": base, "peak": peak,
                   "held": held}))
@@ -234,6 +283,7 @@ def run(particles=DEFAULT_PARTICLES, threads=None, *, steps: int = 10, repeats: 
     particles = sorted(int(p) for p in particles)
     threads = sorted(int(t) for t in threads)
     scaling = []
+    capacity_before = core_capacity(threads[-1])
     for n in particles:
         for t in threads:
             # fewer steps at large N keeps the whole run within its budget
@@ -257,6 +307,8 @@ def run(particles=DEFAULT_PARTICLES, threads=None, *, steps: int = 10, repeats: 
         "headline": {"particles": head["particles"], "threads": head["threads"]},
         "cost_spread_over_n": (max(ns) / min(ns) - 1.0) if ns else None,
         "machine": machine(),
+        "core_capacity": {"threads": threads[-1], "before": capacity_before,
+                          "after": core_capacity(threads[-1])},
     }
     if memory:
         mem = memory_per_particle(min(4_000_000, max(particles)), threads[-1])
@@ -288,6 +340,10 @@ def format_table(result: dict) -> str:
                  f"{result['roofline_fraction']:.2f} of the copy roofline, "
                  + (f"{result['speedup_vs_numpy']:.1f}x the numpy peer"
                     if result.get("speedup_vs_numpy") else "no numpy peer"))
+    cap = result.get("core_capacity")
+    if cap:
+        lines.append(f"cores' worth of compute that {cap['threads']} threads got (burn test, "
+                     f"before/after): {cap['before']:.2f} / {cap['after']:.2f}")
     if result.get("cost_spread_over_n") is not None:
         lines.append(f"cost per particle-step, max/min over N - 1: {result['cost_spread_over_n']:.2f}")
     if result.get("bytes_per_particle_peak") is not None:

@@ -231,8 +231,10 @@ def _push_deposit(x, u, efield, qm_dt, dt, length, shape, nchunks, partial, sums
     # vectorise
     scr = np.zeros((nchunks, _NREG, BLOCK))
     ib = np.zeros((nchunks, BLOCK), np.uint64)
-    acc = np.zeros((nchunks, nsub * stride))
-    lanes = np.zeros((nchunks, 5))         # per-chunk running sums of the SUM_* columns
+    acc = np.zeros((nchunks, nsub * stride + 16))
+    # per-chunk running sums of the SUM_* columns; rows padded to 128 bytes and the row copies
+    # by 16 values, so that no cache line is written by two threads
+    lanes = np.zeros((nchunks, 16))
     for c in nb.prange(nchunks):
         lo = min(n, c * chunk)
         hi = min(n, lo + chunk)

@@ -21,8 +21,8 @@ def add_arguments(p) -> None:
                    help="thread counts (default: 1 .. all cores)")
     p.add_argument("--steps", type=int, default=10, metavar="S",
                    help="steps per timed batch at N <= 2e6 (fewer above; default 10)")
-    p.add_argument("--repeats", type=int, default=3, metavar="R",
-                   help="timed batches per configuration, best kept (default 3)")
+    p.add_argument("--repeats", type=int, default=5, metavar="R",
+                   help="timed batches per configuration, best kept (default 5)")
     p.add_argument("--no-memory", action="store_true", help="skip the peak-memory subprocess")
     p.add_argument("--no-start", action="store_true", help="skip the cached start-up timing")
     p.add_argument("--json", action="store_true", help="print the figures as one JSON object")
