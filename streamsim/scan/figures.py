@@ -123,15 +123,15 @@ def _line_plot(scan, rows, i, ax, column, err_column, theory_columns, ylabel):
     ys_all = [s[0] for s in stats.values()] + [v for vals, _, _ in theories for v in vals.values()]
     if ys_all and min(ys_all) > 0 and max(ys_all) / min(ys_all) > 10:
         ax.set_yscale("log")
-    if drawn:
-        ax.legend(fontsize=7)
+    if drawn:   # beside the axes: the lines often fill the whole frame
+        ax.legend(fontsize=7, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0)
     else:
         ax.text(0.5, 0.5, "no completed run has this value", ha="center", va="center",
                 transform=ax.transAxes)
 
 
 def _growth_vs_axis(scan, rows, i, folder) -> Path:
-    fig, ax = plt.subplots(figsize=(7, 4.5))
+    fig, ax = plt.subplots(figsize=(9.5, 4.5))
     _line_plot(scan, rows, i, ax, "growth_time_ns", "growth_time_err_ns",
                [("theory_growth_time_ns", "-", "theory, same box mode"),
                 ("theory_fastest_growth_time_ns", "--", "theory, fastest mode")],
@@ -141,7 +141,7 @@ def _growth_vs_axis(scan, rows, i, folder) -> Path:
 
 
 def _nu_c_vs_axis(scan, rows, i, folder) -> Path:
-    fig, ax = plt.subplots(figsize=(7, 4.5))
+    fig, ax = plt.subplots(figsize=(9.5, 4.5))
     _line_plot(scan, rows, i, ax, "nu_c_hz", None, [], "coherence cutoff nu_c (Hz)")
     gammas = sorted({r["bulk_gamma"] for r in rows if r.get("bulk_gamma") is not None})
     g = ", ".join(_fmt(v) for v in gammas) if gammas else "n/a"
