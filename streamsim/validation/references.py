@@ -82,7 +82,8 @@ def weak_beam_root(k: float, ratio: float, beta_b: float) -> complex:
 
 def weak_beam_law(ratio: float, beta_b: float) -> float:
     """gamma_max ~ (sqrt3/2^(4/3)) (n_b/n_p)^(1/3) omega_p / gamma_b for n_b << n_p (classic
-    beam-plasma result, e.g. Krall & Trivelpiece 1973; the 1/gamma_b from the gamma_b^3 mass)."""
+    cold beam-plasma result, quoted from memory; the 1/gamma_b comes from the gamma_b^3 mass).
+    tests/test_validate.py checks it as the small-n_b limit of :func:`weak_beam_root`."""
     g = 1.0 / math.sqrt(1.0 - beta_b**2)
     return WEAK_BEAM_COEFFICIENT * ratio ** (1.0 / 3.0) / g
 

@@ -91,9 +91,9 @@ def markdown(v, figures: dict, version: str) -> str:
             else:
                 dev = f"{d:+.3g}"
             why = c.why + (f" ({c.note})" if c.note else "")
-            lines.append(f"| {c.quantity} | {c.measured_text()} | {c.reference_text()} | {dev} "
-                         f"| {c.tolerance_text()} | {why} | "
-                         f"{'pass' if c.passed else '**FAIL**'} |")
+            cells = [c.quantity, c.measured_text(), c.reference_text(), dev,
+                     c.tolerance_text(), why, "pass" if c.passed else "**FAIL**"]
+            lines.append("| " + " | ".join(x.replace("|", "\\|") for x in cells) + " |")
         lines += ["", f"_{out.seconds:.1f} s._", ""]
     lines += ["## What the model leaves out", "",
               f"streamsim is 1D electrostatic along a strong field: it leaves out {LEAVES_OUT}. "
