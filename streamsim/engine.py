@@ -132,6 +132,19 @@ class Simulation:
         for s in range(len(self.names)):
             kernels.kick(self.u[s], self.x[s], self.efield, -0.5 * self.qm[s] * self.dt,
                          b.length, self.shape)
+        self.old_sums = self._half_step_sums()
+
+    def _half_step_sums(self) -> np.ndarray:
+        """(S, 2): sum (gamma - 1) and sum u over u^{n-1/2} of each species, computed directly
+        (at the start; during the run the previous push's n+1/2 sums carry over)."""
+        b = self.deck.box
+        out = np.zeros((len(self.names), 2))
+        for s in range(len(self.names)):
+            kernels.moment_sums(self.x[s], self.u[s], self.efield, 0.0, b.length, self.shape,
+                                self.nchunks, self.sums[s])
+            tot = self.sums[s].sum(axis=0)
+            out[s] = tot[kernels.SUM_KE_OLD], tot[kernels.SUM_U_OLD]
+        return out
 
     # -- fields --------------------------------------------------------------------------
     def _deposit_all(self) -> None:
@@ -170,8 +183,11 @@ class Simulation:
             new_density[s] = self.partial.sum(axis=0) * (self.weights[s] / b.dx)
         if self.sums[:, :, kernels.SUM_BAD].any():
             self._fail_particles()
+        tot = self.sums.sum(axis=1)
+        new_sums = np.stack([tot[:, kernels.SUM_KE_NEW], tot[:, kernels.SUM_U_NEW]], axis=1)
         if diag:
-            self._record_series(t, cmax, crms)
+            self._record_series(t, cmax, crms, self.old_sums, new_sums)
+        self.old_sums = new_sums
         self.density = new_density
         self._solve()
         if not np.isfinite(self.efield).all():
@@ -191,7 +207,9 @@ class Simulation:
         for s in range(len(self.names)):
             kernels.moment_sums(self.x[s], self.u[s], self.efield, self.qm[s] * self.dt, b.length,
                                 self.shape, self.nchunks, self.sums[s])
-        self._record_series(t, cmax, crms)
+        tot = self.sums.sum(axis=1)
+        new_sums = np.stack([tot[:, kernels.SUM_KE_NEW], tot[:, kernels.SUM_U_NEW]], axis=1)
+        self._record_series(t, cmax, crms, self.old_sums, new_sums)
         if self.recorder.arrays["snap_t"].size > self.recorder.counts["fields"]:
             self.recorder.snapshot(t, self.density, self.efield)
         if self.recorder.arrays["ps_t"].size > self.recorder.counts["phase"]:
@@ -199,11 +217,12 @@ class Simulation:
         self.finished = True
 
     # -- pieces --------------------------------------------------------------------------
-    def _record_series(self, t, cmax, crms) -> None:
-        tot = self.sums.sum(axis=1)                              # (S, NSUMS)
+    def _record_series(self, t, cmax, crms, old_sums, new_sums) -> None:
+        """Energies and momenta at t_n from the sums over u^{n-1/2} and u^{n+1/2} ((S, 2) each:
+        sum (gamma - 1), sum u), averaged: second order at t_n."""
         w_m = np.array(self.weights) * self.masses
-        kinetic = 0.5 * (tot[:, kernels.SUM_KE_OLD] + tot[:, kernels.SUM_KE_NEW]) * w_m
-        momentum = 0.5 * (tot[:, kernels.SUM_U_OLD] + tot[:, kernels.SUM_U_NEW]) * w_m
+        kinetic = 0.5 * (old_sums[:, 0] + new_sums[:, 0]) * w_m
+        momentum = 0.5 * (old_sums[:, 1] + new_sums[:, 1]) * w_m
         we = fields.field_energy(self.efield, self.deck.box.dx)
         modes = fields.mode_amplitudes(self.efield, self.deck.output.modes)
         self.recorder.series(t, kinetic, we, momentum, modes, cmax, crms)
@@ -258,6 +277,7 @@ class Simulation:
                 "momentum_drift_max": self.momentum_drift_max, "peak_t": self.peak_t,
                 "threads": self.threads, "rng_state": io.jsonable(self.rng_state),
                 "version": __version__, "finished": self.finished,
+                "old_sums": self.old_sums.tolist(),
                 "deck": _comparable(self.deck)}
 
     def save(self, path) -> None:
@@ -289,6 +309,7 @@ class Simulation:
         self.peak_value = ck["peak_value"]
         self.peak_t = e["peak_t"]
         self.finished = bool(e.get("finished", False))
+        restore_sums = e.get("old_sums")
         if ck["peak"] is not None:
             self.peak_x = [np.array(a) for a in ck["peak"][1]]
         if e.get("threads") != self.threads:
@@ -299,6 +320,8 @@ class Simulation:
             self._solve()
         else:
             self._deposit_all()
+        self.old_sums = (np.array(restore_sums, dtype=float) if restore_sums is not None
+                         else self._half_step_sums())
 
 
 def _comparable(deck: Deck) -> dict:

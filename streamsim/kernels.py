@@ -141,7 +141,6 @@ def _push_block(x, u, ee, qm_dt, dt, length, inv_len, inv_dx, fng, shape, b0, m,
         xj = x[j]
         uo = u[j]
         un = uo + qm_dt * scr[cc, _R_E, kk]
-        go = math.sqrt(1.0 + uo * uo)
         gn = math.sqrt(1.0 + un * un)
         r = 1.0 / (gn * (gn + 1.0))
         v = un * (gn + 1.0) * r                     # u / gamma
@@ -151,9 +150,7 @@ def _push_block(x, u, ee, qm_dt, dt, length, inv_len, inv_dx, fng, shape, b0, m,
         xn = xn - length if xn >= length else xn
         u[j] = un
         x[j] = xn
-        scr[cc, _R_KO, kk] = uo * uo / (go + 1.0)   # gamma - 1 without cancellation
-        scr[cc, _R_KN, kk] = un * un * gn * r
-        scr[cc, _R_UO, kk] = uo
+        scr[cc, _R_KN, kk] = un * un * gn * r       # gamma - 1 without cancellation
         scr[cc, _R_UN, kk] = un
         ok = (xn >= 0.0) & (xn < length)            # False for NaN
         s = 1.0 if ok else 0.0
@@ -249,7 +246,7 @@ def _push_deposit(x, u, efield, qm_dt, dt, length, shape, nchunks, partial, sums
             else:
                 _push_block(x, u, ee, qm_dt, dt, length, inv_len, inv_dx, fng, 2, b0, m, c, scr, ib)
                 _scatter_block(m, c, scr, ib, acc, nsub, stride, 2)
-            for q in range(5):
+            for q in (SUM_KE_NEW, SUM_U_NEW, SUM_BAD):   # the n-1/2 side is the caller's
                 lanes[c, q] += _block_sum(scr, c, q + 1, m)
         # fold the row copies and the ghost nodes into the chunk's row of ``partial``
         for t in range(ng):
@@ -271,9 +268,11 @@ def push_deposit(x, u, efield, qm_dt, dt, length, shape, nchunks, partial, sums)
     x, u: positions in [0, L) and momenta u^{n-1/2}; updated in place to x^{n+1}, u^{n+1/2}.
     efield: E^n on the N nodes. qm_dt: (q/m) dt. partial: (nchunks, N) overwritten here with the
     shape-weight sums of each chunk (number of macro-particles per node, not yet divided by dx).
-    sums: (nchunks, NSUMS) receives sum (gamma-1) and sum u at n-1/2 and n+1/2, and the count of
-    particles whose position is not finite after the push (stored as they are, so that the caller
-    can say which, and deposited nowhere).
+    sums: (nchunks, NSUMS) receives sum (gamma-1) and sum u at n+1/2 (columns SUM_KE_NEW,
+    SUM_U_NEW), and the count of particles whose position is not finite after the push (stored
+    as they are, so that the caller can say which, and deposited nowhere). The n-1/2 columns
+    (SUM_KE_OLD, SUM_U_OLD) are left at zero: they are the previous step's n+1/2 sums, which the
+    caller keeps, so the push spends one square root per particle, not two.
 
     Particles are split into ``nchunks`` fixed contiguous chunks; each chunk is pushed in blocks
     of BLOCK particles by one thread into its own row. The chunking alone fixes every bit of the
