@@ -236,9 +236,13 @@ class Simulation:
             self.energy_err_max = max(self.energy_err_max, abs(total - self.energy0) / abs(self.energy0))
         self.momentum_drift_max = max(self.momentum_drift_max, abs(momentum.sum() - self.momentum0))
 
+    #: the peak snapshot is retaken only when the contrast beats it by this factor: during
+    #: exponential growth that skips most copies, and the snapshot stays within 2% of the maximum
+    PEAK_RETAKE = 1.02
+
     def _track_peak(self, t, cmax) -> None:
         value = float(cmax[:-1].max())
-        if value > self.peak_value:
+        if value > self.peak_value * self.PEAK_RETAKE or self.peak_t is None:
             self.peak_value = value
             self.peak_t = t
             for dst, src in zip(self.peak_x, self.x):
