@@ -550,25 +550,31 @@ def apply_overrides(raw: dict, overrides: list[str]) -> dict:
 # --------------------------------------------------------------------------------------------
 # Loading
 # --------------------------------------------------------------------------------------------
-def read_toml(path: str | Path) -> dict:
-    """Read a TOML file; a syntax error becomes a DeckError with line and column."""
+def read_toml_file(path: str | Path, kind: str = "deck", error=DeckError) -> tuple[dict, str]:
+    """(data, text) of a TOML file; any failure becomes ``error(path, message)``, a syntax error
+    with its line and column. ``kind`` names the file in messages ("deck", "scan file")."""
     path = Path(path)
     try:
         text = path.read_text(encoding="utf-8")
     except FileNotFoundError:
-        raise DeckError(str(path), "no such deck file") from None
+        raise error(str(path), f"no such {kind}") from None
     except IsADirectoryError:
-        raise DeckError(str(path), "is a folder, not a deck file") from None
+        raise error(str(path), f"is a folder, not a {kind}") from None
     except (OSError, UnicodeDecodeError) as ex:
-        raise DeckError(str(path), f"cannot read the deck ({ex.__class__.__name__}: {ex})") from None
+        raise error(str(path), f"cannot read the {kind} ({ex.__class__.__name__}: {ex})") from None
     try:
-        return tomllib.loads(text)
+        return tomllib.loads(text), text
     except tomllib.TOMLDecodeError as ex:
         line = getattr(ex, "lineno", None)
         col = getattr(ex, "colno", None)
         msg = getattr(ex, "msg", str(ex))
         where = f"line {line}, column {col}" if line else "unknown position"
-        raise DeckError(str(path), f"not valid TOML at {where}: {msg}") from None
+        raise error(str(path), f"not valid TOML at {where}: {msg}") from None
+
+
+def read_toml(path: str | Path) -> dict:
+    """Read a deck file; a syntax error becomes a DeckError with line and column."""
+    return read_toml_file(path, "deck file")[0]
 
 
 def load_deck(source: str | Path | dict | Deck | None = None, overrides: list[str] | None = None) -> Deck:

@@ -11,7 +11,6 @@
 from __future__ import annotations
 
 import io
-import math
 import re
 from pathlib import Path
 

@@ -16,7 +16,6 @@ worker process never overlap.
 """
 from __future__ import annotations
 
-import json
 import logging
 import os
 import signal
@@ -26,10 +25,9 @@ import time
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from .spec import Point, Scan, ScanError, load_scan
+from .spec import Point, Scan, load_scan
 from .tables import collect_rows, run_folder, write_tables
-from .worker import (POINT_FILE, cores_available, init_pool_worker, read_state, run_point,
-                     write_failure)
+from .worker import cores_available, init_pool_worker, read_state, run_point, write_failure
 
 __all__ = ["ScanResult", "run_scan", "default_out", "ScanSetupError", "SchedulerError"]
 

@@ -37,7 +37,7 @@ from pathlib import Path
 from typing import Any
 
 from .. import deck as _deck
-from ..deck import Deck, DeckError, apply_overrides, load_deck, parse_override
+from ..deck import Deck, DeckError, apply_overrides, load_deck, parse_override, read_toml_file
 
 __all__ = ["ScanError", "Axis", "Point", "Scan", "load_scan", "deck_hash", "FORBIDDEN_KEYS"]
 
@@ -181,22 +181,7 @@ def _raw_hash(raw: dict) -> str:
 
 
 def _read(path: Path) -> tuple[dict, str]:
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise ScanError(str(path), "no such scan file") from None
-    except IsADirectoryError:
-        raise ScanError(str(path), "is a folder, not a scan file") from None
-    except (OSError, UnicodeDecodeError) as ex:
-        raise ScanError(str(path), f"cannot read the scan file ({ex.__class__.__name__}: {ex})") \
-            from None
-    try:
-        return tomllib.loads(text), text
-    except tomllib.TOMLDecodeError as ex:
-        line, col = getattr(ex, "lineno", None), getattr(ex, "colno", None)
-        msg = getattr(ex, "msg", str(ex))
-        where = f" at line {line}, column {col}" if line else ""
-        raise ScanError(str(path), f"not valid TOML{where}: {msg}") from None
+    return read_toml_file(path, "scan file", ScanError)
 
 
 def _number(where: str, v, *, positive=False) -> float:
