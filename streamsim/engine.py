@@ -236,13 +236,17 @@ class Simulation:
             self.energy_err_max = max(self.energy_err_max, abs(total - self.energy0) / abs(self.energy0))
         self.momentum_drift_max = max(self.momentum_drift_max, abs(momentum.sum() - self.momentum0))
 
-    #: the peak snapshot is retaken only when the contrast beats it by this factor: during
-    #: exponential growth that skips most copies, and the snapshot stays within 2% of the maximum
-    PEAK_RETAKE = 1.02
+    #: below this delta n/n (linear growth, where a snapshot is rarely the one kept) the peak
+    #: snapshot is retaken only when the contrast beats it by PEAK_RETAKE, which skips most full
+    #: copies of the positions; above it every new maximum is taken, so the snapshot is at the
+    #: maximum itself
+    PEAK_EXACT_ABOVE = 0.1
+    PEAK_RETAKE = 1.05
 
     def _track_peak(self, t, cmax) -> None:
         value = float(cmax[:-1].max())
-        if value > self.peak_value * self.PEAK_RETAKE or self.peak_t is None:
+        if self.peak_t is None or value > self.peak_value * (
+                1.0 if value >= self.PEAK_EXACT_ABOVE else self.PEAK_RETAKE):
             self.peak_value = value
             self.peak_t = t
             for dst, src in zip(self.peak_x, self.x):
