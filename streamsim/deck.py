@@ -465,7 +465,9 @@ def _validate(raw: dict) -> Deck:
     o = sec["output"]
     title = top["title"]
     folder = o["folder"] or str(Path("runs") / "out" / _slug(title))
-    diag = o["diagnostics_every"] or max(dt, t["end"] / 4000.0)
+    # default: 0.1/omega_p (ten samples per e-fold at growth omega_p, ~60 per plasma period),
+    # more often for short runs, never more than once a step
+    diag = o["diagnostics_every"] or max(dt, min(0.1, t["end"] / 200.0))
     fields_every = o["fields_every"] or t["end"] / 20.0
     ps_every = o["phase_space_every"] or t["end"] / 8.0
     if time.dt_auto:  # the user did not choose dt, so a cadence below it means "every step"

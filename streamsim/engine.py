@@ -241,7 +241,7 @@ class Simulation:
     #: copies of the positions; above it every new maximum is taken, so the snapshot is at the
     #: maximum itself
     PEAK_EXACT_ABOVE = 0.1
-    PEAK_RETAKE = 1.05
+    PEAK_RETAKE = 2.0
 
     def _track_peak(self, t, cmax) -> None:
         value = float(cmax[:-1].max())
