@@ -43,7 +43,7 @@ def main(args) -> int:
     print(v.table())
     n, bad = len(v.checks), len(v.failed)
     print(f"\n{n - bad}/{n} checks pass in {v.seconds:.0f} s"
-          + ("" if not bad else f"; FAILED: " + "; ".join(f"{c.problem}: {c.quantity}"
+          + ("" if not bad else "; FAILED: " + "; ".join(f"{c.problem}: {c.quantity}"
                                                          for c in v.failed)))
     try:
         path = v.write_report(args.report)

@@ -16,7 +16,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
 
-from .checks import Check, table_csv, table_markdown, table_text
+from .checks import Check, table_text
 from .problems import LEVELS, PROBLEM_KEYS, PROBLEMS, Outcome, Problem, Runner, run_problem
 
 __all__ = ["run_validation", "Validation", "Check", "PROBLEMS", "PROBLEM_KEYS", "LEVELS"]
