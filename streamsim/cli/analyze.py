@@ -5,7 +5,7 @@ import json
 import math
 import sys
 
-from streamsim.cli.common import error, read_run_folder
+from streamsim.cli.common import error, output_failure, read_run_folder
 
 HELP = "analyse a run folder again: growth fits, density contrast, clumps, coherence cutoff"
 
@@ -38,7 +38,6 @@ def _check(args) -> str | None:
 
 
 def main(args) -> int:
-    from streamsim import io
     bad = _check(args)
     if bad:
         error("argument", bad)
@@ -52,12 +51,8 @@ def main(args) -> int:
                          clump_threshold=args.clump_threshold,
                          coherence_drop=args.coherence_drop, write=True,
                          figures=not args.no_figures)
-    except io.OutputError as ex:
-        error("output", str(ex))
-        return 4
     except OSError as ex:
-        error("output", f"{folder}: {ex.strerror or ex}")
-        return 4
+        return output_failure(ex, folder)
     except ValueError as ex:
         error("argument", str(ex))
         return 2

@@ -49,3 +49,10 @@ def read_run_folder(path):
     except (OSError, KeyError, ValueError) as ex:
         error("run", f"{folder}: cannot read the run ({ex})")
         return folder, None
+
+
+def output_failure(ex: OSError, folder) -> int:
+    """Print one line for a failed write or read of a run folder; the exit status 4."""
+    from streamsim.io import OutputError
+    error("output", str(ex) if isinstance(ex, OutputError) else f"{folder}: {ex.strerror or ex}")
+    return 4

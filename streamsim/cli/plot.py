@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import json
 
-from streamsim.cli.common import error, read_run_folder
+from streamsim.cli.common import output_failure, read_run_folder
 
 HELP = "redraw the figures of a run folder into RUN_DIR/figures/"
 
@@ -34,12 +34,8 @@ def main(args) -> int:
             blocks, _ = compute(data)
         from streamsim.plots import make_figures
         paths = make_figures(data, blocks, folder)
-    except io.OutputError as ex:
-        error("output", str(ex))
-        return 4
     except OSError as ex:
-        error("output", f"{folder}: {ex.strerror or ex}")
-        return 4
+        return output_failure(ex, folder)
     for p in paths:
         print(p)
     return 0
