@@ -399,7 +399,10 @@ def _validate(raw: dict) -> Deck:
         raise DeckError("", "a deck must be a TOML table")
     for key in raw:
         if key not in _ALL_TOP:
-            raise DeckError(key, _did_you_mean(key, _ALL_TOP))
+            hint = ""
+            if "axis" in raw or "base" in raw:
+                hint = " (this looks like a scan file: run it with `streamsim scan`)"
+            raise DeckError(key, _did_you_mean(key, _ALL_TOP) + hint)
     top = _table("", {k: v for k, v in raw.items() if k in _TOP}, _TOP)
     sec = {name: _table(name, raw.get(name), schema) for name, schema in _SECTIONS.items()}
 

@@ -243,3 +243,17 @@ def test_mutated_decks_name_the_key(case):
     line = str(info.value)
     assert "\n" not in line
     assert line.startswith(key), (line, key)
+
+
+def test_scan_file_given_as_deck_says_so(tmp_path, capsys):
+    rc = main(["run", "runs/density-scan.toml", "--quiet", "--out", str(tmp_path / "o")])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert rc == 2 and len(err) == 1 and "looks like a scan file" in err[0]
+
+
+def test_negative_threads_and_nothing_to_resume(tmp_path, capsys):
+    assert main(["run", "--quiet", "--out", str(tmp_path / "o"), "--threads", "-3"]) == 2
+    assert "--threads must be >= 0" in capsys.readouterr().err
+    assert main(["run", "--quiet", "--resume", str(tmp_path / "none")]) == 4
+    assert "nothing to resume" in capsys.readouterr().err
+    assert not (tmp_path / "o").exists()

@@ -27,10 +27,16 @@ def add_arguments(p) -> None:
 
 def main(args) -> int:
     from streamsim import io
+    if args.threads is not None and args.threads < 0:
+        error("argument", f"--threads must be >= 0 (0 = all cores), got {args.threads}")
+        return 2
     folder = args.out
     deck_src = args.deck
     if isinstance(args.resume, str):
         folder = args.resume
+        if not (Path(folder) / io.FILES["checkpoint"]).is_file():
+            error("output", f"nothing to resume: {folder} holds no {io.FILES['checkpoint']}")
+            return 4
         if deck_src is None:
             deck_src = str(Path(args.resume) / io.FILES["deck"])
     try:

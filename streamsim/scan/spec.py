@@ -368,6 +368,8 @@ def _validate(raw: dict, path, here: Path, text: str, cli_set: list[str], resolv
     for k in raw:
         if k not in _TOP_KEYS:
             hint = " (axes are written [[axis]])" if k in ("axes", "axis_") else ""
+            if "species" in raw or "box" in raw:
+                hint = " (this looks like a deck: run it with `streamsim run`, or name it as the scan's base)"
             raise ScanError(k, _did_you_mean(k, _TOP_KEYS) + hint)
     title = raw.get("title", path.stem if path else "scan")
     if not isinstance(title, str) or not title.strip():
