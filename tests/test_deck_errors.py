@@ -5,6 +5,7 @@ import copy
 import subprocess
 import sys
 import tomllib
+from pathlib import Path
 
 import pytest
 import tomli_w
@@ -246,7 +247,8 @@ def test_mutated_decks_name_the_key(case):
 
 
 def test_scan_file_given_as_deck_says_so(tmp_path, capsys):
-    rc = main(["run", "runs/density-scan.toml", "--quiet", "--out", str(tmp_path / "o")])
+    scan = Path(__file__).resolve().parents[1] / "runs" / "density-scan.toml"
+    rc = main(["run", str(scan), "--quiet", "--out", str(tmp_path / "o")])
     err = capsys.readouterr().err.strip().splitlines()
     assert rc == 2 and len(err) == 1 and "looks like a scan file" in err[0]
 
