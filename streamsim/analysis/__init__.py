@@ -23,6 +23,7 @@ from . import clumps as _cl
 from . import coherence as _co
 from . import contrast as _ct
 from . import growth as _gr
+from . import oscillation as _os
 from .output import atomic_write_text, jsonable, write_csv, write_h5
 
 __all__ = ["analyze", "human_summary", "compute", "write_outputs"]
@@ -215,7 +216,7 @@ def compute(data, *, bulk_gamma=None, clump_threshold=None, coherence_drop=None,
     clumps, cl_tables = _clump_blocks(data, thr)
     coh, co_tables = _coherence_blocks(data, drop, bulk, kmf, max_particles)
     blocks = {"growth": head, "modes": modes, "field_energy_growth": fe, "contrast": contrast,
-              "clumps": clumps, "coherence": coh,
+              "clumps": clumps, "coherence": coh, "oscillation": _os.oscillation_block(data),
               "analysis_options": {"bulk_gamma": bulk, "clump_threshold": thr,
                                    "coherence_drop": drop, "coherence_kmax_factor": kmf,
                                    "max_particles": max_particles}}
@@ -383,6 +384,16 @@ def human_summary(blocks: dict, density_cm3: float) -> str:
         th = f" (theory 2*gamma = {_f(fe['theory'])})" if fe.get("theory") else ""
         lines.append(f"field energy grows at {_f(fe['measured'])} +- "
                      f"{_f(fe.get('measured_err'), '.2g')} w_p{th}")
+    for o in blocks.get("oscillation") or []:
+        if o.get("omega_r") is None:
+            lines.append(f"seeded mode {o['mode']}: {o.get('note', 'no oscillation to fit')}")
+            continue
+        th = (f" vs {o['theory_model']} root {_f(o['theory_omega_r'], '.4f')} "
+              f"{'+' if o['theory_rate'] >= 0 else '-'} {_f(abs(o['theory_rate']), '.4f')}i"
+              if o.get("theory_omega_r") is not None else "")
+        lines.append(f"seeded mode {o['mode']} (k = {_f(o['k'])} w_p/c) rings at "
+                     f"{_f(o['omega_r'], '.4f')} +- {_f(o.get('omega_r_err'), '.1g')} w_p, "
+                     f"rate {_f(o['rate'], '.4f')} +- {_f(o.get('rate_err'), '.1g')} w_p{th}")
     n_fit = sum(1 for r in blocks.get("modes") or [] if r.get("measured") is not None)
     n_all = len(blocks.get("modes") or [])
     if n_all:
