@@ -17,7 +17,7 @@ import numpy as np
 
 from .. import units
 from .spec import Scan
-from .worker import ERROR_FILE, read_state
+from .worker import ERROR_FILE, _read_json, read_state
 
 __all__ = ["METRICS", "RUN_COLUMNS", "collect_rows", "write_tables", "run_folder"]
 
@@ -104,14 +104,6 @@ def metrics_from_summary(s: dict) -> dict:
         "energy_error_max": _num(_get(s, "energy", "relative_error_max")),
         "wall_s": _num(s.get("wall_s")),
     }
-
-
-def _read_json(path: Path) -> dict | None:
-    try:
-        d = json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        return None
-    return d if isinstance(d, dict) else None
 
 
 def collect_rows(scan: Scan, out: Path) -> list[dict]:

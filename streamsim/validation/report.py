@@ -137,17 +137,30 @@ def fig_oscillation(d, path):
     _save(fig, path)
 
 
-def fig_langmuir(d, path):
+def _compare(path, curves, points, xlabel, ylabel, *, scale=1.0, log=False, vline=None,
+             ylim0=False):
+    """One figure: reference curves [(x, y, style, label)] and the measured points (x, y, err)."""
     plt = _plt()
     fig, ax = plt.subplots(figsize=(6, 4))
-    ax.plot(d["k"], d["bohm_gross"], "-", label="Bohm–Gross √(1+3k²λ_D²)")
-    ax.plot(d["k"], d["maxwellian"], "--", label="Maxwellian root (wofz)")
-    x, y, e = _points(d["points"], "k_lambda", "omega")
-    ax.errorbar(x, y, yerr=e, fmt="o", ms=5, label="streamsim")
-    ax.set_xlabel("k λ_D")
-    ax.set_ylabel("ω / ω_p")
+    draw = ax.loglog if log else ax.plot
+    for x, y, style, label in curves:
+        draw(x, np.asarray(y, float) / scale, style, label=label)
+    x, y, e = points
+    ax.errorbar(x, y / scale, yerr=e / scale, fmt="o", ms=5, label="streamsim")
+    if vline is not None:
+        ax.axvline(vline, ls=":", lw=0.8)
+    ax.set_xlabel(xlabel)
+    ax.set_ylabel(ylabel)
+    if ylim0:
+        ax.set_ylim(bottom=0)
     ax.legend(fontsize=8)
     _save(fig, path)
+
+
+def fig_langmuir(d, path):
+    _compare(path, [(d["k"], d["bohm_gross"], "-", "Bohm–Gross √(1+3k²λ_D²)"),
+                    (d["k"], d["maxwellian"], "--", "Maxwellian root (wofz)")],
+             _points(d["points"], "k_lambda", "omega"), "k λ_D", "ω / ω_p")
 
 
 def fig_landau(d, path):
@@ -169,55 +182,25 @@ def fig_landau(d, path):
 
 
 def fig_two_stream(d, path):
-    plt = _plt()
-    fig, ax = plt.subplots(figsize=(6, 4))
-    ax.plot(d["x"], np.array(d["curve"]) / d["omega_b"], "-", label="cold root")
-    x, y, e = _points(d["points"], "x")
-    ax.errorbar(x, y / d["omega_b"], yerr=e / d["omega_b"], fmt="o", label="streamsim")
-    ax.axvline(math.sqrt(3) / 2, ls=":", lw=0.8)
-    ax.set_xlabel("k v₀ / ω_b")
-    ax.set_ylabel("growth / ω_b")
-    ax.legend(fontsize=8)
-    _save(fig, path)
+    _compare(path, [(d["x"], d["curve"], "-", "cold root")], _points(d["points"], "x"),
+             "k v₀ / ω_b", "growth / ω_b", scale=d["omega_b"], vline=math.sqrt(3) / 2)
 
 
 def fig_weak_beam(d, path):
-    plt = _plt()
-    fig, ax = plt.subplots(figsize=(6, 4))
-    ax.loglog(d["ratio"], d["law"], "-", label="(√3/2^{4/3})(n_b/n_p)^{1/3}/γ_b")
-    ax.loglog(d["ratio"], d["root"], "--", label="exact cold root at k v_b = ω_p")
-    x, y, e = _points(d["points"], "ratio")
-    ax.errorbar(x, y, yerr=e, fmt="o", label="streamsim")
-    ax.set_xlabel("n_b / n_p")
-    ax.set_ylabel("growth / ω_p")
-    ax.legend(fontsize=8)
-    _save(fig, path)
+    _compare(path, [(d["ratio"], d["law"], "-", "(√3/2^{4/3})(n_b/n_p)^{1/3}/γ_b"),
+                    (d["ratio"], d["root"], "--", "exact cold root at k v_b = ω_p")],
+             _points(d["points"], "ratio"), "n_b / n_p", "growth / ω_p", log=True)
 
 
 def fig_relativistic(d, path):
-    plt = _plt()
-    fig, ax = plt.subplots(figsize=(6, 4))
-    ax.loglog(d["gamma0"], d["law"], "-", label="ω_b/2 ∝ γ₀^{-3/2}")
-    x, y, e = _points(d["points"], "gamma0")
-    ax.errorbar(x, y, yerr=e, fmt="o", label="streamsim")
-    ax.set_xlabel("γ₀")
-    ax.set_ylabel("max growth / ω_p")
-    ax.legend(fontsize=8)
-    _save(fig, path)
+    _compare(path, [(d["gamma0"], d["law"], "-", "ω_b/2 ∝ γ₀^{-3/2}")],
+             _points(d["points"], "gamma0"), "γ₀", "max growth / ω_p", log=True)
 
 
 def fig_warm(d, path):
-    plt = _plt()
-    fig, ax = plt.subplots(figsize=(6, 4))
-    ax.plot(d["k"], d["curve"], "-", label="Jüttner kinetic root (quad)")
-    ax.plot(d["k"], d["cold"], ":", label="cold root (same drift)")
-    x, y, e = _points(d["points"], "k")
-    ax.errorbar(x, y, yerr=e, fmt="o", label="streamsim")
-    ax.set_xlabel("k [ω_p/c]")
-    ax.set_ylabel("growth / ω_p")
-    ax.set_ylim(bottom=0)
-    ax.legend(fontsize=8)
-    _save(fig, path)
+    _compare(path, [(d["k"], d["curve"], "-", "Jüttner kinetic root (quad)"),
+                    (d["k"], d["cold"], ":", "cold root (same drift)")],
+             _points(d["points"], "k"), "k [ω_p/c]", "growth / ω_p", ylim0=True)
 
 
 def fig_conservation(d, path):
