@@ -8,7 +8,7 @@ Public API (thin over the rooms of the package)::
 """
 from __future__ import annotations
 
-__version__ = "0.1.0"
+from ._version import __version__  # noqa: E402
 
 from .deck import Deck, DeckError, load_deck  # noqa: E402
 

@@ -19,7 +19,8 @@ from pathlib import Path
 
 import numpy as np
 
-from . import __version__, fields, io, kernels, loading, units
+from . import fields, io, kernels, loading, units
+from ._version import __version__
 from .deck import Deck, DeckError, load_deck
 from .health import check_deck
 from .diagnostics import Cadence, Recorder, contrast

@@ -28,7 +28,8 @@ from pathlib import Path
 import h5py
 import numpy as np
 
-from . import __version__, units
+from . import units
+from ._version import __version__
 from .rundata import DensitySnapshots, ParticleSnapshot, PhaseSpace, RunData, TimeSeries
 
 FILES = {"deck": "deck.toml", "summary": "summary.json", "theory": "theory.json",
@@ -122,6 +123,27 @@ def jsonable(obj):
     if isinstance(obj, Path):
         return str(obj)
     return obj
+
+
+def save_figure(fig, path: str | Path, dpi: int = 110) -> Path:
+    """Save a matplotlib figure as PNG atomically (rendered in memory, then
+    :func:`atomic_path`), and close it. The one figure writer of the package."""
+    import io as _bio
+
+    import matplotlib.pyplot as plt
+    buf = _bio.BytesIO()
+    try:
+        fig.tight_layout()
+    except (ValueError, RuntimeError):  # a layout that cannot be tightened is still drawn
+        pass
+    fig.savefig(buf, format="png", dpi=dpi)
+    plt.close(fig)
+    path = Path(path)
+    with atomic_path(path) as tmp:
+        with open(tmp, "wb") as fh:
+            fh.write(buf.getvalue())
+            fh.flush()
+    return path
 
 
 def write_json(path: str | Path, data: dict) -> None:
