@@ -14,8 +14,8 @@ from .deck import Deck, DeckError, load_deck  # noqa: E402
 
 
 def run(deck, **kwargs):
-    """Run a deck (a Deck, a path, a dict or None for the default); see :func:`streamsim.engine.run`."""
-    from .engine import run as _run
+    """Run a deck (a Deck, a path, a dict or None for the default); see :func:`streamsim.pipeline.run`."""
+    from .pipeline import run as _run
     return _run(deck, **kwargs)
 
 

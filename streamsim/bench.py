@@ -9,7 +9,7 @@ so that ratios hold on a noisy shared machine; each figure is the best of its re
   cadence), after warm-up steps. Reported in particle-steps/s.
 - roofline: copy bandwidth (parallel, same threads) on two arrays of the particle arrays'
   size, converted at 32 bytes per particle-step (x and u as float64, read and written).
-- peer: ``analysis/numpy_peer.py``, the same step in plain vectorised numpy, on copies of the
+- peer: :mod:`streamsim.numpy_peer`, the same step in plain vectorised numpy, on copies of the
   same particles.
 - memory: peak resident bytes per particle of a run, measured in a fresh subprocess.
 - cached start: wall time of a fresh ``python -c "import streamsim; streamsim.run(...)"``
@@ -17,7 +17,6 @@ so that ratios hold on a noisy shared machine; each figure is the best of its re
 """
 from __future__ import annotations
 
-import importlib.util
 import json
 import math
 import os
@@ -127,28 +126,39 @@ def _timed(f) -> float:
 
 
 def load_numpy_peer():
-    """The NumpyPeer class from analysis/numpy_peer.py of the checkout, or None."""
-    path = Path(__file__).resolve().parents[1] / "analysis" / "numpy_peer.py"
-    if not path.exists():
-        return None
-    spec = importlib.util.spec_from_file_location("streamsim_numpy_peer", path)
-    mod = importlib.util.module_from_spec(spec)
-    spec.loader.exec_module(mod)
-    return mod.NumpyPeer
+    """The NumpyPeer class (:mod:`streamsim.numpy_peer`)."""
+    from .numpy_peer import NumpyPeer
+    return NumpyPeer
 
 
 def measure(particles: int, threads: int, *, steps: int = 10, repeats: int = 3,
             warmup: int = 3, peer: bool = True, peer_steps: int = 2) -> dict:
     """Engine, kernel-only, roofline and peer rates for one N and thread count."""
     from . import kernels
+    from .diagnostics import standard_handlers
     from .engine import Simulation
     deck = bench_deck(particles, threads)
     t0 = time.perf_counter()
     sim = Simulation(deck, threads)
+    handlers = standard_handlers(sim)   # the recording a run does, at the deck's cadences
     setup = time.perf_counter() - t0
     n = int(sum(x.size for x in sim.x))
-    for _ in range(warmup):
+
+    def step():
+        k = sim.step % sim.steps    # the handlers' arrays hold one run: wrap the step count
+        for h in handlers:
+            h.before(sim, k)
         sim.advance()
+        for h in handlers:
+            h.after(sim, k)
+        if sim.step >= sim.steps:
+            sim.step = 0
+            for h in handlers:
+                if hasattr(h, "count"):
+                    h.count = 0
+
+    for _ in range(warmup):
+        step()
     xs = np.concatenate(sim.x)
     us = np.concatenate(sim.u)
     xd = np.empty_like(xs)
@@ -159,7 +169,7 @@ def measure(particles: int, threads: int, *, steps: int = 10, repeats: int = 3,
     for _ in range(repeats):
         t = time.perf_counter()
         for _ in range(steps):
-            sim.advance()
+            step()
         best_step = min(best_step, (time.perf_counter() - t) / steps)
         for _ in range(3):
             best_copy = min(best_copy, copy_seconds(xs, us, xd, ud, sim.threads))
@@ -172,7 +182,7 @@ def measure(particles: int, threads: int, *, steps: int = 10, repeats: int = 3,
         best_kernel = min(best_kernel, time.perf_counter() - t)
     out = {
         "particles": n, "threads": sim.threads, "cells": b.cells, "shape": b.shape,
-        "diagnostics_every_steps": sim.cadence.diag,
+        "diagnostics_every_steps": handlers[-1].every,
         "setup_s": setup,
         "step_s": best_step,
         "particle_steps_per_s": n / best_step,

@@ -1,21 +1,35 @@
-"""What is recorded during a run, and at which cadence.
+"""What is recorded during a run, and at which cadence: the cadenced handlers of the time loop.
 
-Cadences are whole numbers of steps derived from the deck's ``output.*_every`` (in 1/omega_p).
-The recorder keeps preallocated arrays, so a run's memory for diagnostics is fixed at the start,
-and it can be saved into and restored from a checkpoint exactly.
+A handler is a small object with a cadence (``every``, in steps; 0 = never) and up to three calls:
+
+- ``before(sim, n)``: at the top of step n, where the state holds x^n, u^{n-1/2}, the densities
+  n^n and E^n;
+- ``after(sim, n)``: once step n is done; ``sim.prev_density`` / ``sim.prev_efield`` are n^n and
+  E^n, ``sim.old_sums`` / ``sim.new_sums`` the kinetic-energy and momentum sums over u^{n-1/2}
+  and u^{n+1/2};
+- ``finish(sim)``: the last time level t_N (no particle moves).
+
+Handlers that hold data say so with ``state()`` / ``restore()`` (arrays, exact in a checkpoint)
+and ``meta()`` / ``restore_meta()`` (JSON). Arrays are preallocated, so a run's memory for
+diagnostics is fixed at the start. Adding a recorded quantity is one handler (here, or in its
+own module) and one line in :func:`standard_handlers`.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+import math
 
 import numpy as np
 
-from .rundata import DensitySnapshots, PhaseSpace, TimeSeries
+from . import fields
+from .rundata import DensitySnapshots, ParticleSnapshot, PhaseSpace, TimeSeries
+
+__all__ = ["Handler", "SeriesRecorder", "FieldSnapshots", "PhaseSpaceSampler", "PeakSnapshot",
+           "stride", "record_steps", "contrast", "standard_handlers"]
 
 
-def stride(every: float, dt: float) -> int:
-    """Steps between two records for a cadence ``every`` (>= 1)."""
-    return max(1, int(round(every / dt)))
+def stride(interval: float, dt: float) -> int:
+    """Steps between two records for a cadence ``interval`` in 1/omega_p (>= 1)."""
+    return max(1, int(round(interval / dt)))
 
 
 def record_steps(steps: int, every: int) -> int:
@@ -35,98 +49,253 @@ def contrast(density: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return dn.max(axis=1), np.sqrt(np.mean(dn * dn, axis=1))
 
 
-@dataclass
-class Cadence:
-    diag: int
-    fields: int
-    phase: int
-    checkpoint: int   # 0 = none
+class Handler:
+    """Base of the cadenced handlers; subclasses override what they use."""
+    name = "handler"
+    every = 0
 
-    @classmethod
-    def from_deck(cls, deck) -> "Cadence":
-        o, dt = deck.output, deck.time.dt
-        ck = stride(o.checkpoint_every, dt) if o.checkpoint_every > 0 else 0
-        return cls(stride(o.diagnostics_every, dt), stride(o.fields_every, dt),
-                   stride(o.phase_space_every, dt), ck)
+    def due(self, n: int) -> bool:
+        return bool(self.every) and n % self.every == 0
+
+    def before(self, sim, n: int) -> None:
+        pass
+
+    def after(self, sim, n: int) -> None:
+        pass
+
+    def finish(self, sim) -> None:
+        pass
+
+    def state(self) -> dict[str, np.ndarray]:
+        return {}
+
+    def restore(self, arrays: dict[str, np.ndarray]) -> None:
+        pass
+
+    def meta(self) -> dict:
+        return {}
+
+    def restore_meta(self, meta: dict) -> None:
+        pass
 
 
-class Recorder:
-    """Preallocated time series, density snapshots and phase-space samples."""
+class _Arrays(Handler):
+    """A handler that fills preallocated arrays row by row."""
 
-    SERIES = ("t", "kinetic", "field_energy", "momentum", "mode_amplitude", "contrast_max",
-              "contrast_rms")
+    def __init__(self):
+        self.arrays: dict[str, np.ndarray] = {}
+        self.count = 0
 
-    def __init__(self, deck, steps: int, cadence: Cadence, n_sub: list[int]):
-        S, N, M = len(deck.species), deck.box.cells, deck.output.modes
-        nd = record_steps(steps, cadence.diag)
-        nf = record_steps(steps, cadence.fields)
-        npz = record_steps(steps, cadence.phase)
-        self.names = [s.name for s in deck.species]
-        self.arrays = {
-            "t": np.zeros(nd), "kinetic": np.zeros((nd, S)), "field_energy": np.zeros(nd),
-            "momentum": np.zeros((nd, S)), "mode_amplitude": np.zeros((nd, M), complex),
-            "contrast_max": np.zeros((nd, S + 1)), "contrast_rms": np.zeros((nd, S + 1)),
-            "snap_t": np.zeros(nf), "snap_density": np.zeros((nf, S, N)), "snap_efield": np.zeros((nf, N)),
-            "ps_t": np.zeros(npz),
-        }
-        for name, k in zip(self.names, n_sub):
-            self.arrays[f"ps_x/{name}"] = np.zeros((npz, k))
-            self.arrays[f"ps_u/{name}"] = np.zeros((npz, k))
-        self.counts = {"diag": 0, "fields": 0, "phase": 0}
+    def _put(self, values: dict) -> None:
+        i = self.count
+        for k, v in values.items():
+            self.arrays[k][i] = v
+        self.count = i + 1
 
-    # -- recording ------------------------------------------------------------------------
-    def series(self, t, kinetic, field_energy, momentum, modes, cmax, crms) -> None:
-        i = self.counts["diag"]
-        a = self.arrays
-        a["t"][i] = t
-        a["kinetic"][i] = kinetic
-        a["field_energy"][i] = field_energy
-        a["momentum"][i] = momentum
-        a["mode_amplitude"][i] = modes
-        a["contrast_max"][i] = cmax
-        a["contrast_rms"][i] = crms
-        self.counts["diag"] = i + 1
+    def state(self):
+        return {**self.arrays, "count": np.array(self.count)}
 
-    def snapshot(self, t, density, efield) -> None:
-        i = self.counts["fields"]
-        self.arrays["snap_t"][i] = t
-        self.arrays["snap_density"][i] = density
-        self.arrays["snap_efield"][i] = efield
-        self.counts["fields"] = i + 1
+    def restore(self, arrays):
+        for k, dst in self.arrays.items():
+            src = arrays.get(k)
+            if src is None or src.shape != dst.shape:
+                raise ValueError(f"checkpoint does not match this deck (diagnostic {self.name}/{k})")
+            dst[...] = src
+        self.count = int(arrays["count"])
 
-    def phase(self, t, xs, us) -> None:
-        i = self.counts["phase"]
-        self.arrays["ps_t"][i] = t
-        for name, x, u in zip(self.names, xs, us):
-            self.arrays[f"ps_x/{name}"][i] = x
-            self.arrays[f"ps_u/{name}"][i] = u
-        self.counts["phase"] = i + 1
+    def _view(self, key):
+        return self.arrays[key][:self.count].copy()
 
-    # -- views ----------------------------------------------------------------------------
-    def timeseries(self) -> TimeSeries:
-        n = self.counts["diag"]
-        return TimeSeries(**{k: self.arrays[k][:n].copy() for k in self.SERIES})
 
-    def density_snapshots(self) -> DensitySnapshots:
-        n = self.counts["fields"]
-        a = self.arrays
-        return DensitySnapshots(t=a["snap_t"][:n].copy(), density=a["snap_density"][:n].copy(),
-                                efield=a["snap_efield"][:n].copy())
+class SeriesRecorder(_Arrays):
+    """Energies, momenta, complex E_k of modes 1..M and max/rms delta n/n at t_n, every
+    ``output.diagnostics_interval``; also the running energy error and momentum drift.
+
+    Kinetic energy and momentum at t_n are the averages of the sums over u^{n-1/2} and
+    u^{n+1/2} (second order at t_n)."""
+    name = "series"
+
+    def __init__(self, sim, every: int):
+        super().__init__()
+        self.every = every
+        S, M = len(sim.names), sim.deck.output.modes
+        n = record_steps(sim.steps, every)
+        self.arrays = {"t": np.zeros(n), "kinetic": np.zeros((n, S)), "field_energy": np.zeros(n),
+                       "momentum": np.zeros((n, S)), "mode_amplitude": np.zeros((n, M), complex),
+                       "contrast_max": np.zeros((n, S + 1)), "contrast_rms": np.zeros((n, S + 1))}
+        self.w_m = np.array(sim.weights) * sim.masses
+        self.modes = M
+        self.dx = sim.deck.box.dx
+        self.energy0 = None
+        self.energy_err_max = 0.0
+        self.momentum0 = None
+        self.momentum_scale = None
+        self.momentum_drift_max = 0.0
+
+    def after(self, sim, n):
+        if self.due(n):
+            self._record(n * sim.dt, sim.prev_density, sim.prev_efield, sim.old_sums,
+                         sim.new_sums, sim.u)
+
+    def finish(self, sim):
+        self._record(sim.step * sim.dt, sim.density, sim.efield, sim.sums_half,
+                     sim.final_sums(), sim.u)
+
+    def _record(self, t, density, efield, old_sums, new_sums, us):
+        cmax, crms = contrast(density)
+        kinetic = 0.5 * (old_sums[:, 0] + new_sums[:, 0]) * self.w_m
+        momentum = 0.5 * (old_sums[:, 1] + new_sums[:, 1]) * self.w_m
+        we = fields.field_energy(efield, self.dx)
+        self._put({"t": t, "kinetic": kinetic, "field_energy": we, "momentum": momentum,
+                   "mode_amplitude": fields.mode_amplitudes(efield, self.modes),
+                   "contrast_max": cmax, "contrast_rms": crms})
+        total = kinetic.sum() + we
+        if self.energy0 is None:
+            self.energy0 = float(total)
+            self.momentum0 = float(momentum.sum())
+            self.momentum_scale = float(np.sum(np.abs(self.w_m) * np.array(
+                [np.abs(u).mean() + 1e-300 for u in us])))
+        if self.energy0:
+            self.energy_err_max = max(self.energy_err_max,
+                                      abs(total - self.energy0) / abs(self.energy0))
+        self.momentum_drift_max = max(self.momentum_drift_max,
+                                      abs(float(momentum.sum()) - self.momentum0))
+
+    def series(self) -> TimeSeries:
+        return TimeSeries(**{k: self._view(k) for k in self.arrays})
+
+    def meta(self):
+        return {"energy0": self.energy0, "energy_err_max": self.energy_err_max,
+                "momentum0": self.momentum0, "momentum_scale": self.momentum_scale,
+                "momentum_drift_max": self.momentum_drift_max}
+
+    def restore_meta(self, meta):
+        for k, v in meta.items():
+            setattr(self, k, v)
+
+
+class FieldSnapshots(_Arrays):
+    """Densities per species and E on the grid every ``output.fields_interval``."""
+    name = "fields"
+
+    def __init__(self, sim, every: int):
+        super().__init__()
+        self.every = every
+        S, N = len(sim.names), sim.deck.box.cells
+        n = record_steps(sim.steps, every)
+        self.arrays = {"t": np.zeros(n), "density": np.zeros((n, S, N)), "efield": np.zeros((n, N))}
+
+    def before(self, sim, n):
+        if self.due(n):
+            self._put({"t": n * sim.dt, "density": sim.density, "efield": sim.efield})
+
+    def finish(self, sim):
+        if self.arrays["t"].size > self.count:
+            self._put({"t": sim.step * sim.dt, "density": sim.density, "efield": sim.efield})
+
+    def snapshots(self) -> DensitySnapshots:
+        return DensitySnapshots(t=self._view("t"), density=self._view("density"),
+                                efield=self._view("efield"))
+
+
+class PhaseSpaceSampler(_Arrays):
+    """(x, u) of a fixed random subsample of each species every ``output.phase_space_interval``."""
+    name = "phase"
+
+    def __init__(self, sim, every: int):
+        super().__init__()
+        self.every = every
+        self.names = sim.names
+        self.sub = sim.subsample
+        n = record_steps(sim.steps, every)
+        self.arrays = {"t": np.zeros(n)}
+        for name, idx in zip(self.names, self.sub):
+            self.arrays[f"x/{name}"] = np.zeros((n, idx.size))
+            self.arrays[f"u/{name}"] = np.zeros((n, idx.size))
+
+    def _take(self, sim, t):
+        row = {"t": t}
+        for name, x, u, idx in zip(self.names, sim.x, sim.u, self.sub):
+            row[f"x/{name}"] = x[idx]
+            row[f"u/{name}"] = u[idx]
+        self._put(row)
+
+    def before(self, sim, n):
+        if self.due(n):
+            self._take(sim, n * sim.dt)
+
+    def finish(self, sim):
+        if self.arrays["t"].size > self.count:
+            self._take(sim, sim.step * sim.dt)
 
     def phase_space(self) -> PhaseSpace:
-        n = self.counts["phase"]
-        a = self.arrays
-        return PhaseSpace(t=a["ps_t"][:n].copy(),
-                          x={s: a[f"ps_x/{s}"][:n].copy() for s in self.names},
-                          u={s: a[f"ps_u/{s}"][:n].copy() for s in self.names})
+        return PhaseSpace(t=self._view("t"), x={s: self._view(f"x/{s}") for s in self.names},
+                          u={s: self._view(f"u/{s}") for s in self.names})
 
-    # -- checkpointing --------------------------------------------------------------------
-    def state(self) -> tuple[dict[str, np.ndarray], dict[str, int]]:
-        return self.arrays, dict(self.counts)
 
-    def restore(self, arrays: dict[str, np.ndarray], counts: dict[str, int]) -> None:
-        for k, v in arrays.items():
-            if k not in self.arrays or self.arrays[k].shape != v.shape:
-                raise ValueError(f"checkpoint does not match this deck (diagnostic {k!r})")
-            self.arrays[k][...] = v
-        self.counts = {k: int(counts[k]) for k in self.counts}
+class PeakSnapshot(Handler):
+    """Every particle's position at the diagnostics time of the largest max delta n/n of any
+    species (for the clumps and the form factor at the contrast maximum).
+
+    Below delta n/n = ``EXACT_ABOVE`` (linear growth, where a snapshot is rarely the one kept)
+    the snapshot is retaken only when the contrast beats it by ``RETAKE``, which skips most full
+    copies of the positions; above it every new maximum is taken, so the snapshot is at the
+    maximum itself."""
+    name = "peak"
+    EXACT_ABOVE = 0.1
+    RETAKE = 2.0
+
+    def __init__(self, sim, every: int):
+        self.every = every
+        self.names = sim.names
+        self.weights = sim.weights
+        self.x = [np.empty_like(x) for x in sim.x]
+        self.value = -math.inf
+        self.t = None
+
+    def _track(self, sim, t):
+        value = float(contrast(sim.density)[0][:-1].max())
+        if self.t is None or value > self.value * (1.0 if value >= self.EXACT_ABOVE
+                                                   else self.RETAKE):
+            self.value = value
+            self.t = t
+            for dst, src in zip(self.x, sim.x):
+                np.copyto(dst, src)
+
+    def before(self, sim, n):
+        if self.due(n):
+            self._track(sim, n * sim.dt)
+
+    def finish(self, sim):
+        self._track(sim, sim.step * sim.dt)
+
+    def snapshot(self) -> ParticleSnapshot | None:
+        if self.t is None:
+            return None
+        return ParticleSnapshot(t=float(self.t), x={n: x.copy() for n, x in zip(self.names, self.x)},
+                                weight={n: float(w) for n, w in zip(self.names, self.weights)})
+
+    def state(self):
+        return {f"x/{i}": x for i, x in enumerate(self.x)} if self.t is not None else {}
+
+    def restore(self, arrays):
+        for i in range(len(self.x)):
+            if f"x/{i}" in arrays:
+                self.x[i] = np.array(arrays[f"x/{i}"])
+
+    def meta(self):
+        return {"t": self.t, "value": self.value if math.isfinite(self.value) else None}
+
+    def restore_meta(self, meta):
+        self.t = meta.get("t")
+        v = meta.get("value")
+        self.value = -math.inf if v is None else float(v)
+
+
+def standard_handlers(sim) -> list[Handler]:
+    """The recording handlers every run has, at the deck's cadences (in this order)."""
+    o, dt = sim.deck.output, sim.dt
+    diag = stride(o.diagnostics_interval, dt)
+    return [PeakSnapshot(sim, diag), FieldSnapshots(sim, stride(o.fields_interval, dt)),
+            PhaseSpaceSampler(sim, stride(o.phase_space_interval, dt)),
+            SeriesRecorder(sim, diag)]

@@ -293,24 +293,21 @@ def write_openpmd(path, deck, snapshots: DensitySnapshots, phase: PhaseSpace,
 # time series, particle snapshots
 # ----------------------------------------------------------------------------------------------
 def write_series(path, names: list[str], series: TimeSeries, meta: dict) -> None:
+    """Every array of ``series`` as a dataset of the same name, on the common axis ``t``."""
     with atomic_h5(path) as f:
         f.attrs["species"] = np.array([n.encode() for n in names])
         f.attrs["units"] = _b("normalised: t in 1/omega_p, energies in n_ref m_e c^2 c/omega_p, "
                               "momenta in n_ref m_e c c/omega_p, E_k in m_e c omega_p / e")
         for k, v in meta.items():
             f.attrs[k] = v
-        for k in Recorder_SERIES:
-            f.create_dataset(k, data=getattr(series, k))
-
-
-Recorder_SERIES = ("t", "kinetic", "field_energy", "momentum", "mode_amplitude", "contrast_max",
-                   "contrast_rms")
+        for k, v in series.arrays.items():
+            f.create_dataset(k, data=v)
 
 
 def read_series(path) -> tuple[list[str], TimeSeries]:
     with h5py.File(path, "r") as f:
         names = [n.decode() for n in f.attrs["species"]]
-        return names, TimeSeries(**{k: f[k][()] for k in Recorder_SERIES})
+        return names, TimeSeries(**{k: f[k][()] for k in f if isinstance(f[k], h5py.Dataset)})
 
 
 def write_particles(path, snaps: dict[str, ParticleSnapshot | None]) -> None:
@@ -366,47 +363,39 @@ def read_openpmd_meshes(path, names: list[str]) -> tuple[DensitySnapshots, Phase
 # ----------------------------------------------------------------------------------------------
 # checkpoints
 # ----------------------------------------------------------------------------------------------
-def write_checkpoint(path, step: int, xs, us, recorder_arrays: dict, counts: dict,
-                     extra: dict, peak: ParticleSnapshot | None, peak_value: float,
-                     density: np.ndarray | None = None) -> None:
+def write_checkpoint(path, state: dict, handlers: dict[str, dict], meta: dict) -> None:
     """Full state at a step boundary: positions x^n, momenta u^{n-1/2}, the grid densities n^n
     (kept, not re-deposited, so that a resume is bit-identical whatever the deposit's summation
-    order), diagnostics so far."""
+    order), each handler's arrays under ``handlers/<name>/`` and the JSON ``meta``."""
     with atomic_h5(path) as f:
-        f.attrs["step"] = step
-        if density is not None:
-            f.create_dataset("density", data=density)
-        f.attrs["extra"] = json.dumps(extra)
-        f.attrs["peak_value"] = peak_value
-        for i, (x, u) in enumerate(zip(xs, us)):
+        f.attrs["step"] = int(state["step"])
+        f.attrs["meta"] = json.dumps(jsonable(meta))
+        f.create_dataset("density", data=state["density"])
+        for i, (x, u) in enumerate(zip(state["x"], state["u"])):
             f.create_dataset(f"x/{i}", data=x)
             f.create_dataset(f"u/{i}", data=u)
-        g = f.create_group("recorder")
-        for k, v in recorder_arrays.items():
-            g.create_dataset(k, data=v)
-        g.attrs["counts"] = json.dumps(counts)
-        if peak is not None:
-            pg = f.create_group("peak")
-            pg.attrs["t"] = peak.t
-            for i, (name, x) in enumerate(peak.x.items()):
-                pg.create_dataset(str(i), data=x)
+        g = f.create_group("handlers")
+        for name, arrays in handlers.items():
+            hg = g.create_group(name)
+            for k, v in arrays.items():
+                hg.create_dataset(k, data=v)
 
 
-def read_checkpoint(path, names: list[str]) -> dict:
+def read_checkpoint(path) -> dict:
+    """{"step", "x", "u", "density", "meta", "handlers": {name: {key: array}}}."""
     try:
         with h5py.File(path, "r") as f:
             S = len(f["x"])
-            out = {"step": int(f.attrs["step"]), "extra": json.loads(f.attrs["extra"]),
-                   "peak_value": float(f.attrs["peak_value"]),
-                   "x": [f[f"x/{i}"][()] for i in range(S)], "u": [f[f"u/{i}"][()] for i in range(S)],
-                   "counts": json.loads(f["recorder"].attrs["counts"]), "arrays": {}, "peak": None,
-                   "density": f["density"][()] if "density" in f else None}
-            f["recorder"].visititems(lambda k, v: out["arrays"].__setitem__(k, v[()])
-                                     if isinstance(v, h5py.Dataset) else None)
-            if "peak" in f:
-                pg = f["peak"]
-                out["peak"] = (float(pg.attrs["t"]), [pg[str(i)][()] for i in range(len(names))])
-    except (OSError, KeyError) as ex:
+            out = {"step": int(f.attrs["step"]), "meta": json.loads(f.attrs["meta"]),
+                   "x": [f[f"x/{i}"][()] for i in range(S)],
+                   "u": [f[f"u/{i}"][()] for i in range(S)],
+                   "density": f["density"][()], "handlers": {}}
+            for name, hg in f["handlers"].items():
+                arrays = {}
+                hg.visititems(lambda k, v: arrays.__setitem__(k, v[()])
+                              if isinstance(v, h5py.Dataset) else None)
+                out["handlers"][name] = arrays
+    except (OSError, KeyError, ValueError) as ex:
         raise OutputError(f"cannot read checkpoint {path}: {ex}") from None
     return out
 
@@ -420,25 +409,43 @@ def is_run_folder(folder) -> bool:
 
 
 def read_run(folder) -> RunData:
-    """Everything analysis needs from a finished (or interrupted) run folder."""
-    import tomllib
+    """A run folder back into the RunData a run keeps in memory: the deck through the deck
+    module, the theory as a Dispersion, the series, meshes and particle snapshots."""
+    from .deck import load_deck
+    from .theory import Dispersion
     folder = Path(folder)
     if not is_run_folder(folder):
         raise OutputError(f"{folder} is not a streamsim run folder (no {FILES['deck']} and "
                           f"{FILES['series']})")
-    deck = tomllib.loads((folder / FILES["deck"]).read_text(encoding="utf-8"))
+    deck = load_deck(folder / FILES["deck"])
     names, series = read_series(folder / FILES["series"])
+    cells = deck.box.cells
     if (folder / FILES["fields"]).exists():
         snaps, phase = read_openpmd_meshes(folder / FILES["fields"], names)
     else:
-        snaps = DensitySnapshots(np.zeros(0), np.zeros((0, len(names), deck["box"]["cells"])),
-                                 np.zeros((0, deck["box"]["cells"])))
+        snaps = DensitySnapshots(np.zeros(0), np.zeros((0, len(names), cells)),
+                                 np.zeros((0, cells)))
         phase = PhaseSpace(np.zeros(0), {}, {})
     parts = read_particles(folder / FILES["particles"])
     theory = None
     if (folder / FILES["theory"]).exists():
-        theory = json.loads((folder / FILES["theory"]).read_text())
-    return RunData(deck=deck, names=names, length=float(deck["box"]["length"]),
-                   cells=int(deck["box"]["cells"]), dt=float(deck["time"]["dt"]), series=series,
-                   snapshots=snaps, phase_space=phase, peak=parts["peak"], end=parts["end"],
-                   theory=theory)
+        raw = json.loads((folder / FILES["theory"]).read_text(encoding="utf-8"))
+        if isinstance(raw, dict) and "error" not in raw:
+            theory = Dispersion.from_dict(raw)
+    return RunData(deck=deck, names=names, length=deck.box.length, cells=cells,
+                   dt=deck.time.dt, series=series, snapshots=snaps, phase_space=phase,
+                   peak=parts["peak"], end=parts["end"], theory=theory)
+
+
+def update_summary(folder, entries: dict) -> None:
+    """Merge ``entries`` into an existing summary.json (one atomic rewrite); no file, no-op."""
+    path = Path(folder) / FILES["summary"]
+    if not path.is_file():
+        return
+    try:
+        current = json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return
+    if isinstance(current, dict):
+        current.update(entries)
+        write_json(path, current)

@@ -12,19 +12,49 @@ Conventions (all normalised: t in 1/omega_p, x in c/omega_p, u = gamma*beta, den
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
+if TYPE_CHECKING:  # typed fields only; no import of higher rooms at run time
+    from .deck import Deck
+    from .theory import Dispersion
 
-@dataclass
+
 class TimeSeries:
-    t: np.ndarray               # (n,) diagnostics times
-    kinetic: np.ndarray         # (n, S) kinetic energy sum w m (gamma - 1) per species
-    field_energy: np.ndarray    # (n,) integral of E^2/2 dx
-    momentum: np.ndarray        # (n, S) momentum sum w m u per species
-    mode_amplitude: np.ndarray  # (n, M) complex E_m, m = 1..M
-    contrast_max: np.ndarray    # (n, S+1) max over the grid of delta n / n
-    contrast_rms: np.ndarray    # (n, S+1) rms over the grid of delta n / n
+    """The recorded time series, by name (every array's first axis is time, ``t``).
+
+    The standard ones, always present::
+
+        t               (n,)      diagnostics times
+        kinetic         (n, S)    kinetic energy sum w m (gamma - 1) per species
+        field_energy    (n,)      integral of E^2/2 dx
+        momentum        (n, S)    momentum sum w m u per species
+        mode_amplitude  (n, M)    complex E_m, m = 1..M
+        contrast_max    (n, S+1)  max over the grid of delta n / n (last column: all species)
+        contrast_rms    (n, S+1)  rms over the grid of delta n / n
+
+    A handler that records more adds its own names; they are written to and read from
+    timeseries.h5 like these.
+    """
+
+    STANDARD = ("t", "kinetic", "field_energy", "momentum", "mode_amplitude", "contrast_max",
+                "contrast_rms")
+
+    def __init__(self, **arrays: np.ndarray):
+        missing = [k for k in self.STANDARD if k not in arrays]
+        if missing:
+            raise ValueError(f"time series lack {', '.join(missing)}")
+        self.arrays = {k: np.asarray(v) for k, v in arrays.items()}
+
+    def __getattr__(self, name: str) -> np.ndarray:
+        try:
+            return self.__dict__["arrays"][name]
+        except KeyError:
+            raise AttributeError(name) from None
+
+    def __contains__(self, name: str) -> bool:
+        return name in self.arrays
 
     @property
     def total_energy(self) -> np.ndarray:
@@ -59,7 +89,7 @@ class PhaseSpace:
 
 @dataclass
 class RunData:
-    deck: dict                  # the resolved deck, as Deck.to_dict()
+    deck: "Deck"                # the resolved deck
     names: list[str]
     length: float
     cells: int
@@ -69,5 +99,5 @@ class RunData:
     phase_space: PhaseSpace
     peak: ParticleSnapshot | None     # at the diagnostic time of maximum delta n/n of any species
     end: ParticleSnapshot | None      # at the end of the run
-    theory: dict | None = None        # the theory block of summary.json
+    theory: "Dispersion | None" = None  # the deck's linear theory (theory.json)
     extra: dict = field(default_factory=dict)

@@ -959,6 +959,29 @@ class Dispersion:
     species: tuple[str, ...] = ()
     notes: list[str] = field(default_factory=list)
 
+    @classmethod
+    def from_dict(cls, d: dict) -> "Dispersion":
+        """The Dispersion of a :meth:`to_dict` object (theory.json)."""
+        f = d.get("fastest")
+        curve = d.get("curve") or {}
+        nan = lambda v: np.nan if v is None else v  # noqa: E731
+        return cls(model=d["model"],
+                   k=np.array([nan(v) for v in curve.get("k", [])], float),
+                   growth=np.array([nan(v) for v in curve.get("growth", [])], float),
+                   omega_r=np.array([nan(v) for v in curve.get("omega_r", [])], float),
+                   fastest=FastestMode(f["k"], f["growth"], f["omega_r"]) if f else None,
+                   unstable_band=tuple(d["unstable_band"]) if d.get("unstable_band") else None,
+                   unstable_bands=[tuple(b) for b in d.get("unstable_bands") or []],
+                   box_modes=[BoxMode(int(m["mode"]), m["k"],
+                                      0.0 if m.get("growth") is None else m["growth"],
+                                      m.get("omega_r"), m.get("maxwellian_growth"))
+                              for m in d.get("box_modes") or []],
+                   box_length=d.get("box_length"), density_cm3=d.get("density_cm3"),
+                   time_end=(f["efoldings_in_run"] / f["growth"]
+                             if f and f.get("efoldings_in_run") and f.get("growth") else None),
+                   species=tuple(d.get("species") or ()),
+                   notes=list(d.get("notes") or []))
+
     def to_dict(self, density_cm3: float | None = None) -> dict:
         """The JSON object of ``streamsim theory --json`` (plain floats and lists, no NaN)."""
         from . import units

@@ -5,7 +5,7 @@ import numpy as np
 import pytest
 
 from streamsim.analysis import growth
-from streamsim.analysis.synthetic import saturating_exponential
+from synthetic_data import saturating_exponential
 
 RATE = 0.35
 FLOOR = 1e-6
@@ -78,10 +78,8 @@ def test_modes_compare_with_theory_and_flag_driven_growth():
     rng = np.random.default_rng(3)
     s3 = np.abs(FLOOR * (rng.standard_normal(t.size) + 1j * rng.standard_normal(t.size)))
     amp = np.stack([s1, s2, s3], axis=1)
-    theory = {"box_modes": [{"mode": 1, "k": 1.0, "growth": RATE},
-                            {"mode": 2, "k": 2.0, "growth": 0.1},
-                            {"mode": 3, "k": 3.0, "growth": -0.2}]}
-    rows = growth.fit_modes(t, amp, 2 * math.pi, theory)
+    rates = {1: RATE, 2: 0.1, 3: -0.2}
+    rows = growth.fit_modes(t, amp, 2 * math.pi, rates, g_max=RATE)
     assert rows[0]["ratio"] == pytest.approx(1.0, rel=0.01)
     # faster than any linear root of the theory: not a linear phase (the fastest root bounds it)
     assert rows[1]["measured"] is None and "driven" in rows[1]

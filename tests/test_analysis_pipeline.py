@@ -1,13 +1,15 @@
-"""analyze() / human_summary() / figures on a synthetic RunData whose content is prescribed
-(streamsim.analysis.synthetic): the checks are against the prescription, never against output."""
+"""analyze() / terminal lines / figures / the block registry on a synthetic RunData whose content
+is prescribed (tests/synthetic_data.py): the checks are against the prescription, never against
+output."""
 import json
 import math
 
 import numpy as np
 import pytest
 
-from streamsim.analysis import analyze, human_summary
-from streamsim.analysis.synthetic import synthetic_run
+from streamsim import analysis
+from streamsim.analysis import analyze
+from synthetic_data import synthetic_run
 
 CONTRACT = {"growth": ["mode", "k", "measured", "measured_err", "theory", "ratio", "window"],
             "contrast": ["max", "t_max", "t_unity", "t_unity_ns"],
@@ -74,7 +76,8 @@ def test_files_written(synthetic):
         p = folder / "analysis" / name
         assert p.is_file() and len(p.read_text().splitlines()) > 1
     with h5py.File(folder / "analysis.h5", "r") as h:
-        assert "clumps/peak/width" in h and "form_factor/peak/k" in h and "growth/modes/measured" in h
+        assert "clumps/width" in h and "form_factor/k" in h and "growth_modes/measured" in h
+        assert h["form_factor"].attrs["unit:k"] == "omega_p/c"
     for name in ("field_energy", "growth_rates", "phase_space", "contrast", "clumps", "coherence"):
         p = folder / "figures" / f"{name}.png"
         assert p.stat().st_size > 5000
@@ -82,13 +85,51 @@ def test_files_written(synthetic):
     assert not list(folder.rglob("*.tmp"))
 
 
-def test_human_summary_says_plainly_what_is_missing():
+def test_terminal_lines_say_plainly_what_is_missing():
     data = synthetic_run(rates=np.full(16, -0.1), contrast_peak=0.2, particles=2000,
                          bunched_fraction=0.0, seed=5)
     data.peak.x = {k: np.random.default_rng(9).random(2000) * data.length for k in data.names}
-    blocks = analyze(data, write=False)
-    text = human_summary(blocks, 1e10)
+    results = analysis.compute(data)
+    blocks = analysis.summary_entries(results)
+    text = analysis.terminal_lines(results)
     assert "no linear phase found" in text
     assert "no clump" in text
     assert "no cutoff above the noise floor" in text
     assert blocks["contrast"]["t_unity"] is None and blocks["coherence"]["k_cutoff"] is None
+
+
+def test_a_new_block_is_one_module_and_one_registry_line(tmp_path, monkeypatch):
+    """A block added to the registry reaches the summary, the tables (CSV and HDF5), the figures
+    and the terminal lines without touching anything else."""
+    import types
+
+    from streamsim.analysis import base, registry
+    from streamsim.analysis.writers import read_tables
+
+    def draw(res, data):
+        from streamsim.plots import plt
+        fig, ax = plt.subplots()
+        ax.plot(res.tables["toy"].col("x"), res.tables["toy"].col("y"))
+        return fig
+
+    def compute(ctx):
+        x = np.arange(5.0)
+        return base.BlockResult("toy", {"toy": {"sum": float(x.sum())}},
+                                {"toy": base.Table("toy", {"x": x, "y": x**2},
+                                                   units={"x": "c/omega_p"})},
+                                [base.Figure("toy.png", "a toy", draw)], ["toy: sum 10"])
+
+    toy = types.SimpleNamespace(NAME="toy", compute=compute, SCAN_COLUMNS=[
+        base.ScanColumn("toy_sum", "", "sum of x", ("toy", "sum"))])
+    monkeypatch.setattr(registry, "BLOCKS", registry.BLOCKS + (toy,))
+    monkeypatch.setattr(analysis, "BLOCKS", registry.BLOCKS)
+    data = synthetic_run(seed=3, particles=2000)
+    results = analysis.compute(data)
+    analysis.write_outputs(results, data, tmp_path)
+    assert analysis.summary_entries(results)["toy"] == {"sum": 10.0}
+    assert "toy: sum 10" in analysis.terminal_lines(results).splitlines()
+    assert (tmp_path / "analysis" / "toy.csv").read_text().splitlines()[0] == "x,y"
+    back = read_tables(tmp_path / "analysis.h5")["toy"]
+    assert back.units == {"x": "c/omega_p"} and list(back.col("y")) == [0, 1, 4, 9, 16]
+    assert (tmp_path / "figures" / "toy.png").stat().st_size > 1000
+    assert "toy_sum" in [c.name for c in analysis.scan_columns()]

@@ -126,7 +126,7 @@ def test_resume_in_process_matches(tmp_path):
     raw = pair_deck(cells=64, ppc=8, end=20.0)
     raw["output"]["checkpoint_every"] = 2.0
     straight = streamsim.run(raw, out=tmp_path / "a", analyze=False)
-    with pytest.raises(streamsim.engine.Interrupted):
+    with pytest.raises(streamsim.pipeline.Interrupted):
         streamsim.run(raw, out=tmp_path / "b", analyze=False, stop_after_steps=137)
     resumed = streamsim.run(raw, out=tmp_path / "b", analyze=False, resume=True)
     for name in straight.x:

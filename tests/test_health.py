@@ -7,7 +7,11 @@ import pytest
 
 from conftest import pair_deck, plasma_deck
 from streamsim.deck import load_deck
-from streamsim.engine import HealthRefusal, _theory_block, run
+from streamsim.pipeline import HealthRefusal, _theory, run
+
+
+def _theory_block(deck):
+    return _theory(deck)[1]
 from streamsim.health import check_deck
 
 

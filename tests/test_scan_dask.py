@@ -15,7 +15,7 @@ import pytest
 distributed = pytest.importorskip("distributed")
 
 from streamsim.deck import load_deck  # noqa: E402
-from streamsim.engine import run  # noqa: E402
+from streamsim.pipeline import run  # noqa: E402
 from streamsim.scan.tables import metrics_from_summary  # noqa: E402
 
 from test_scan import BASE, TINY, write_scan  # noqa: E402

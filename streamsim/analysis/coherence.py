@@ -157,6 +157,12 @@ def coherence_cutoff(k, power, floor: float, drop: float = 0.5,
     return out
 
 
+def form_factor_modes(cells: int, kmax_factor: float) -> int:
+    """M, the number of box modes of the form factor: k_M = ``kmax_factor`` x the grid Nyquist
+    k = pi/dx, i.e. M = ceil(kmax_factor x cells / 2). The one kmax rule of the coherence."""
+    return int(math.ceil(kmax_factor * cells / 2))
+
+
 def emission_cutoff_hz(k_c: float, bulk_gamma: float, density_cm3: float) -> float:
     """nu_c = Gamma c k_c / (2 pi) in Hz, k_c in omega_p/c (assumptions in :data:`ASSUMPTION`)."""
     return bulk_gamma * units.C_CM_S * units.wavenumber_per_cm(k_c, density_cm3) / (2.0 * math.pi)

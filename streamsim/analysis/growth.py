@@ -24,6 +24,8 @@ from dataclasses import dataclass
 import numpy as np
 from scipy import stats
 
+from ..numbers import finite_or_none
+
 __all__ = ["LinearFit", "find_linear_phase", "effective_sample_size", "fit_modes",
            "fit_field_energy", "NO_PHASE"]
 
@@ -166,41 +168,13 @@ def _fit(t, y, i0, i1, sel) -> LinearFit:
                      rms=float(np.sqrt(np.mean(res * res))))
 
 
-def _theory_modes(theory: dict | None) -> dict[int, dict]:
-    out = {}
-    if not theory:
-        return out
-    for row in theory.get("box_modes") or []:
-        try:
-            out[int(row["mode"])] = row
-        except (KeyError, TypeError, ValueError):
-            continue
-    return out
-
-
-def _num(v):
-    try:
-        v = float(v)
-    except (TypeError, ValueError):
-        return None
-    return v if math.isfinite(v) else None
-
-
-def theory_max_growth(theory: dict | None) -> float | None:
-    """The largest linear growth rate the theory knows (fastest root or best box mode)."""
-    if not theory:
-        return None
-    vals = [_num(r.get("growth")) for r in _theory_modes(theory).values()]
-    fast = theory.get("fastest")
-    if isinstance(fast, dict):
-        vals.append(_num(fast.get("growth")))
-    vals = [v for v in vals if v is not None]
-    return max(vals) if vals else None
-
-
-def fit_modes(t, mode_amplitude, length, theory: dict | None = None,
-              driven_factor: float = DRIVEN_FACTOR, **kw) -> list[dict]:
+def fit_modes(t, mode_amplitude, length, theory_growth: dict[int, float] | None = None,
+              g_max: float | None = None, driven_factor: float = DRIVEN_FACTOR,
+              **kw) -> list[dict]:
     """One row per box mode m = 1..M: the fitted growth of |E_m| and the theory of the same mode.
+
+    ``theory_growth`` maps a box mode m to its linear growth rate; ``g_max`` is the largest
+    linear rate of the theory (fastest root), used to recognise nonlinearly driven growth.
 
     Rates in omega_p; ``ratio`` = measured / theory when the theory grows (> 0), else None.
 
@@ -210,12 +184,11 @@ def fit_modes(t, mode_amplitude, length, theory: dict | None = None,
     It is reported under "driven" and the search is repeated before it.
     """
     amp = np.abs(np.asarray(mode_amplitude))
-    th = _theory_modes(theory)
-    g_max = theory_max_growth(theory)
+    th = dict(theory_growth or {})
     rows = []
     for m in range(1, amp.shape[1] + 1):
         k = 2.0 * math.pi * m / length
-        g_th = _num(th.get(m, {}).get("growth")) if m in th else None
+        g_th = finite_or_none(th.get(m))
         row = {"mode": m, "k": k, "measured": None, "measured_err": None, "systematic": None,
                "theory": g_th, "ratio": None, "window": None, "efolds": None,
                "status": NO_PHASE}

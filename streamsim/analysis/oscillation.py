@@ -120,14 +120,11 @@ def reference_root(k: float, species, measured: complex) -> tuple[complex, str] 
 
 def oscillation_block(data) -> list[dict]:
     """Fits of every seeded box mode that the linear theory does not make grow."""
-    deck = data.deck or {}
-    seeded = [int(m) for m in (deck.get("perturbation", {}) or {}).get("modes", []) or []]
-    amp = (deck.get("perturbation", {}) or {}).get("amplitude", 0.0) or 0.0
-    if not seeded or not amp > 0:
+    pert = data.deck.perturbation
+    seeded = [int(m) for m in pert.modes]
+    if not seeded or not pert.amplitude > 0:
         return []
-    growth = {}
-    for row in (data.theory or {}).get("box_modes") or []:
-        growth[int(row.get("mode", -1))] = row.get("growth")
+    growth = {m.mode: m.growth for m in data.theory.box_modes} if data.theory else {}
     species = None
     out = []
     series = data.series
@@ -147,8 +144,7 @@ def oscillation_block(data) -> list[dict]:
             continue
         row.update(fit)
         if species is None:
-            from ..deck import load_deck
-            species = load_deck(deck).species
+            species = data.deck.species
         ref = reference_root(k, species, complex(fit["omega_r"], fit["rate"]))
         if ref is not None:
             root, model = ref

@@ -37,12 +37,7 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"streamsim {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     for name, modname in COMMANDS.items():
-        try:
-            mod = importlib.import_module(modname)
-        except ModuleNotFoundError as ex:
-            if ex.name != modname:
-                raise
-            continue  # subcommand not built yet
+        mod = importlib.import_module(modname)
         p = sub.add_parser(name, help=mod.HELP, description=mod.HELP)
         mod.add_arguments(p)
         p.set_defaults(_main=mod.main)

@@ -2,7 +2,6 @@
 from __future__ import annotations
 
 import json
-import math
 import sys
 
 from streamsim.cli.common import error, output_failure, read_run_folder
@@ -26,45 +25,33 @@ def add_arguments(p) -> None:
     p.add_argument("--no-figures", action="store_true", help="skip the figures")
 
 
-def _check(args) -> str | None:
-    g, c, d = args.bulk_gamma, args.clump_threshold, args.coherence_drop
-    if g is not None and not (math.isfinite(g) and g >= 1):
-        return f"--bulk-gamma = {g:g}: must be >= 1"
-    if c is not None and not (math.isfinite(c) and c > 0):
-        return f"--clump-threshold = {c:g}: must be > 0"
-    if d is not None and not (math.isfinite(d) and 0 < d < 1):
-        return f"--coherence-drop = {d:g}: must be in (0, 1)"
-    return None
-
-
 def main(args) -> int:
-    bad = _check(args)
-    if bad:
-        error("argument", bad)
-        return 2
+    from streamsim import analysis, io
+    from streamsim.deck import DeckError
     folder, data = read_run_folder(args.run_dir)
     if data is None:
         return 2
-    from streamsim.analysis import analyze, human_summary
+    try:   # the flags are checked by the deck's own key table (one line, as for a deck)
+        options = analysis.options_for(data.deck, bulk_gamma=args.bulk_gamma,
+                                       clump_threshold=args.clump_threshold,
+                                       coherence_drop=args.coherence_drop)
+    except DeckError as ex:
+        flag = {"analysis.bulk_gamma": "--bulk-gamma", "analysis.clump_threshold":
+                "--clump-threshold", "analysis.coherence_drop": "--coherence-drop"}
+        error("argument", str(ex).replace(ex.key, flag.get(ex.key, ex.key), 1))
+        return 2
     try:
-        blocks = analyze(data, folder=folder, bulk_gamma=args.bulk_gamma,
-                         clump_threshold=args.clump_threshold,
-                         coherence_drop=args.coherence_drop, write=True,
-                         figures=not args.no_figures)
+        results = analysis.compute(data, options)
+        entries = analysis.summary_entries(results, options)
+        analysis.write_outputs(results, data, folder, figures=not args.no_figures)
+        io.update_summary(folder, entries)
     except OSError as ex:
         return output_failure(ex, folder)
-    except ValueError as ex:
-        error("argument", str(ex))
-        return 2
     if args.json:
-        json.dump(blocks, sys.stdout, indent=2, allow_nan=False)
+        json.dump(entries, sys.stdout, indent=2, allow_nan=False)
         sys.stdout.write("\n")
     else:
-        try:
-            n = float(data.deck["units"]["density_cm3"])
-        except (KeyError, TypeError, ValueError):
-            n = 1.0e10
-        print(human_summary(blocks, n))
-        print(f"tables in {folder / 'analysis'} and {folder / 'analysis.h5'}; "
-              f"figures in {folder / 'figures'}")
+        print(analysis.terminal_lines(results))
+        where = f"tables in {folder / 'analysis'} and {folder / 'analysis.h5'}"
+        print(where + ("" if args.no_figures else f"; figures in {folder / 'figures'}"))
     return 0

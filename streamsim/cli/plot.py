@@ -7,33 +7,35 @@ from streamsim.cli.common import output_failure, read_run_folder
 
 HELP = "redraw the figures of a run folder into RUN_DIR/figures/"
 
-_BLOCKS = ("growth", "modes", "field_energy_growth", "contrast", "clumps", "coherence")
-
 
 def add_arguments(p) -> None:
     p.add_argument("run_dir", metavar="RUN_DIR", help="a run folder written by `streamsim run`")
 
 
+def _last_options(folder, data):
+    """The analysis options of the run's last analysis (summary.json), so that the figures show
+    the numbers the summary holds; the deck's own when there is none."""
+    from streamsim import analysis, io
+    from streamsim.deck import DeckError
+    try:
+        s = json.loads((folder / io.FILES["summary"]).read_text(encoding="utf-8"))
+        used = s.get("analysis_options") or {}
+        keep = {k: used.get(k) for k in ("bulk_gamma", "clump_threshold", "coherence_drop",
+                                         "coherence_kmax_factor")}
+        return analysis.options_for(data.deck, **keep)
+    except (OSError, ValueError, AttributeError, DeckError):
+        return data.deck.analysis
+
+
 def main(args) -> int:
-    from streamsim import io
+    from streamsim import analysis
+    from streamsim.plots import draw_figures
     folder, data = read_run_folder(args.run_dir)
     if data is None:
         return 2
-    blocks = None
-    summ = folder / io.FILES["summary"]
-    if summ.is_file():
-        try:
-            s = json.loads(summ.read_text(encoding="utf-8"))
-            if isinstance(s, dict) and all(k in s for k in _BLOCKS):
-                blocks = {k: s[k] for k in _BLOCKS}
-        except (OSError, ValueError):
-            blocks = None
     try:
-        if blocks is None:  # never analysed (or an old summary): analyse without writing
-            from streamsim.analysis import compute
-            blocks, _ = compute(data)
-        from streamsim.plots import make_figures
-        paths = make_figures(data, blocks, folder)
+        results = analysis.compute(data, _last_options(folder, data))
+        paths = draw_figures(results, data, folder)
     except OSError as ex:
         return output_failure(ex, folder)
     for p in paths:

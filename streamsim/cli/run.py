@@ -4,7 +4,7 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from streamsim.cli.common import add_deck_arguments, error
+from streamsim.cli.common import add_deck_arguments, error, warn
 from streamsim.deck import DeckError, load_deck
 
 HELP = "run a deck (none: the built-in symmetric pair-beam demo) and analyse it"
@@ -14,7 +14,9 @@ def add_arguments(p) -> None:
     add_deck_arguments(p)
     p.add_argument("--out", metavar="DIR", help="run folder (default: the deck's output.folder, "
                    "runs/out/<title>)")
-    p.add_argument("--quiet", action="store_true", help="no progress bar, warnings or summary")
+    p.add_argument("--quiet", action="store_true",
+                   help="no progress bar and no summary (warnings and refusals still go to "
+                        "stderr)")
     p.add_argument("--resume", nargs="?", const=True, default=None, metavar="RUN_DIR",
                    help="continue an interrupted run from its checkpoint (RUN_DIR, else --out, "
                         "else the deck's folder; with no DECK the run folder's deck.toml is used)")
@@ -22,7 +24,9 @@ def add_arguments(p) -> None:
                    help="numba threads (default: the deck's output.threads, 0 = all cores)")
     p.add_argument("--no-analysis", action="store_true", help="write the raw outputs only")
     p.add_argument("--force", action="store_true",
-                   help="run even when a numerical-health rule refuses the deck")
+                   help="run even when a numerical-health rule refuses the deck, or over a "
+                        "finished run of a different deck in the same folder")
+    p.add_argument("--no-figures", action="store_true", help="analyse, but draw no figures")
 
 
 def main(args) -> int:
@@ -46,10 +50,11 @@ def main(args) -> int:
         return 2
     if args.resume and folder is None:
         folder = deck.output.folder
-    from streamsim.engine import Interrupted, NumericalError, run
+    from streamsim.pipeline import Interrupted, NumericalError, run
     try:
         result = run(deck, out=folder, quiet=args.quiet, resume=bool(args.resume),
-                     analyze=not args.no_analysis, threads=args.threads, force=args.force)
+                     analyze=not args.no_analysis, threads=args.threads, force=args.force,
+                     figures=not args.no_figures, warn=warn)
     except DeckError as ex:
         error("deck", str(ex))
         return 2
@@ -69,6 +74,7 @@ def main(args) -> int:
 
 
 def _print_summary(result) -> None:
+    from streamsim.analysis import terminal_lines
     s = result.summary
     n = s["normalization"]
     lines = [f"{s['deck_title']}: {s['steps']} steps, {s['particles']} particles, "
@@ -76,11 +82,7 @@ def _print_summary(result) -> None:
              f"  n_ref = {n['density_cm3']:.3g} cm^-3: 1/omega_p = {n['time_unit_ns']:.4g} ns, "
              f"c/omega_p = {n['skin_depth_cm']:.4g} cm",
              f"  energy error max {s['energy']['relative_error_max']:.2e}"]
-    try:
-        from streamsim.analysis import human_summary
-        text = human_summary(s, n["density_cm3"])
-    except Exception:  # noqa: BLE001 - the summary is optional decoration
-        text = ""
+    text = terminal_lines(result.analysis)
     if text:
         lines.append(text)
     if "analysis_error" in s:

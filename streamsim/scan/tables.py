@@ -15,7 +15,7 @@ from typing import Any
 
 import numpy as np
 
-from .. import units
+from ..numbers import finite_or_none
 from .spec import Scan
 from .worker import ERROR_FILE, _read_json, read_state
 
@@ -24,29 +24,29 @@ __all__ = ["METRICS", "RUN_COLUMNS", "collect_rows", "write_tables", "run_folder
 #: leading columns: which run, its state and where it lives
 RUN_COLUMNS = ("run", "point", "replica", "status", "error", "hash", "folder", "random_seed")
 
-#: column -> (unit, meaning); every number the summary offers that a scan is asked about
-METRICS = {
-    "density_cm3": ("cm^-3", "reference density units.density_cm3"),
-    "growth_mode": ("", "box mode of the headline growth fit (largest theoretical growth)"),
-    "growth_k": ("omega_p/c", "its wavenumber"),
-    "growth_measured": ("omega_p", "measured field-amplitude growth rate"),
-    "growth_measured_err": ("omega_p", "1-sigma error of the fit"),
-    "growth_theory": ("omega_p", "linear theory for the same box mode"),
-    "growth_ratio": ("", "measured / theory"),
-    "growth_time_ns": ("ns", "measured e-folding time 1/growth_measured"),
-    "growth_time_err_ns": ("ns", "its 1-sigma error from the fit"),
-    "theory_growth_time_ns": ("ns", "theory e-folding time of the same box mode"),
-    "theory_fastest_growth": ("omega_p", "theory growth rate of the fastest mode (any k)"),
-    "theory_fastest_growth_time_ns": ("ns", "its e-folding time"),
-    "t_unity_ns": ("ns", "first time max delta n/n reaches 1 (clump formation)"),
-    "contrast_max": ("", "maximum delta n/n over the run"),
-    "clump_count": ("", "clumps at the analysed snapshot"),
-    "clump_size_median_cm": ("cm", "median clump size"),
-    "nu_c_hz": ("Hz", "coherence cutoff frequency nu_c (see summary.json coherence)"),
-    "bulk_gamma": ("", "bulk Lorentz factor assumed for nu_c"),
-    "energy_error_max": ("", "maximum relative energy error"),
-    "wall_s": ("s", "wall time of the run"),
+#: run-level columns (not from an analysis block): name -> (unit, meaning, summary.json path)
+_RUN_METRICS = {
+    "density_cm3": ("cm^-3", "reference density units.density_cm3",
+                    ("normalization", "density_cm3")),
 }
+_TAIL_METRICS = {
+    "energy_error_max": ("", "maximum relative energy error", ("energy", "relative_error_max")),
+    "wall_s": ("s", "wall time of the run", ("wall_s",)),
+}
+
+
+def _metric_paths() -> dict[str, tuple[str, str, tuple]]:
+    from ..analysis import scan_columns
+    cols = dict(_RUN_METRICS)
+    cols.update({c.name: (c.unit, c.meaning, c.path) for c in scan_columns()})
+    cols.update(_TAIL_METRICS)
+    return cols
+
+
+_PATHS = _metric_paths()
+
+#: column -> (unit, meaning): the run-level numbers and every analysis block's scan columns
+METRICS = {k: (unit, meaning) for k, (unit, meaning, _) in _PATHS.items()}
 
 
 def run_folder(out: Path, point) -> Path:
@@ -61,49 +61,13 @@ def _get(d: Any, *path):
     return d
 
 
-def _num(v) -> float | None:
-    if isinstance(v, bool) or not isinstance(v, (int, float)):
-        return None
-    v = float(v)
-    return v if math.isfinite(v) else None
-
-
 def metrics_from_summary(s: dict) -> dict:
-    """The METRICS of one summary.json (missing or null blocks give None)."""
-    n = _num(_get(s, "normalization", "density_cm3"))
-    g = _get(s, "growth") or {}
-    meas, err, th = _num(g.get("measured")), _num(g.get("measured_err")), _num(g.get("theory"))
-    ok_fit = meas is not None and meas > 0 and n is not None
-    tau = units.growth_time_ns(meas, n) if ok_fit else None
-    tau_err = tau * err / meas if (ok_fit and err is not None) else None
-    fast = _num(_get(s, "theory", "fastest", "growth"))
-    fast_ns = _num(_get(s, "theory", "fastest", "growth_time_ns"))
-    if fast_ns is None and fast is not None and fast > 0 and n is not None:
-        fast_ns = units.growth_time_ns(fast, n)
-    t_unity_ns = _num(_get(s, "contrast", "t_unity_ns"))
-    t_unity = _num(_get(s, "contrast", "t_unity"))
-    if t_unity_ns is None and t_unity is not None and n is not None:
-        t_unity_ns = units.time_ns(t_unity, n)
-    mode = _get(g, "mode")
-    return {
-        "density_cm3": n,
-        "growth_mode": int(mode) if isinstance(mode, int) and not isinstance(mode, bool) else None,
-        "growth_k": _num(g.get("k")),
-        "growth_measured": meas, "growth_measured_err": err, "growth_theory": th,
-        "growth_ratio": _num(g.get("ratio")),
-        "growth_time_ns": _num(tau), "growth_time_err_ns": _num(tau_err),
-        "theory_growth_time_ns": _num(units.growth_time_ns(th, n))
-        if (th is not None and th > 0 and n is not None) else None,
-        "theory_fastest_growth": fast, "theory_fastest_growth_time_ns": fast_ns,
-        "t_unity_ns": t_unity_ns,
-        "contrast_max": _num(_get(s, "contrast", "max")),
-        "clump_count": _num(_get(s, "clumps", "count")),
-        "clump_size_median_cm": _num(_get(s, "clumps", "size_median_cm")),
-        "nu_c_hz": _num(_get(s, "coherence", "frequency_cutoff_hz")),
-        "bulk_gamma": _num(_get(s, "coherence", "bulk_gamma")),
-        "energy_error_max": _num(_get(s, "energy", "relative_error_max")),
-        "wall_s": _num(s.get("wall_s")),
-    }
+    """The METRICS of one summary.json (missing or null entries give None)."""
+    out = {k: finite_or_none(_get(s, *path)) for k, (_, _, path) in _PATHS.items()}
+    mode = _get(s, "growth", "mode")
+    out["growth_mode"] = int(mode) if isinstance(mode, int) and not isinstance(mode, bool) \
+        else None
+    return out
 
 
 def collect_rows(scan: Scan, out: Path) -> list[dict]:

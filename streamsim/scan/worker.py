@@ -118,7 +118,7 @@ def run_point(task: dict) -> dict:
     "figures"}. Returns {"run", "hash", "status", "error", "kind", "wall_s", "host", "threads"}."""
     from .. import io
     from ..deck import DeckError, load_deck
-    from ..engine import Interrupted, NumericalError, run
+    from ..pipeline import Interrupted, NumericalError, run
 
     folder = Path(task["folder"])
     threads = threads_for_run(task.get("threads"), task.get("where", "pool"))
@@ -139,13 +139,13 @@ def run_point(task: dict) -> dict:
         try:
             deck = load_deck(task["deck"])
             try:
-                result = run(deck, out=folder, quiet=True, analyze=False, threads=threads,
-                             resume=state == "interrupted")
+                run(deck, out=folder, quiet=True, threads=threads,
+                    figures=bool(task.get("figures")), resume=state == "interrupted")
             except io.OutputError:
                 if state != "interrupted":
                     raise
-                result = run(deck, out=folder, quiet=True, analyze=False, threads=threads)
-            _analyze(result, folder, bool(task.get("figures")))
+                run(deck, out=folder, quiet=True, threads=threads,
+                    figures=bool(task.get("figures")))
         except Interrupted as ex:
             return dict(rec, status="interrupted", error=_one_line(ex), kind="interrupted",
                         wall_s=time.time() - t0)
@@ -178,21 +178,3 @@ def write_failure(folder: Path, hash_: str, run: int, kind: str, error: str,
     io.write_json(folder / ERROR_FILE, {"kind": kind, "error": error, "traceback": tb})
     io.write_json(folder / POINT_FILE, dict(extra or {}, hash=hash_, run=run, status="failed",
                                             kind=kind, error=error))
-
-
-def _analyze(result, folder: Path, figures: bool) -> None:
-    """The analysis of a finished run, as the engine does it, optionally without per-run figures;
-    a failure is recorded in summary.json (the run's data stay complete)."""
-    from .. import io
-    try:
-        from ..analysis import analyze
-    except ImportError:
-        return
-    try:
-        analyze(result, folder=folder, write=True, figures=figures)
-    except io.OutputError:
-        raise
-    except Exception as ex:  # noqa: BLE001 - keep the run, report the failure in the summary
-        summ = _read_json(folder / "summary.json") or {}
-        summ["analysis_error"] = f"{ex.__class__.__name__}: {_one_line(ex)}"
-        io.write_json(folder / "summary.json", summ)

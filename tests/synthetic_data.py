@@ -15,7 +15,7 @@ import math
 import numpy as np
 from scipy import special
 
-from ..rundata import DensitySnapshots, ParticleSnapshot, PhaseSpace, RunData, TimeSeries
+from streamsim.rundata import DensitySnapshots, ParticleSnapshot, PhaseSpace, RunData, TimeSeries
 
 __all__ = ["saturating_exponential", "gaussian_bunch_positions", "synthetic_run"]
 
@@ -110,19 +110,26 @@ def synthetic_run(*, names=("electrons", "positrons"), length=20.0, cells=128, m
             weight={nm: 1.0 / (S * particles) for nm in names})
 
     k = 2 * math.pi * m / length
-    theory = {"model": "synthetic (prescribed rates)",
-              "fastest": {"k": float(k[np.argmax(rates)]), "growth": float(rates.max()),
-                          "omega_r": 0.0},
-              "unstable_band": [float(k[rates > 0].min()), float(k[rates > 0].max())]
-              if (rates > 0).any() else None,
-              "box_modes": [{"mode": int(mm), "k": float(kk), "growth": float(g), "omega_r": 0.0}
-                            for mm, kk, g in zip(m, k, rates)]}
-    deck = {"title": "synthetic", "units": {"density_cm3": density_cm3},
-            "box": {"length": length, "cells": cells},
-            "species": [{"name": nm} for nm in names],
-            "analysis": analysis or {"clump_threshold": 0.5, "coherence_drop": 0.5,
-                                     "coherence_kmax_factor": 4.0, "bulk_gamma": 1.0,
-                                     "energy_tolerance": 0.01}}
+    from streamsim.deck import load_deck
+    from streamsim.theory import BoxMode, Dispersion, FastestMode
+    grows = rates > 0
+    theory = Dispersion(
+        model="synthetic (prescribed rates)", k=k, growth=np.maximum(rates, 0.0),
+        omega_r=np.zeros_like(k),
+        fastest=FastestMode(float(k[np.argmax(rates)]), float(rates.max()), 0.0),
+        unstable_band=(float(k[grows].min()), float(k[grows].max())) if grows.any() else None,
+        unstable_bands=[], box_modes=[BoxMode(int(mm), float(kk), float(g), 0.0)
+                                      for mm, kk, g in zip(m, k, rates)],
+        box_length=length, density_cm3=density_cm3)
+    deck = load_deck({
+        "title": "synthetic", "units": {"density_cm3": density_cm3},
+        "box": {"length": length, "cells": cells}, "time": {"dt": 0.05, "end": float(t_end)},
+        "species": [{"name": nm, "charge": (-1.0) ** (s + 1), "mass": 1.0, "density": 1.0 / S,
+                     "particles_per_cell": 1} for s, nm in enumerate(names)],
+        "output": {"modes": modes},
+        "analysis": analysis or {"clump_threshold": 0.5, "coherence_drop": 0.5,
+                                 "coherence_kmax_factor": 4.0, "bulk_gamma": 1.0,
+                                 "energy_tolerance": 0.01}})
     return RunData(deck=deck, names=list(names), length=length, cells=cells, dt=0.05,
                    series=series, snapshots=snaps, phase_space=ps, peak=snap(t[-1] * 0.8),
                    end=snap(t[-1]), theory=theory)

@@ -1,0 +1,108 @@
+"""The shape every analysis block shares.
+
+A block is one module in :mod:`streamsim.analysis.blocks` with
+
+- ``NAME``: its name (the key of its result in :attr:`Context.results`);
+- ``compute(ctx: Context) -> BlockResult``;
+- ``SCAN_COLUMNS``: the numbers a scan tabulates from it, as :class:`ScanColumn` (optional).
+
+A :class:`BlockResult` carries everything that leaves the block: its summary.json entries, its
+named tables (written as CSV and HDF5 by :mod:`streamsim.analysis.writers`), its figures (drawn
+from the tables and the summary entries, never recomputed) and its terminal lines. The package
+loops over :data:`streamsim.analysis.registry.BLOCKS`; nothing else needs to know a block exists.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any, Callable
+
+import numpy as np
+
+from ..numbers import finite_or_none
+
+__all__ = ["Table", "BlockResult", "Context", "ScanColumn", "Figure", "fmt"]
+
+
+@dataclass
+class Table:
+    """Columns of equal length; strings allowed. ``units`` maps a column to its unit.
+
+    Written to ``analysis/<name>.csv`` and to the group ``<name>`` of ``analysis.h5``."""
+    name: str
+    columns: dict[str, np.ndarray]
+    units: dict[str, str] = field(default_factory=dict)
+    attrs: dict[str, Any] = field(default_factory=dict)
+
+    def __post_init__(self):
+        self.columns = {k: np.asarray(v) for k, v in self.columns.items()}
+        n = {v.shape[0] if v.ndim else 1 for v in self.columns.values()}
+        if len(n) > 1:
+            raise ValueError(f"table {self.name}: columns of unequal length {sorted(n)}")
+
+    def __len__(self) -> int:
+        for v in self.columns.values():
+            return int(v.shape[0])
+        return 0
+
+    def col(self, name: str) -> np.ndarray:
+        return self.columns[name]
+
+    def where(self, column: str, value) -> "Table":
+        """The rows whose ``column`` equals ``value`` (e.g. one snapshot of a table)."""
+        sel = self.columns[column] == value
+        return Table(self.name, {k: v[sel] for k, v in self.columns.items()}, self.units,
+                     self.attrs)
+
+
+@dataclass
+class Figure:
+    """One figure file of a block: ``draw(block, data) -> matplotlib Figure``."""
+    file: str
+    what: str
+    draw: Callable[["BlockResult", Any], Any]
+
+
+@dataclass
+class BlockResult:
+    name: str
+    summary: dict[str, Any]                 # top-level summary.json key -> JSON-able entry
+    tables: dict[str, Table] = field(default_factory=dict)
+    figures: list[Figure] = field(default_factory=list)
+    lines: list[str] = field(default_factory=list)
+    warnings: list[str] = field(default_factory=list)
+
+    def table(self, name: str) -> Table | None:
+        return self.tables.get(name)
+
+
+@dataclass
+class ScanColumn:
+    """A scan-table column read from summary.json: ``path`` is the key path into it."""
+    name: str
+    unit: str
+    meaning: str
+    path: tuple[str, ...]
+
+
+@dataclass
+class Context:
+    """What a block may read: the run's data, the analysis options and earlier blocks' results."""
+    data: Any                     # streamsim.rundata.RunData
+    options: Any                  # streamsim.deck.Analysis (validated by the deck module)
+    max_particles: int | None = None
+    results: dict[str, BlockResult] = field(default_factory=dict)
+
+    @property
+    def density_cm3(self) -> float:
+        return float(self.data.deck.units.density_cm3)
+
+    @property
+    def theory(self):
+        """The deck's :class:`streamsim.theory.Dispersion`, or None."""
+        return self.data.theory
+
+
+def fmt(value, spec: str = ".4g") -> str:
+    """A number for a terminal line; 'n/a' for None/NaN."""
+    v = finite_or_none(value)
+    return "n/a" if v is None else format(v, spec)

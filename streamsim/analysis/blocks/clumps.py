@@ -1,0 +1,165 @@
+"""Clumps block: connected overdense regions (delta n/n above ``analysis.clump_threshold``) at
+the density snapshot of maximum contrast and at the end; their widths (FWHM), masses and
+positions, the size spectrum and the density power spectrum P(k).
+
+Summary key: ``clumps``. Tables: ``clumps``, ``clump_sizes``, ``density_spectrum``.
+Figure: ``clumps.png``.
+"""
+from __future__ import annotations
+
+import numpy as np
+
+from ... import units
+from .. import clumps as _cl
+from ..base import BlockResult, Context, Figure, ScanColumn, Table, fmt
+
+NAME = "clumps"
+
+SCAN_COLUMNS = [
+    ScanColumn("clump_count", "", "clumps at the analysed snapshot", ("clumps", "count")),
+    ScanColumn("clump_size_median_cm", "cm", "median clump size", ("clumps", "size_median_cm")),
+]
+
+_CLUMP_COLUMNS = ("position", "position_cm", "width", "width_cm", "extent", "peak", "mass",
+                  "fraction", "excess")
+
+
+def _snapshot_choice(density: np.ndarray) -> list[tuple[str, int]]:
+    """(label, index): the density snapshot with the largest max delta n/n of any species, and
+    the last one."""
+    dens = np.asarray(density, float)
+    if dens.ndim != 3 or dens.shape[0] == 0:
+        return []
+    mean = dens.mean(axis=2, keepdims=True)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        dmax = np.nanmax(np.where(mean > 0, dens / mean - 1.0, np.nan), axis=2)
+    score = np.nanmax(np.where(np.isfinite(dmax), dmax, -np.inf), axis=1)
+    return [("peak", int(np.argmax(score))), ("end", dens.shape[0] - 1)]
+
+
+def compute(ctx: Context) -> BlockResult:
+    data, n_cm3 = ctx.data, ctx.density_cm3
+    threshold = ctx.options.clump_threshold
+    snaps = data.snapshots
+    dx = data.length / data.cells
+    skin = units.skin_depth_cm(n_cm3)
+    clump_rows, size_rows, spec_rows = [], [], []
+    per = {}
+    for label, i in _snapshot_choice(snaps.density):
+        t = float(snaps.t[i])
+        dens = np.asarray(snaps.density[i], float)
+        entry = {"t": t, "t_ns": units.time_ns(t, n_cm3), "index": i, "by_species": {}}
+        widths_all = []
+        spectra = {}
+        for s, name in enumerate(data.names):
+            cl = _cl.find_clumps(dens[s], data.length, threshold)
+            for j, c in enumerate(cl):
+                c["width_cm"] = units.length_cm(c["width"], n_cm3)
+                c["position_cm"] = units.length_cm(c["position"], n_cm3)
+                clump_rows.append((label, t, name, j, c))
+            w = [c["width"] for c in cl]
+            widths_all += w
+            med = float(np.median(w)) if w else None
+            entry["by_species"][name] = {
+                "count": len(cl), "size_median": med,
+                "size_median_cm": units.length_cm(med, n_cm3) if med is not None else None,
+                "peak_max": max((c["peak"] for c in cl), default=None)}
+            spectra[name] = _cl.density_power_spectrum(dens[s], data.length)[1]
+        k, spectra["total"] = _cl.density_power_spectrum(dens.sum(axis=0), data.length)
+        edges, counts = _cl.size_histogram(widths_all, dx, data.length)
+        for b, c in enumerate(counts):
+            size_rows.append((label, t, edges[b], edges[b + 1], int(c)))
+        for m in range(k.size):
+            spec_rows.append((label, t, m, k[m], *(spectra[n][m] for n in spectra)))
+        med = float(np.median(widths_all)) if widths_all else None
+        entry.update({"count": len(widths_all), "size_median": med,
+                      "size_median_cm": units.length_cm(med, n_cm3) if med is not None else None,
+                      "histogram": {"edges": edges, "edges_cm": edges * skin, "counts": counts}})
+        per[label] = entry
+    head = dict(per.get("peak") or {"count": 0, "size_median": None, "size_median_cm": None})
+    head["threshold"] = threshold
+    head["snapshot"] = "peak" if "peak" in per else None
+    head["definition"] = ("connected grid regions with delta n/n > threshold (periodic), any "
+                          "species, at the density snapshot of maximum contrast; size = FWHM")
+    head["end"] = per.get("end")
+    tables = {
+        "clumps": Table("clumps", {
+            "snapshot": np.array([r[0] for r in clump_rows], dtype=object),
+            "t": np.array([r[1] for r in clump_rows], float),
+            "species": np.array([r[2] for r in clump_rows], dtype=object),
+            "index": np.array([r[3] for r in clump_rows], int),
+            **{c: np.array([r[4].get(c, np.nan) for r in clump_rows], float)
+               for c in _CLUMP_COLUMNS}},
+            units={"t": "1/omega_p", "position": "c/omega_p", "width": "c/omega_p",
+                   "extent": "c/omega_p", "position_cm": "cm", "width_cm": "cm"}),
+        "clump_sizes": Table("clump_sizes", {
+            "snapshot": np.array([r[0] for r in size_rows], dtype=object),
+            "t": np.array([r[1] for r in size_rows], float),
+            "width_lo": np.array([r[2] for r in size_rows], float),
+            "width_hi": np.array([r[3] for r in size_rows], float),
+            "width_lo_cm": np.array([r[2] * skin for r in size_rows], float),
+            "width_hi_cm": np.array([r[3] * skin for r in size_rows], float),
+            "count": np.array([r[4] for r in size_rows], int)},
+            units={"width_lo": "c/omega_p", "width_hi": "c/omega_p", "width_lo_cm": "cm",
+                   "width_hi_cm": "cm"}),
+    }
+    spec_names = list(data.names) + ["total"]
+    tables["density_spectrum"] = Table("density_spectrum", {
+        "snapshot": np.array([r[0] for r in spec_rows], dtype=object),
+        "t": np.array([r[1] for r in spec_rows], float),
+        "mode": np.array([r[2] for r in spec_rows], int),
+        "k": np.array([r[3] for r in spec_rows], float),
+        "k_per_cm": np.array([r[3] / skin for r in spec_rows], float),
+        **{f"P_{n}": np.array([r[4 + j] for r in spec_rows], float)
+           for j, n in enumerate(spec_names)}},
+        units={"k": "omega_p/c", "k_per_cm": "1/cm"})
+    return BlockResult(NAME, {"clumps": head}, tables,
+                       [Figure("clumps.png", "clump size spectrum and density power spectrum "
+                               "P(k)", _draw)], [_line(head)])
+
+
+def _line(cl: dict) -> str:
+    if cl.get("count"):
+        return (f"clumps (dn/n > {fmt(cl.get('threshold'), 'g')}): {cl['count']} at "
+                f"t = {fmt(cl.get('t'))} /w_p, median FWHM {fmt(cl.get('size_median'), '.3g')} "
+                f"c/w_p = {fmt(cl.get('size_median_cm'), '.3g')} cm")
+    return f"no clump above dn/n > {fmt(cl.get('threshold'), 'g')}"
+
+
+def _draw(res: BlockResult, data):
+    from ...plots import plt
+    skin = units.skin_depth_cm(float(data.deck.units.density_cm3))
+    cl = res.summary["clumps"]
+    fig, (a1, a2) = plt.subplots(1, 2, figsize=(11, 4.2))
+    sizes = res.tables["clump_sizes"]
+    for lab, text in (("peak", "max contrast"), ("end", "end")):
+        part = sizes.where("snapshot", lab)
+        if len(part) and part.col("count").sum() > 0:
+            edges = np.append(part.col("width_lo"), part.col("width_hi")[-1])
+            a1.stairs(part.col("count"), edges, label=f"{text}, t = {part.col('t')[0]:.4g}")
+    a1.set_xlabel("clump width (FWHM) [c/w_p]")
+    a1.set_ylabel("clumps")
+    if cl.get("threshold") is not None:
+        a1.set_title(f"clump sizes (dn/n > {cl['threshold']:g})")
+    sec = a1.secondary_xaxis("top", functions=(lambda x: x * skin, lambda x: x / skin))
+    sec.set_xlabel("cm")
+    if a1.get_legend_handles_labels()[0]:
+        a1.legend(fontsize=8)
+    else:
+        a1.text(0.5, 0.5, "no clump above the threshold", ha="center", transform=a1.transAxes)
+    spec = res.tables["density_spectrum"]
+    for lab, text in (("peak", "max contrast"), ("end", "end")):
+        part = spec.where("snapshot", lab)
+        if not len(part):
+            continue
+        k = part.col("k")
+        for name in data.names:
+            P = part.col(f"P_{name}")
+            a2.loglog(k[1:], np.where(P[1:] > 0, P[1:], np.nan), lw=1,
+                      ls="-" if lab != "end" else "--", label=f"{name}, {text}")
+    a2.set_xlabel("k [w_p/c]")
+    a2.set_ylabel("P(k) of delta n/n")
+    a2.set_title("density power spectrum")
+    if a2.get_legend_handles_labels()[0]:
+        a2.legend(fontsize=8)
+    return fig

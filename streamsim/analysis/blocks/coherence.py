@@ -1,0 +1,154 @@
+"""Coherence block: the form factor |F(k)|^2 of each species from the particle positions at the
+time of maximum contrast (and at the end), its 1/N noise floor, the cutoff k_c and the emission
+cutoff nu_c = Gamma c k_c / 2 pi.
+
+Summary key: ``coherence``. Table: ``form_factor``. Figure: ``coherence.png``.
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ... import units
+from .. import coherence as _co
+from ..base import BlockResult, Context, Figure, ScanColumn, Table, fmt
+
+NAME = "coherence"
+
+SCAN_COLUMNS = [
+    ScanColumn("nu_c_hz", "Hz", "coherence cutoff frequency nu_c (see summary.json coherence)",
+               ("coherence", "frequency_cutoff_hz")),
+    ScanColumn("bulk_gamma", "", "bulk Lorentz factor assumed for nu_c",
+               ("coherence", "bulk_gamma")),
+]
+
+
+def compute(ctx: Context) -> BlockResult:
+    data, n_cm3, opt = ctx.data, ctx.density_cm3, ctx.options
+    drop, bulk, kmf = opt.coherence_drop, opt.bulk_gamma, opt.coherence_kmax_factor
+    modes = _co.form_factor_modes(data.cells, kmf)
+    skin = units.skin_depth_cm(n_cm3)
+    per = {}
+    cols = {"snapshot": [], "t": [], "mode": [], "k": []}
+    power: dict[str, list] = {}
+    floors = {}
+    for label, snap in (("peak", data.peak), ("end", data.end)):
+        if snap is None:
+            continue
+        entry = {"t": float(snap.t), "t_ns": units.time_ns(float(snap.t), n_cm3),
+                 "by_species": {}}
+        k = None
+        for s, name in enumerate(data.names):
+            x = snap.x.get(name)
+            if x is None or len(x) == 0:
+                continue
+            r = _co.species_coherence(x, data.length, modes, drop=drop, density_cm3=n_cm3,
+                                      bulk_gamma=bulk, max_particles=ctx.max_particles, seed=s)
+            k = r.pop("k")
+            power.setdefault(name, []).append(r.pop("power"))
+            floors[f"noise_floor_{label}_{name}"] = r["noise_floor"]
+            if r["k_cutoff"] is not None:
+                r["k_cutoff_per_cm"] = units.wavenumber_per_cm(r["k_cutoff"], n_cm3)
+            entry["by_species"][name] = r
+        if k is not None:
+            cols["snapshot"] += [label] * k.size
+            cols["t"] += [entry["t"]] * k.size
+            cols["mode"] += list(range(1, k.size + 1))
+            cols["k"] += list(k)
+        best = [(n, r) for n, r in entry["by_species"].items() if r["k_cutoff"] is not None]
+        if best:
+            name, r = max(best, key=lambda nr: nr[1]["k_cutoff"])
+            entry.update({"k_cutoff": r["k_cutoff"], "frequency_cutoff_hz": r["frequency_cutoff_hz"],
+                          "noise_floor": r["noise_floor"], "species": name,
+                          "lower_bound": r["lower_bound"], "status": r["status"]})
+        else:
+            fl = [r["noise_floor"] for r in entry["by_species"].values() if r["noise_floor"]]
+            entry.update({"k_cutoff": None, "frequency_cutoff_hz": None,
+                          "noise_floor": max(fl) if fl else None, "species": None,
+                          "lower_bound": False, "status": "no cutoff above the noise floor"
+                          if fl else "no particle positions"})
+        per[label] = entry
+    src = "peak" if "peak" in per else ("end" if "end" in per else None)
+    head = {"k_cutoff": None, "frequency_cutoff_hz": None, "bulk_gamma": bulk,
+            "noise_floor": None, "status": "no particle snapshot"}
+    if src:
+        head.update(per[src])
+    head.update({"bulk_gamma": bulk, "snapshot": src, "drop": drop,
+                 "noise_safety": _co.NOISE_SAFETY, "k_max": 2 * math.pi * modes / data.length,
+                 "kmax_factor": kmf, "assumption": _co.ASSUMPTION,
+                 "criterion": "largest k with |F|^2 >= drop x its peak; reported only if "
+                              "drop x peak >= noise_safety x noise_floor (1/N_macro)"})
+    if head.get("k_cutoff") is not None:
+        head["k_cutoff_per_cm"] = units.wavenumber_per_cm(head["k_cutoff"], n_cm3)
+        head["frequency_cutoff_ghz"] = head["frequency_cutoff_hz"] / 1e9
+    if src == "peak" and "end" in per:
+        head["end"] = {k: per["end"][k] for k in ("t", "k_cutoff", "frequency_cutoff_hz",
+                                                  "noise_floor", "species", "status")}
+    k_all = np.asarray(cols["k"], float)
+    table = Table("form_factor", {
+        "snapshot": np.array(cols["snapshot"], dtype=object),
+        "t": np.asarray(cols["t"], float), "mode": np.asarray(cols["mode"], int), "k": k_all,
+        "k_per_cm": k_all / skin,
+        **{f"F2_{n}": np.concatenate(p) for n, p in power.items()
+           if sum(len(a) for a in p) == k_all.size}},
+        units={"k": "omega_p/c", "k_per_cm": "1/cm", "t": "1/omega_p"}, attrs=floors)
+    return BlockResult(NAME, {"coherence": head}, {"form_factor": table},
+                       [Figure("coherence.png", "form factor |F(k)|^2 per species with the "
+                               "cutoff and the noise floor", _draw)], _lines(head))
+
+
+def _lines(co: dict) -> list[str]:
+    G = co.get("bulk_gamma", 1.0)
+    if co.get("frequency_cutoff_hz") is not None:
+        lb = (" (lower bound: the spectrum is still high at the largest k computed)"
+              if co.get("lower_bound") else "")
+        return [f"coherent emission up to nu_c = {co['frequency_cutoff_hz'] / 1e9:.4g} GHz "
+                f"(k_c = {fmt(co.get('k_cutoff'))} w_p/c, {co.get('species')}, "
+                f"bulk Gamma = {G:g}, noise floor 1/N = {fmt(co.get('noise_floor'), '.2g')})"
+                f"{lb}",
+                "  assumes particles on the same trajectory emitting along the motion; "
+                "nu_c = Gamma c k_c / 2 pi"]
+    if co.get("snapshot") is None:
+        return ["coherence: no particle snapshot in this run"]
+    return [f"coherence: no cutoff above the noise floor (1/N = "
+            f"{fmt(co.get('noise_floor'), '.2g')}, bulk Gamma = {G:g})"]
+
+
+def _draw(res: BlockResult, data):
+    from ...plots import message_figure, plt
+    co = res.summary["coherence"]
+    src = co.get("snapshot")
+    tab = res.tables["form_factor"]
+    part = tab.where("snapshot", src) if src else None
+    if part is None or not len(part):
+        return message_figure("no particle snapshot in this run", (7, 4.5))
+    fig, ax = plt.subplots(figsize=(7, 4.5))
+    k = part.col("k")
+    by = co.get("by_species") or {}
+    for name in data.names:
+        if f"F2_{name}" not in part.columns:
+            continue
+        P = part.col(f"F2_{name}")
+        line, = ax.loglog(k, np.where(P > 0, P, np.nan), lw=0.8, label=f"|F|^2, {name}")
+        floor = (by.get(name) or {}).get("noise_floor")
+        if floor:
+            ax.axhline(floor, color=line.get_color(), ls=":", lw=1,
+                       label=f"noise floor 1/N, {name}")
+        kc = (by.get(name) or {}).get("k_cutoff")
+        if kc:
+            ax.axvline(kc, color=line.get_color(), ls="--", lw=1, label=f"k_c, {name}")
+    fl = [v.get("noise_floor") for v in by.values() if v.get("noise_floor")]
+    if fl:
+        lo, hi = ax.get_ylim()
+        ax.set_ylim(max(lo, 1e-4 * min(fl)), hi)
+    ax.axvline(math.pi * data.cells / data.length, color="0.6", lw=0.8, ls="-.",
+               label="grid Nyquist")
+    ax.set_xlabel("k [w_p/c]")
+    ax.set_ylabel("|F(k)|^2")
+    nu = co.get("frequency_cutoff_hz")
+    txt = (f"nu_c = {nu / 1e9:.4g} GHz (bulk Gamma = {co.get('bulk_gamma', 1):g})" if nu
+           else "no cutoff above the noise floor")
+    ax.set_title(f"form factor at t = {co.get('t', 0):.4g} /w_p; {txt}", fontsize=9)
+    ax.legend(fontsize=7)
+    return fig

@@ -1,0 +1,193 @@
+"""Growth block: the growth rate of every recorded box mode beside its linear theory, the
+headline mode (largest theoretical growth) and the field-energy fit.
+
+Summary keys: ``growth`` (the headline mode), ``modes`` (every mode), ``field_energy_growth``.
+Table: ``growth_modes``. Figures: ``field_energy.png``, ``growth_rates.png``.
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ... import units
+from ...numbers import finite_or_none
+from .. import growth as _gr
+from ..base import BlockResult, Context, Figure, ScanColumn, Table, fmt
+
+NAME = "growth"
+
+SCAN_COLUMNS = [
+    ScanColumn("growth_mode", "", "box mode of the headline growth fit (largest theoretical "
+               "growth)", ("growth", "mode")),
+    ScanColumn("growth_k", "omega_p/c", "its wavenumber", ("growth", "k")),
+    ScanColumn("growth_measured", "omega_p", "measured field-amplitude growth rate",
+               ("growth", "measured")),
+    ScanColumn("growth_measured_err", "omega_p", "1-sigma error of the fit",
+               ("growth", "measured_err")),
+    ScanColumn("growth_theory", "omega_p", "linear theory for the same box mode",
+               ("growth", "theory")),
+    ScanColumn("growth_ratio", "", "measured / theory", ("growth", "ratio")),
+    ScanColumn("growth_time_ns", "ns", "measured e-folding time 1/growth_measured",
+               ("growth", "growth_time_ns")),
+    ScanColumn("growth_time_err_ns", "ns", "its 1-sigma error from the fit",
+               ("growth", "growth_time_err_ns")),
+    ScanColumn("theory_growth_time_ns", "ns", "theory e-folding time of the same box mode",
+               ("growth", "theory_growth_time_ns")),
+    ScanColumn("theory_fastest_growth", "omega_p", "theory growth rate of the fastest mode "
+               "(any k)", ("theory", "fastest", "growth")),
+    ScanColumn("theory_fastest_growth_time_ns", "ns", "its e-folding time",
+               ("theory", "fastest", "growth_time_ns")),
+]
+
+_MODE_COLUMNS = ("mode", "k", "k_per_cm", "measured", "measured_err", "systematic", "theory",
+                 "ratio")
+
+
+def _theory_rates(disp) -> tuple[dict[int, float], float | None, float | None]:
+    """(box mode -> linear growth, largest linear rate, fastest root's rate) of a Dispersion."""
+    if disp is None:
+        return {}, None, None
+    rates = {m.mode: m.growth for m in disp.box_modes}
+    fast = disp.fastest.growth if disp.fastest is not None else None
+    vals = [v for v in [*rates.values(), fast] if finite_or_none(v) is not None]
+    return rates, (max(vals) if vals else None), fast
+
+
+def _headline(modes: list[dict]) -> dict:
+    with_theory = [r for r in modes if r["theory"] is not None and r["theory"] > 0]
+    if with_theory:
+        return dict(max(with_theory, key=lambda r: r["theory"]),
+                    selected_by="largest theoretical growth")
+    fitted = [r for r in modes if r["measured"] is not None]
+    if fitted:
+        return dict(max(fitted, key=lambda r: r["measured"]),
+                    selected_by="largest measured growth (no growing theory mode)")
+    if modes:
+        return dict(modes[0], selected_by="no theory and no fit")
+    return {"mode": None, "k": None, "measured": None, "measured_err": None, "theory": None,
+            "ratio": None, "window": None, "status": _gr.NO_PHASE}
+
+
+def compute(ctx: Context) -> BlockResult:
+    data, n_cm3 = ctx.data, ctx.density_cm3
+    s = data.series
+    rates, g_max, g_fast = _theory_rates(ctx.theory)
+    modes = _gr.fit_modes(s.t, s.mode_amplitude, data.length, rates, g_max)
+    for row in modes:
+        row["k_per_cm"] = units.wavenumber_per_cm(row["k"], n_cm3)
+    head = _headline(modes)
+    meas, err, th = (finite_or_none(head.get(k)) for k in ("measured", "measured_err", "theory"))
+    head["growth_time_ns"] = units.growth_time_ns(meas, n_cm3) if meas and meas > 0 else None
+    head["growth_time_err_ns"] = (head["growth_time_ns"] * err / meas
+                                  if head["growth_time_ns"] is not None and err is not None
+                                  else None)
+    head["theory_growth_time_ns"] = units.growth_time_ns(th, n_cm3) if th and th > 0 else None
+    head["theory_fastest"] = g_fast
+    fe = _gr.fit_field_energy(s.t, s.field_energy, head.get("theory") or None)
+    fe["mode"] = head.get("mode")
+    table = Table("growth_modes", {
+        **{c: _col([r.get(c) for r in modes]) for c in _MODE_COLUMNS},
+        "t0": _col([(r["window"] or [None, None])[0] for r in modes]),
+        "t1": _col([(r["window"] or [None, None])[1] for r in modes]),
+        "status": np.array([r["status"] for r in modes], dtype=object)},
+        units={"k": "omega_p/c", "k_per_cm": "1/cm", "measured": "omega_p",
+               "measured_err": "omega_p", "systematic": "omega_p", "theory": "omega_p",
+               "t0": "1/omega_p", "t1": "1/omega_p"})
+    return BlockResult(NAME, {"growth": head, "modes": modes, "field_energy_growth": fe},
+                       {"growth_modes": table},
+                       [Figure("field_energy.png", "field energy vs time (log) with the fitted "
+                               "and theoretical slopes", _draw_field_energy),
+                        Figure("growth_rates.png", "measured growth rate per box mode with "
+                               "error bars, on the theory curve", _draw_growth_rates)],
+                       _lines(head, modes, fe))
+
+
+def _col(values) -> np.ndarray:
+    return np.array([np.nan if finite_or_none(v) is None else float(v) for v in values], float)
+
+
+def _lines(g: dict, modes: list[dict], fe: dict) -> list[str]:
+    lines = []
+    if g.get("mode") is None:
+        lines.append("growth: no box mode recorded")
+    elif g.get("measured") is None:
+        th = f" (theory {fmt(g.get('theory'))} w_p)" if g.get("theory") is not None else ""
+        lines.append(f"growth, mode {g['mode']} (k = {fmt(g.get('k'))} w_p/c): "
+                     f"{g.get('status') or _gr.NO_PHASE}{th}")
+    else:
+        w = g.get("window") or [None, None]
+        th = (f" vs theory {fmt(g['theory'])} (ratio {fmt(g.get('ratio'), '.3f')})"
+              if g.get("theory") is not None else " (no theory for this mode)")
+        lines.append(f"growth, mode {g['mode']} (k = {fmt(g.get('k'))} w_p/c): measured "
+                     f"{fmt(g['measured'])} +- {fmt(g.get('measured_err'), '.2g')} w_p{th}, "
+                     f"fitted over t = {fmt(w[0], '.3g')}..{fmt(w[1], '.3g')} /w_p")
+    if fe.get("measured") is not None:
+        th = f" (theory 2*gamma = {fmt(fe['theory'])})" if fe.get("theory") else ""
+        lines.append(f"field energy grows at {fmt(fe['measured'])} +- "
+                     f"{fmt(fe.get('measured_err'), '.2g')} w_p{th}")
+    if modes:
+        n_fit = sum(1 for r in modes if r.get("measured") is not None)
+        lines.append(f"modes with a linear phase: {n_fit} of {len(modes)}")
+    return lines
+
+
+# -- figures ----------------------------------------------------------------------------------
+def _draw_field_energy(res: BlockResult, data):
+    from ...plots import plt
+    s = data.series
+    t = np.asarray(s.t, float)
+    W = np.asarray(s.field_energy, float)
+    fig, ax = plt.subplots(figsize=(7, 4.5))
+    ok = W > 0
+    ax.semilogy(t[ok], W[ok], color="0.2", lw=1.2, label="field energy")
+    fe = res.summary["field_energy_growth"]
+    g = res.summary["growth"]
+    if fe.get("window"):
+        t0, t1 = fe["window"]
+        sel = (t >= t0) & (t <= t1) & ok
+        if sel.any():
+            tt = t[sel]
+            b = float(np.mean(np.log(W[sel]) - fe["measured"] * tt))
+            ax.semilogy(tt, np.exp(b + fe["measured"] * tt), "--", lw=2,
+                        label=f"fit: {fe['measured']:.4g} w_p (= 2 x {fe['measured'] / 2:.4g})")
+            if fe.get("theory"):
+                tm = 0.5 * (t0 + t1)
+                Wm = math.exp(b + fe["measured"] * tm)
+                ax.semilogy(tt, Wm * np.exp(fe["theory"] * (tt - tm)), ":", lw=2,
+                            label=f"theory: 2 x {fe['theory'] / 2:.4g} w_p")
+            ax.axvspan(t0, t1, color="0.9", zorder=0)
+    elif g.get("theory"):
+        ax.text(0.02, 0.95, _gr.NO_PHASE, transform=ax.transAxes, va="top")
+    ax.set_xlabel("t [1/w_p]")
+    ax.set_ylabel("field energy [normalised]")
+    ax.set_title(f"field energy (mode {g.get('mode')} has the largest theoretical growth)")
+    ax.legend(loc="lower right", fontsize=8)
+    return fig
+
+
+def _draw_growth_rates(res: BlockResult, data):
+    from ...plots import plt
+    fig, ax = plt.subplots(figsize=(7, 4.5))
+    disp = data.theory
+    if disp is not None and len(disp.k):
+        ax.plot(disp.k, disp.growth, "-", color="0.4", lw=1.2, label="linear theory")
+    tab = res.tables["growth_modes"]
+    k, th, gm, em = (tab.col(c) for c in ("k", "theory", "measured", "measured_err"))
+    has_th = np.isfinite(th)
+    if has_th.any():
+        ax.plot(k[has_th], th[has_th], "o", mfc="none", color="0.4", ms=5,
+                label="theory, box modes")
+    fit = np.isfinite(gm)
+    if fit.any():
+        ax.errorbar(k[fit], gm[fit], yerr=np.nan_to_num(em[fit]), fmt="s", ms=4, capsize=3,
+                    label="measured (PIC)")
+    if (~fit).any():
+        ax.plot(k[~fit], np.zeros(int((~fit).sum())), "x", color="0.6", ms=4,
+                label=_gr.NO_PHASE)
+    ax.axhline(0, color="0.8", lw=0.8)
+    ax.set_xlabel("k [w_p/c]")
+    ax.set_ylabel("growth rate [w_p]")
+    ax.set_title("growth rate per box mode")
+    ax.legend(fontsize=8)
+    return fig

@@ -1,0 +1,39 @@
+"""Oscillation block: seeded box modes that the linear theory does not make grow ring; their
+frequency and damping are fitted beside the nearest root of the dielectric function.
+
+Summary key: ``oscillation`` (a list, one entry per seeded stable mode). Table: ``oscillation``.
+"""
+from __future__ import annotations
+
+import numpy as np
+
+from .. import oscillation as _os
+from ..base import BlockResult, Context, Table, fmt
+
+NAME = "oscillation"
+SCAN_COLUMNS: list = []
+
+
+def compute(ctx: Context) -> BlockResult:
+    rows = _os.oscillation_block(ctx.data)
+    cols = ("mode", "k", "omega_r", "omega_r_err", "rate", "rate_err", "theory_omega_r",
+            "theory_rate")
+    tables = {}
+    if rows:
+        tables["oscillation"] = Table("oscillation", {
+            c: np.array([np.nan if r.get(c) is None else r[c] for r in rows], float)
+            for c in cols}, units={c: "omega_p" for c in cols if c not in ("mode", "k")})
+    return BlockResult(NAME, {"oscillation": rows}, tables, [], [_line(o) for o in rows])
+
+
+def _line(o: dict) -> str:
+    if o.get("omega_r") is None:
+        return f"seeded mode {o['mode']}: {o.get('note', 'no oscillation to fit')}"
+    th = ""
+    if o.get("theory_omega_r") is not None:
+        sign = "+" if o["theory_rate"] >= 0 else "-"
+        th = (f" vs {o['theory_model']} root {fmt(o['theory_omega_r'], '.4f')} "
+              f"{sign} {fmt(abs(o['theory_rate']), '.4f')}i")
+    return (f"seeded mode {o['mode']} (k = {fmt(o['k'])} w_p/c) rings at "
+            f"{fmt(o['omega_r'], '.4f')} +- {fmt(o.get('omega_r_err'), '.1g')} w_p, "
+            f"rate {fmt(o['rate'], '.4f')} +- {fmt(o.get('rate_err'), '.1g')} w_p{th}")

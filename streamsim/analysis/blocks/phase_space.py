@@ -1,0 +1,42 @@
+"""Phase-space block: no numbers, one figure of the recorded (x, u) subsample.
+
+Figure: ``phase_space.png``.
+"""
+from __future__ import annotations
+
+import numpy as np
+
+from ..base import BlockResult, Context, Figure
+
+NAME = "phase_space"
+SCAN_COLUMNS: list = []
+
+
+def compute(ctx: Context) -> BlockResult:
+    return BlockResult(NAME, {}, {}, [Figure("phase_space.png", "x-u phase space of each "
+                                             "species at a few times", _draw)])
+
+
+def _draw(res: BlockResult, data):
+    from ...plots import message_figure, plt
+    ps = data.phase_space
+    t = np.asarray(ps.t, float) if ps is not None else np.array([])
+    n_t = min(4, t.size)
+    if n_t == 0:
+        return message_figure("no phase-space samples in this run")
+    pick = np.unique(np.linspace(0, t.size - 1, n_t).round().astype(int))
+    fig, axes = plt.subplots(len(pick), 1, figsize=(7, 2.2 * len(pick)), sharex=True,
+                             squeeze=False)
+    for ax, i in zip(axes[:, 0], pick):
+        for name in data.names:
+            x = np.asarray(ps.x.get(name, []))
+            u = np.asarray(ps.u.get(name, []))
+            if x.ndim == 2 and x.shape[0] > i:
+                ax.plot(x[i], u[i], ",", alpha=0.6, label=name)
+        ax.set_ylabel("u = gamma beta")
+        ax.text(0.01, 0.9, f"t = {t[i]:.4g} /w_p", transform=ax.transAxes, fontsize=8)
+    axes[0, 0].legend(loc="upper right", fontsize=8, markerscale=20)
+    axes[-1, 0].set_xlabel("x [c/w_p]")
+    axes[-1, 0].set_xlim(0, data.length)
+    fig.suptitle("phase space")
+    return fig

@@ -1,0 +1,15 @@
+"""The analysis blocks, in the order they run (a later block may read an earlier one's result
+from ``ctx.results``). Adding a block: one module in :mod:`streamsim.analysis.blocks` and one
+line here."""
+from __future__ import annotations
+
+from .blocks import clumps, coherence, contrast, growth, oscillation, phase_space
+
+BLOCKS = (
+    growth,
+    oscillation,
+    contrast,
+    clumps,
+    coherence,
+    phase_space,
+)
