@@ -105,6 +105,88 @@ class Dispersion:
                 d["wavelength_cm"] = units.length_cm(2 * math.pi / m.k, n)
         return out
 
+    # -- typed look-ups for other rooms (instead of digging into the JSON) -------------------
+    def box_mode(self, m: int) -> BoxMode | None:
+        """The box mode of number ``m`` (k_m = 2 pi m / L), or None when the theory holds none."""
+        for b in self.box_modes:
+            if b.mode == m:
+                return b
+        return None
+
+    def growth_at_mode(self, m: int) -> float | None:
+        """Growth rate (omega_p) of box mode ``m``; 0.0 when stable, None when unknown."""
+        b = self.box_mode(m)
+        return None if b is None else finite_or_none(b.growth)
+
+    @property
+    def fastest_growth(self) -> float | None:
+        """Growth rate (omega_p) of the fastest-growing mode of the continuum; None when stable."""
+        return None if self.fastest is None else finite_or_none(self.fastest.growth)
+
+    # -- theory.json back to the typed object ------------------------------------------------
+    @classmethod
+    def from_dict(cls, d: dict) -> "Dispersion":
+        """Rebuild a Dispersion from its :meth:`to_dict` JSON (theory.json, or summary.json's
+        "theory" block), so that ``Dispersion.from_dict(x).to_dict() == x``.
+
+        JSON null becomes NaN in the curve arrays and None elsewhere.  The run length
+        ``time_end`` is not stored as such: it is recovered from ``fastest.efoldings_in_run`` (to
+        the last bit), and is None when the deck is stable.  Raises ValueError for an object that
+        is not a theory result (e.g. the {"error": ...} block of a run whose theory failed).
+        """
+        if not isinstance(d, dict):
+            raise ValueError(f"theory JSON must be an object, not {type(d).__name__}")
+        if "error" in d and "model" not in d:
+            raise ValueError(f"the theory JSON holds no result, only an error: {d['error']}")
+        missing = [key for key in ("model", "fastest", "unstable_bands", "box_modes", "curve")
+                   if key not in d]
+        if missing:
+            raise ValueError(f"not a theory JSON object: missing {', '.join(missing)}")
+        curve = d["curve"] or {}
+
+        def arr(key):
+            return np.array([np.nan if x is None else float(x) for x in curve.get(key) or []],
+                            dtype=float)
+
+        f = d["fastest"]
+        fastest = None
+        time_end = None
+        if f is not None:
+            fastest = FastestMode(float(f["k"]), float(f["growth"]), float(f["omega_r"]))
+            time_end = _time_from_efoldings(f.get("efoldings_in_run"), fastest.growth)
+        modes = []
+        for m in d["box_modes"]:
+            mg = None                            # no key: not the juttner model
+            if "maxwellian_growth" in m:         # null: present but not finite (NaN keeps the key)
+                mg = math.nan if m["maxwellian_growth"] is None else float(m["maxwellian_growth"])
+            modes.append(BoxMode(int(m["mode"]), float(m["k"]),
+                                 math.nan if m.get("growth") is None else float(m["growth"]),
+                                 None if m.get("omega_r") is None else float(m["omega_r"]), mg))
+        band = d.get("unstable_band")
+        return cls(model=str(d["model"]), k=arr("k"), growth=arr("growth"), omega_r=arr("omega_r"),
+                   fastest=fastest,
+                   unstable_band=None if not band else (float(band[0]), float(band[1])),
+                   unstable_bands=[(float(a), float(b)) for a, b in d["unstable_bands"]],
+                   box_modes=modes,
+                   box_length=None if d.get("box_length") is None else float(d["box_length"]),
+                   density_cm3=None if d.get("density_cm3") is None else float(d["density_cm3"]),
+                   time_end=time_end, species=tuple(d.get("species") or ()),
+                   notes=list(d.get("notes") or []))
+
+
+def _time_from_efoldings(efoldings, growth: float) -> float | None:
+    """The run length T with growth * T == efoldings in floating point (T = efoldings / growth,
+    moved by a few ulps where the division does not give back the product exactly)."""
+    if efoldings is None or not growth or not math.isfinite(growth):
+        return None
+    t = efoldings / growth
+    for _ in range(8):
+        p = growth * t
+        if p == efoldings:
+            return t
+        t = math.nextafter(t, math.inf if p < efoldings else -math.inf)
+    return efoldings / growth
+
 
 def theory_for_deck(deck, model: str | None = None, kmax: float | None = None,
                     nk: int = 400) -> Dispersion:
