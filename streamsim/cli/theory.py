@@ -233,7 +233,9 @@ def main(args) -> int:
         try:
             _plot(disp, args.plot, deck.title)
         except OSError as ex:
-            error("output", f"cannot write {args.plot}: {ex}")
+            from streamsim.io import OutputError
+            error("output", str(ex) if isinstance(ex, OutputError)
+                  else f"cannot write {args.plot}: {ex.strerror or ex}")
             return 4
     if args.json:
         print(json.dumps(d, allow_nan=False))
