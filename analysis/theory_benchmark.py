@@ -35,7 +35,7 @@ def main() -> None:
     a = ap.parse_args()
     deck = load_deck(DECK)
     model = a.model or theory.model_for_species(deck.species)
-    kmax = theory._auto_kmax(list(deck.species))
+    kmax = theory.auto_kmax(deck.species)
     k = np.linspace(kmax / a.nk, kmax, a.nk)
     t0 = time.perf_counter()
     growth, omega_r = theory.growth_curve(deck.species, k, model)
