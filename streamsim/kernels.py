@@ -355,38 +355,3 @@ def moment_sums(x, u, efield, qm_dt, length, shape, nchunks, sums):
         sums[c, 2] = p_o
         sums[c, 3] = p_n
         sums[c, 4] = 0.0
-
-
-# ----------------------------------------------------------------------------------------------
-# Simple reference kernels (numpy, one particle at a time semantics) for the correctness tests
-# ----------------------------------------------------------------------------------------------
-def reference_weights(xg: np.ndarray, n: int, shape: int):
-    """Node indices (3, P) and weights (3, P) of particles at grid coordinates xg (numpy)."""
-    xg = np.asarray(xg, dtype=float)
-    if shape == 0:
-        i = np.floor(xg + 0.5).astype(np.int64) % n
-        return np.stack([i, i, i]), np.stack([np.ones_like(xg), 0 * xg, 0 * xg])
-    if shape == 1:
-        i = np.floor(xg).astype(np.int64)
-        f = xg - i
-        i0 = i % n
-        return np.stack([i0, (i0 + 1) % n, (i0 + 1) % n]), np.stack([1 - f, f, 0 * f])
-    i = np.floor(xg + 0.5).astype(np.int64)
-    d = xg - i
-    ic = i % n
-    return (np.stack([(ic - 1) % n, ic, (ic + 1) % n]),
-            np.stack([0.5 * (0.5 - d) ** 2, 0.75 - d * d, 0.5 * (0.5 + d) ** 2]))
-
-
-def reference_step(x, u, efield, qm_dt, dt, length, shape):
-    """One push + deposit in plain numpy: returns (x_new, u_new, node_sums)."""
-    ng = efield.size
-    idx, w = reference_weights(x * ng / length, ng, shape)
-    e = (w * efield[idx]).sum(axis=0)
-    un = u + qm_dt * e
-    xn = np.mod(x + un / np.sqrt(1 + un * un) * dt, length)
-    xn = np.where(xn >= length, xn - length, xn)
-    idx, w = reference_weights(xn * ng / length, ng, shape)
-    rho = np.zeros(ng)
-    np.add.at(rho, idx.ravel(), w.ravel())
-    return xn, un, rho

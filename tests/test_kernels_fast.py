@@ -1,8 +1,8 @@
 """The optimised fused push + deposit against the simple numpy reference kernel
-(kernels.reference_step, one particle at a time semantics), for every shape, on random
-particles and on the awkward cases the blocked, branch-free kernel must still get right:
-block and chunk tails, the serial and the parallel path, grids too large for row copies,
-tiny grids, positions at the box edges, several wraps per step, and NaN/Inf particles.
+(reference_impl.reference_step in this folder, one particle at a time semantics), for every
+shape, on random particles and on the awkward cases the blocked, branch-free kernel must still
+get right: block and chunk tails, the serial and the parallel path, grids too large for row
+copies, tiny grids, positions at the box edges, several wraps per step, and NaN/Inf particles.
 
 Tolerances are round-off: the kernel computes v = u / gamma and gamma - 1 through one shared
 reciprocal, a few ulps from the reference's two divisions, and the grid coordinate as
@@ -14,6 +14,7 @@ import numba
 import numpy as np
 import pytest
 
+from reference_impl import reference_step
 from streamsim import kernels
 
 SHAPES = ["ngp", "cic", "tsc"]
@@ -28,8 +29,7 @@ def _run(x, u, e, qm_dt, dt, length, shape, nchunks):
 
 
 def _check(x, u, e, qm_dt, dt, length, shape, nchunks):
-    xr, ur, rhor = kernels.reference_step(x.copy(), u.copy(), e, qm_dt, dt, length,
-                                          kernels.SHAPES[shape])
+    xr, ur, rhor = reference_step(x.copy(), u.copy(), e, qm_dt, dt, length, kernels.SHAPES[shape])
     xk, uk, partial, sums = _run(x, u, e, qm_dt, dt, length, shape, nchunks)
     eps = np.finfo(float).eps
     jump = 2.0 * np.abs(e).max()
@@ -177,7 +177,7 @@ def test_momentum_sums_match_reference_over_many_steps():
     partial = np.zeros((2, ng))
     sums = np.zeros((2, kernels.NSUMS))
     for _ in range(3):
-        xr, ur, _ = kernels.reference_step(xr, ur, e, -dt, dt, length, 1)
+        xr, ur, _ = reference_step(xr, ur, e, -dt, dt, length, 1)
         kernels.push_deposit(xk, uk, e, -dt, dt, length, 1, 2, partial, sums)
     np.testing.assert_allclose(uk, ur, rtol=0, atol=1e-13)
     d = np.abs(xk - xr)

@@ -95,9 +95,12 @@ def test_wrong_field_factor_fails_validation(monkeypatch):
 @pytest.mark.parametrize("kl,published", [(0.3, 1.1598 - 0.0126j), (0.4, 1.2851 - 0.0661j),
                                           (0.5, 1.4157 - 0.1534j)])
 def test_landau_reference_roots(kl, published):
-    """Widely tabulated Landau roots (4 decimals, quoted from memory in the issue)."""
+    """Widely tabulated Landau roots of the Maxwellian plasma (4 decimals, quoted from memory),
+    against the root of 1 + [1 + zeta Z(zeta)]/(k lambda_D)^2 with Z from scipy.special.wofz
+    (Fried & Conte 1961); the validation's table holds the same values."""
     w = ref.maxwellian_root(kl)
     assert abs(w.real - published.real) < 1e-4 and abs(w.imag - published.imag) < 1e-4
+    assert ref.PUBLISHED_LANDAU_ROOTS[kl] == published
 
 
 def test_cold_symmetric_maximum():

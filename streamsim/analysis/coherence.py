@@ -39,7 +39,7 @@ import numpy as np
 
 from .. import units
 
-__all__ = ["form_factor", "form_factor_direct", "coherence_cutoff", "emission_cutoff_hz",
+__all__ = ["form_factor", "coherence_cutoff", "emission_cutoff_hz",
            "species_coherence", "NOISE_SAFETY", "ASSUMPTION"]
 
 #: the crossing level q P_pk must exceed the shot-noise floor 1/N by this factor
@@ -115,17 +115,6 @@ def form_factor(x, length: float, modes: int, weights=None) -> np.ndarray:
     m = np.arange(modes + 1, dtype=float)
     S *= math.sqrt(math.pi / tau) * np.exp(m * m * tau)
     return S / wsum
-
-
-def form_factor_direct(x, length: float, modes: int, weights=None) -> np.ndarray:
-    """The same sum evaluated directly (O(N M); for checks and small N)."""
-    x = np.asarray(x, float)
-    w = np.ones(x.size) if weights is None else np.broadcast_to(np.asarray(weights, float), x.shape)
-    k = 2.0 * math.pi * np.arange(modes + 1) / length
-    out = np.zeros(modes + 1, complex)
-    for a in range(0, x.size, 4096):
-        out += np.exp(1j * np.outer(k, x[a:a + 4096])) @ w[a:a + 4096]
-    return out / w.sum()
 
 
 def coherence_cutoff(k, power, floor: float, drop: float = 0.5,

@@ -25,6 +25,7 @@ import numpy as np
 from scipy import stats
 
 from ..numbers import finite_or_none
+from .fits import effective_sample_size, error_inflation  # noqa: F401 - public here too
 
 __all__ = ["LinearFit", "find_linear_phase", "effective_sample_size", "fit_modes",
            "fit_field_energy", "NO_PHASE"]
@@ -58,23 +59,6 @@ class LinearFit:
         return {"measured": self.rate, "measured_err": self.rate_err,
                 "systematic": self.systematic, "window": [self.t0, self.t1],
                 "efolds": self.efolds, "rms_residual": self.rms}
-
-
-def effective_sample_size(residuals: np.ndarray) -> float:
-    """n_eff = n (1 - rho1) / (1 + rho1), rho1 the lag-1 autocorrelation of the residuals
-    (Bretherton et al. 1999, J. Climate 12, 1990, eq. 31); n if rho1 <= 0."""
-    r = np.asarray(residuals, float)
-    n = r.size
-    if n < 3:
-        return float(n)
-    r = r - r.mean()
-    den = float(np.dot(r, r))
-    if den <= 0:
-        return float(n)
-    rho = float(np.dot(r[:-1], r[1:]) / den)
-    if rho <= 0:
-        return float(n)
-    return max(2.0, n * (1.0 - rho) / (1.0 + rho))
 
 
 def _window_stats(t, y, c, i0, i1):
@@ -152,8 +136,7 @@ def _fit(t, y, i0, i1, sel) -> LinearFit:
     lr = stats.linregress(tt, yy)
     res = yy - (lr.intercept + lr.slope * tt)
     n = tt.size
-    n_eff = effective_sample_size(res)
-    err = float(lr.stderr) * math.sqrt(max(n - 2, 1) / max(n_eff - 2, 1))
+    err = float(lr.stderr) * error_inflation(res, 2)
     h = n // 2
     if h >= 4:
         a = stats.linregress(tt[:h], yy[:h]).slope

@@ -6,8 +6,9 @@
     v.write_report("runs/out/validation")    # report.md, results.csv, results.json, figures
     v.passed                                 # False if any check failed
 
-The problems, their references and tolerances are in :mod:`.problems`; the reference formulas,
-computed independently of streamsim.theory, in :mod:`.references`.
+The problems (one module each, with its quick/full parameters), their references and tolerances
+are in :mod:`.problems`; the reference formulas, computed independently of streamsim.theory, in
+:mod:`.references`.
 """
 from __future__ import annotations
 

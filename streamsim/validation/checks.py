@@ -3,8 +3,9 @@ from __future__ import annotations
 
 import csv
 import io
-import math
 from dataclasses import dataclass, field
+
+from streamsim.numbers import finite_or_none
 
 
 @dataclass
@@ -31,8 +32,8 @@ class Check:
         self.passed = self.evaluate()
 
     def evaluate(self) -> bool:
-        m, r = self.measured, self.reference
-        if m is None or not math.isfinite(m):
+        m, r = finite_or_none(self.measured), self.reference
+        if m is None:
             return False
         if self.kind == "upper":
             return m <= r
@@ -43,13 +44,14 @@ class Check:
     @property
     def deviation(self) -> float | None:
         """(m - r)/r for relative checks, m - r for absolute ones, m for bounds."""
-        if self.measured is None or not math.isfinite(self.measured):
+        m = finite_or_none(self.measured)
+        if m is None:
             return None
         if self.kind == "relative":
-            return (self.measured - self.reference) / self.reference if self.reference else None
+            return (m - self.reference) / self.reference if self.reference else None
         if self.kind == "absolute":
-            return self.measured - self.reference
-        return self.measured
+            return m - self.reference
+        return m
 
     def tolerance_text(self) -> str:
         if self.kind == "upper":
@@ -59,11 +61,12 @@ class Check:
         return f"±{_g(self.tolerance, 2)}"
 
     def measured_text(self) -> str:
-        if self.measured is None or not math.isfinite(self.measured):
+        m, e = finite_or_none(self.measured), finite_or_none(self.error)
+        if m is None:
             return "no result"
-        if self.error is None or not math.isfinite(self.error) or self.error == 0:
-            return _g(self.measured, 6)
-        return f"{_g(self.measured, 6)} ± {_g(self.error, 2)}"
+        if not e:
+            return _g(m, 6)
+        return f"{_g(m, 6)} ± {_g(e, 2)}"
 
     def reference_text(self) -> str:
         return ("bound" if self.kind == "upper" else _g(self.reference, 6))
@@ -128,8 +131,9 @@ def table_csv(checks) -> str:
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(CSV_FIELDS)
     for c in checks:
-        w.writerow([c.problem, c.quantity, "" if c.measured is None else repr(float(c.measured)),
-                    "" if c.error is None else repr(float(c.error)), repr(float(c.reference)),
+        m, e = finite_or_none(c.measured), finite_or_none(c.error)
+        w.writerow([c.problem, c.quantity, "" if m is None else repr(m),
+                    "" if e is None else repr(e), repr(float(c.reference)),
                     c.source, c.tolerance_text(), c.kind, repr(float(c.tolerance)),
                     "pass" if c.passed else "fail", c.why, c.note])
     return buf.getvalue()

@@ -13,9 +13,9 @@ import math
 import numpy as np
 from scipy import integrate, optimize, special
 
-#: Landau roots omega/omega_p of the Maxwellian electron plasma, widely tabulated (values as quoted
-#: in the issue brief, recalled rather than looked up in a table here: "from memory"). The
-#: validation re-derives each with scipy.special.wofz and compares the two.
+#: Landau roots omega/omega_p of the Maxwellian electron plasma, widely tabulated (4 decimals,
+#: quoted from memory, not looked up in a table here). The validation re-derives each with
+#: scipy.special.wofz and compares the two.
 PUBLISHED_LANDAU_ROOTS = {0.3: complex(1.1598, -0.0126), 0.4: complex(1.2851, -0.0661),
                           0.5: complex(1.4157, -0.1534)}
 

@@ -1,4 +1,6 @@
-"""The validation report: report.md with PNG figures, results.csv, results.json."""
+"""The validation report: report.md with PNG figures, results.csv, results.json.
+
+Figures go through :func:`streamsim.io.save_figure` (atomic: a reader never sees half a PNG)."""
 from __future__ import annotations
 
 import datetime as _dt
@@ -8,23 +10,12 @@ from pathlib import Path
 
 import numpy as np
 
+from streamsim.io import save_figure
+
 from .checks import table_csv, table_markdown
 
 LEAVES_OUT = ("transverse (electromagnetic) fields, the curvature of field lines, radiation "
               "reaction, pair creation and collisions")
-
-
-def _clean(obj):
-    if isinstance(obj, dict):
-        return {k: _clean(v) for k, v in obj.items()}
-    if isinstance(obj, (list, tuple)):
-        return [_clean(v) for v in obj]
-    if isinstance(obj, (np.floating, float)):
-        x = float(obj)
-        return x if math.isfinite(x) else None
-    if isinstance(obj, np.integer):
-        return int(obj)
-    return obj
 
 
 def write_report(v, folder: Path) -> Path:
@@ -44,12 +35,12 @@ def write_report(v, folder: Path) -> Path:
             figures[p.key] = None
             out.data["figure_error"] = f"{ex.__class__.__name__}: {ex}"
     io.write_text(folder / "results.csv", table_csv(v.checks))
-    io.write_json(folder / "results.json", _clean({
+    io.write_json(folder / "results.json", {
         "streamsim_version": __version__, "level": v.level, "passed": v.passed,
         "seconds": v.seconds, "runs": v.runs, "particle_steps": v.particle_steps,
         "checks": [dict(c.row(), why=c.why, note=c.note, kind=c.kind,
                         tolerance_value=c.tolerance) for c in v.checks],
-        "data": {k: o.data for k, o in v.outcomes.items()}}))
+        "data": {k: o.data for k, o in v.outcomes.items()}})   # NaN/inf are written as null
     io.write_text(folder / "report.md", markdown(v, figures, __version__))
     return folder / "report.md"
 
@@ -110,13 +101,6 @@ def _plt():
     return plt
 
 
-def _save(fig, path):
-    fig.tight_layout()
-    fig.savefig(path, dpi=110)
-    import matplotlib.pyplot as plt
-    plt.close(fig)
-
-
 def _points(pts, xkey, ykey="growth", ekey="error"):
     x = np.array([q[xkey] for q in pts if q.get(ykey) is not None], float)
     y = np.array([q[ykey] for q in pts if q.get(ykey) is not None], float)
@@ -134,7 +118,7 @@ def fig_oscillation(d, path):
     ax.set_title(f"cold plasma oscillation: fitted ω = {d['omega']:.6f} ω_p (Δt = {d['dt']})",
                  fontsize=9)
     ax.legend(fontsize=8)
-    _save(fig, path)
+    save_figure(fig, path)
 
 
 def _compare(path, curves, points, xlabel, ylabel, *, scale=1.0, log=False, vline=None,
@@ -154,7 +138,7 @@ def _compare(path, curves, points, xlabel, ylabel, *, scale=1.0, log=False, vlin
     if ylim0:
         ax.set_ylim(bottom=0)
     ax.legend(fontsize=8)
-    _save(fig, path)
+    save_figure(fig, path)
 
 
 def fig_langmuir(d, path):
@@ -178,7 +162,7 @@ def fig_landau(d, path):
         ax.set_title(f"kλ_D = {c['k_lambda']}: fitted γ = {c['fit_gamma']:.4f}", fontsize=9)
         ax.set_xlabel("t [1/ω_p]")
         ax.legend(fontsize=7, loc="lower left")
-    _save(fig, path)
+    save_figure(fig, path)
 
 
 def fig_two_stream(d, path):
@@ -215,7 +199,7 @@ def fig_conservation(d, path):
     for a in (a1, a2):
         a.set_xlabel("t [1/ω_p]")
         a.legend(fontsize=7)
-    _save(fig, path)
+    save_figure(fig, path)
 
 
 def fig_convergence(d, path):
@@ -239,7 +223,7 @@ def fig_convergence(d, path):
     a2.set_yscale("log")
     a2.set_xlabel("particles per cell")
     a2.legend(fontsize=7)
-    _save(fig, path)
+    save_figure(fig, path)
 
 
 FIGURES = {"plasma_oscillation": fig_oscillation, "langmuir": fig_langmuir,
