@@ -20,8 +20,14 @@ A scan file is TOML::
     scale = [1.0, -1.0]
     values = [0.05, 0.1, 0.2]
 
-``species.*.<key>`` addresses every species of the base deck. Every problem is one
-:class:`ScanError` line naming the file, the key and what is wrong.
+``species.*.<key>`` addresses every species of the base deck. Any deck key may be an axis,
+the physical-unit forms too (``box.length_cm``, ``species.*.temperature_kev``); two axes may
+not set two forms of one quantity. Every problem is one :class:`ScanError` line naming the
+file, the key and what is wrong; keys are checked by the deck's own schema
+(:func:`streamsim.deck.check_key_path`), with its "did you mean" and renamed-key messages.
+
+This module imports nothing from :mod:`streamsim.scan.tables`; the table columns an axis may not
+be named after (:data:`RESERVED_COLUMNS`) are listed here and the tables use them.
 """
 from __future__ import annotations
 
