@@ -4,43 +4,62 @@ The key names here are a contract that scripts and scans rely on (see README, "D
 Every key is typed and ranged; an unknown key is rejected with a "did you mean"; every problem is
 reported as one :class:`DeckError` naming the key, its value and what is wrong.
 
-No physics lives here, except the resolution of two derived values: ``box.fastest_wavelengths``
-(asks the linear theory for the fastest-growing wavelength) and ``time.dt = "auto"`` (asks the
-numerical-health rules for a step).
+Loading is two steps:
+
+* :func:`validate` checks the raw TOML table and builds a :class:`Deck` whose derived values are
+  still open (``None``): a box given as ``fastest_wavelengths`` or ``length_cm``, a species given
+  as ``temperature_kev``, ``time.dt = "auto"`` and the output cadences left to their defaults.
+* :func:`resolve` fills them in: the box length from the linear theory (``fastest_wavelengths``)
+  or from centimetres (:mod:`streamsim.units`), ``dt = "auto"`` from the numerical-health rules,
+  theta from keV, and the cadences from ``time.end`` (never below the step).
+
+:func:`load_deck` does both. No physics lives here beyond asking those modules.
+
+This module also holds the one error family for user input (:class:`InputError`, with
+:class:`DeckError` here and ``ScanError`` in :mod:`streamsim.scan.spec`), the one
+:func:`did_you_mean` and the one value formatter :func:`show_value`.
 """
 from __future__ import annotations
 
 import copy
 import dataclasses
 import difflib
+import importlib.resources
 import math
 import re
 import tomllib
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Callable
 
+from ._version import __version__
+
 __all__ = [
-    "DeckError", "Deck", "Species", "Box", "Time", "Units", "Perturbation", "Output", "Analysis",
-    "load_deck", "apply_overrides", "parse_override", "DEFAULT_DECK",
+    "InputError", "DeckError", "did_you_mean", "show_value",
+    "Deck", "Species", "Box", "Time", "Units", "Perturbation", "Output", "Analysis",
+    "load_deck", "validate", "resolve", "apply_overrides", "parse_override", "check_key_path",
+    "exclusive_keys", "RENAMED_KEYS", "DEFAULT_DECK",
 ]
 
-
-class DeckError(ValueError):
-    """A deck problem, tied to one key. ``str(err)`` is the one line the CLI prints."""
-
-    def __init__(self, key: str, message: str, value: Any = dataclasses.MISSING):
-        self.key = key
-        self.value = value
-        self.message = message
-        if value is dataclasses.MISSING:
-            text = f"{key}: {message}" if key else message
-        else:
-            text = f"{key} = {_show(value)}: {message}"
-        super().__init__(text)
+_MISSING = dataclasses.MISSING
 
 
-def _show(value: Any) -> str:
+# --------------------------------------------------------------------------------------------
+# One error family, one "did you mean", one value formatter (decks and scan files)
+# --------------------------------------------------------------------------------------------
+def show_value(value: Any) -> str:
+    """A value as it appears in a one-line message: short, TOML-like numbers (``1e9``, not
+    ``1000000000.0``), strings quoted, long things cut at 60 characters."""
+    if isinstance(value, float) and math.isfinite(value) and value != 0.0:
+        text = repr(value)
+        if "e" not in text and (abs(value) >= 1e6 or abs(value) < 1e-4):
+            for digits in range(17):
+                text = f"{value:.{digits}e}"
+                if float(text) == value:
+                    break
+            mantissa, exponent = text.split("e")
+            text = f"{mantissa}e{int(exponent)}"
+        return text
     if isinstance(value, str):
         return repr(value) if len(value) < 60 else repr(value[:57] + "...")
     if isinstance(value, dict):
@@ -49,8 +68,48 @@ def _show(value: Any) -> str:
     return text if len(text) < 60 else text[:57] + "..."
 
 
+def _closest(word: str, options) -> str | None:
+    close = difflib.get_close_matches(word, sorted(options), n=1, cutoff=0.6)
+    return close[0] if close else None
+
+
+def did_you_mean(word: str, options) -> str:
+    """The message for an unknown key ``word`` among ``options``."""
+    close = _closest(word, options)
+    return (f"unknown key; did you mean '{close}'?" if close
+            else "unknown key; known keys: " + ", ".join(sorted(options)))
+
+
+class InputError(ValueError):
+    """A problem with user input tied to one place (a key, a file, an axis).
+
+    ``str(err)`` is the one line the CLI prints: ``where = value: message`` when the value is
+    given, else ``where: message``.
+    """
+
+    def __init__(self, where: str, message: str, value: Any = _MISSING):
+        self.where = where
+        self.value = value
+        self.message = message
+        if value is not _MISSING:
+            text = f"{where} = {show_value(value)}: {message}" if where else \
+                f"{show_value(value)}: {message}"
+        else:
+            text = f"{where}: {message}" if where else message
+        super().__init__(text)
+
+    @property
+    def key(self) -> str:
+        return self.where
+
+
+class DeckError(InputError):
+    """A deck problem, tied to one key. ``str(err)`` is the one line the CLI prints."""
+
+
 # --------------------------------------------------------------------------------------------
-# The frozen, resolved deck
+# The frozen deck. Fields marked "derived" are None after validate() and filled by resolve();
+# fields with compare=False record how a value was given and do not change the run.
 # --------------------------------------------------------------------------------------------
 @dataclass(frozen=True)
 class Units:
@@ -59,12 +118,13 @@ class Units:
 
 @dataclass(frozen=True)
 class Box:
-    length: float                 # c/omega_p (resolved, also when fastest_wavelengths was given)
+    length: float | None          # c/omega_p (derived when fastest_wavelengths or length_cm was given)
     cells: int
     shape: str                    # "ngp" | "cic" | "tsc"
     solver: str                   # "spectral" | "finite_difference"
-    filter_passes: int            # binomial (1,2,1) passes on rho, with compensation
-    fastest_wavelengths: float | None = None
+    smoothing_passes: int         # binomial (1,2,1) passes on rho, with compensation
+    fastest_wavelengths: float | None = field(default=None, compare=False)
+    length_cm: float | None = field(default=None, compare=False)   # the same length in cm
 
     @property
     def dx(self) -> float:
@@ -77,9 +137,9 @@ class Box:
 
 @dataclass(frozen=True)
 class Time:
-    dt: float                     # 1/omega_p (resolved, also when "auto" was given)
+    dt: float | None              # 1/omega_p (derived when "auto" was given)
     end: float
-    dt_auto: bool = False
+    dt_auto: bool = field(default=False, compare=False)
 
     @property
     def steps(self) -> int:
@@ -93,11 +153,12 @@ class Species:
     mass: float                   # m_e
     density: float                # lab-frame density / n_ref
     drift_u: float                # signed gamma*beta of the drift
-    theta: float                  # kT/(m c^2) in the drift frame
+    theta: float | None           # kT/(m c^2) in the drift frame (derived when temperature_kev was given)
     distribution: str             # "cold" | "juttner" | "waterbag"
     spread_u: float               # waterbag half-width in u (drift frame)
     particles_per_cell: int
     loading: str                  # "quiet" | "random"
+    temperature_kev: float | None = field(default=None, compare=False)  # kT in keV
 
     @property
     def drift_gamma(self) -> float:
@@ -129,12 +190,12 @@ class Perturbation:
 @dataclass(frozen=True)
 class Output:
     folder: str                   # run folder
-    diagnostics_every: float      # 1/omega_p: energies, modes, contrast
-    fields_every: float           # 1/omega_p: meshes and density profiles
-    phase_space_every: float      # 1/omega_p: (x, u) subsample
+    diagnostics_interval: float | None   # 1/omega_p: energies, modes, contrast
+    fields_interval: float | None        # 1/omega_p: meshes and density profiles
+    phase_space_interval: float | None   # 1/omega_p: (x, u) subsample
     phase_space_particles: int    # per species
     modes: int                    # |E_k| recorded for m = 1..modes
-    checkpoint_every: float       # 1/omega_p (default end/10); 0 = only at the end and on a signal
+    checkpoint_interval: float | None    # 1/omega_p (default end/10); 0 = only at the end and on a signal
     threads: int                  # numba threads; 0 = all cores
 
     diagnostics_interval = property(lambda self: self.diagnostics_every)
@@ -171,10 +232,25 @@ class Deck:
                 return s
         raise KeyError(name)
 
+    @property
+    def is_resolved(self) -> bool:
+        """True when every derived value is filled in (see :func:`resolve`)."""
+        o = self.output
+        return (self.box.length is not None and self.box.length_cm is not None
+                and self.time.dt is not None
+                and all(s.theta is not None and s.temperature_kev is not None for s in self.species)
+                and None not in (o.diagnostics_interval, o.fields_interval,
+                                 o.phase_space_interval, o.checkpoint_interval))
+
     def to_dict(self) -> dict:
-        """The resolved deck as plain TOML-ready data (it loads back to an equal Deck)."""
+        """The resolved deck as plain TOML-ready data in normalised keys (it loads back to an
+        equal Deck). The physical forms (``length_cm``, ``temperature_kev``) are left out: they
+        follow from these values and ``units.density_cm3``; :meth:`to_toml` shows them as
+        comments."""
+        if not self.is_resolved:
+            raise ValueError("to_dict() needs a resolved deck (streamsim.deck.resolve)")
         box = {"length": self.box.length, "cells": self.box.cells, "shape": self.box.shape,
-               "solver": self.box.solver, "filter_passes": self.box.filter_passes}
+               "solver": self.box.solver, "smoothing_passes": self.box.smoothing_passes}
         species = []
         for s in self.species:
             d = {"name": s.name, "charge": s.charge, "mass": s.mass, "density": s.density,
@@ -200,8 +276,19 @@ class Deck:
         return out
 
     def to_toml(self) -> str:
+        """:meth:`to_dict` as TOML, after a comment block with the physical forms of the box
+        length and the species temperatures (informational; loading reads only the keys)."""
         import tomli_w
-        return tomli_w.dumps(self.to_dict())
+        head = [f"# Resolved deck, written by streamsim {__version__}. Normalised units: t in "
+                "1/omega_p, x in c/omega_p.",
+                f"# Physical forms at units.density_cm3 = {show_value(self.units.density_cm3)} "
+                "(informational, not read back):",
+                f"#   box.length = {self.box.length:.6g} c/omega_p = {self.box.length_cm:.6g} cm"]
+        for s in self.species:
+            if s.theta > 0:
+                head.append(f"#   species.{s.name}.theta = {s.theta:.6g} = "
+                            f"{s.temperature_kev:.6g} keV")
+        return "\n".join(head) + "\n" + tomli_w.dumps(self.to_dict())
 
 
 # --------------------------------------------------------------------------------------------
@@ -226,6 +313,10 @@ def _finite_pos(v):
     return None if (math.isfinite(v) and v > 0) else "must be a finite number > 0"
 
 
+def _finite_nonneg(v):
+    return None if (math.isfinite(v) and v >= 0) else "must be >= 0"
+
+
 _TOP = {
     "title": _Key("str", "streamsim run", lambda v: None if v.strip() else "must not be empty"),
     "description": _Key("str", ""),
@@ -234,11 +325,12 @@ _TOP = {
 _UNITS = {"density_cm3": _Key("float", 1.0e10, _finite_pos)}
 _BOX = {
     "length": _Key("float", None, _finite_pos),
+    "length_cm": _Key("float", None, _finite_pos),
     "fastest_wavelengths": _Key("float", None, _finite_pos),
     "cells": _Key("int", 256, lambda v: None if 2 <= v <= 1 << 24 else "must be between 2 and 16777216"),
     "shape": _Key("str", "cic", choices=("ngp", "cic", "tsc")),
     "solver": _Key("str", "spectral", choices=("spectral", "finite_difference")),
-    "filter_passes": _Key("int", 0, lambda v: None if 0 <= v <= 16 else "must be between 0 and 16"),
+    "smoothing_passes": _Key("int", 0, lambda v: None if 0 <= v <= 16 else "must be between 0 and 16"),
 }
 _TIME = {
     "dt": _Key("float_or_auto", 0.02),
@@ -253,9 +345,10 @@ _SPECIES = {
     "density": _Key("float", _REQUIRED, _finite_pos),
     "drift_beta": _Key("float", None, lambda v: None if abs(v) < 1 else "|drift_beta| must be < 1"),
     "drift_u": _Key("float", None, lambda v: None if math.isfinite(v) else "must be finite"),
-    "theta": _Key("float", 0.0, lambda v: None if (math.isfinite(v) and v >= 0) else "must be >= 0"),
+    "theta": _Key("float", 0.0, _finite_nonneg),
+    "temperature_kev": _Key("float", None, _finite_nonneg),
     "distribution": _Key("str", None, choices=("cold", "juttner", "waterbag")),
-    "spread_u": _Key("float", 0.0, lambda v: None if (math.isfinite(v) and v >= 0) else "must be >= 0"),
+    "spread_u": _Key("float", 0.0, _finite_nonneg),
     "particles_per_cell": _Key("int", 64, lambda v: None if 1 <= v <= 1 << 20 else "must be between 1 and 1048576"),
     "loading": _Key("str", "quiet", choices=("quiet", "random")),
 }
@@ -266,12 +359,12 @@ _PERTURBATION = {
 }
 _OUTPUT = {
     "folder": _Key("str", None, lambda v: None if v.strip() else "must not be empty"),
-    "diagnostics_every": _Key("float", None, _finite_pos),
-    "fields_every": _Key("float", None, _finite_pos),
-    "phase_space_every": _Key("float", None, _finite_pos),
+    "diagnostics_interval": _Key("float", None, _finite_pos),
+    "fields_interval": _Key("float", None, _finite_pos),
+    "phase_space_interval": _Key("float", None, _finite_pos),
     "phase_space_particles": _Key("int", 4096, _ge(0)),
     "modes": _Key("int", None, _ge(1)),
-    "checkpoint_every": _Key("float", None, lambda v: None if (math.isfinite(v) and v >= 0) else "must be >= 0"),
+    "checkpoint_interval": _Key("float", None, _finite_nonneg),
     "threads": _Key("int", 0, _ge(0)),
 }
 _ANALYSIS = {
@@ -285,11 +378,67 @@ _SECTIONS = {"units": _UNITS, "box": _BOX, "time": _TIME, "perturbation": _PERTU
              "output": _OUTPUT, "analysis": _ANALYSIS}
 _ALL_TOP = set(_TOP) | set(_SECTIONS) | {"species"}
 
+#: keys of earlier versions -> their new names (an old name is a one-line error naming the new)
+RENAMED_KEYS = {
+    "output.diagnostics_every": "output.diagnostics_interval",
+    "output.fields_every": "output.fields_interval",
+    "output.phase_space_every": "output.phase_space_interval",
+    "output.checkpoint_every": "output.checkpoint_interval",
+    "box.filter_passes": "box.smoothing_passes",
+}
 
-def _did_you_mean(word: str, options) -> str:
-    close = difflib.get_close_matches(word, sorted(options), n=1, cutoff=0.6)
-    return f"unknown key; did you mean '{close[0]}'?" if close else \
-        "unknown key; known keys: " + ", ".join(sorted(options))
+#: groups of keys that say the same thing in different forms: give at most one of each group
+_EXCLUSIVE = {
+    "box": (("length", "length_cm", "fastest_wavelengths"),),
+    "species": (("drift_beta", "drift_u"), ("theta", "temperature_kev")),
+}
+
+
+def _group(section: str, key: str) -> tuple[str, ...]:
+    for group in _EXCLUSIVE.get(section, ()):
+        if key in group:
+            return group
+    return ()
+
+
+def exclusive_keys(key: str) -> tuple[str, ...]:
+    """The full deck keys that exclude ``key`` (``"box.length"`` -> ``("box.length_cm",
+    "box.fastest_wavelengths")``; species keys keep their species name)."""
+    parts = key.split(".")
+    if len(parts) < 2:
+        return ()
+    prefix = ".".join(parts[:-1])
+    return tuple(f"{prefix}.{k}" for k in _group(parts[0], parts[-1]) if k != parts[-1])
+
+
+def _unknown(schema_key: str, key: str, options) -> str:
+    """The message for an unknown ``key``; ``schema_key`` is its section-qualified name
+    (``"output.fields_every"``, ``"species.tehta"``), which may name a renamed key."""
+    if schema_key in RENAMED_KEYS:
+        return f"renamed; use {RENAMED_KEYS[schema_key]}"
+    return did_you_mean(key, options)
+
+
+def check_key_path(parts: list[str]) -> None:
+    """Raise :class:`DeckError` unless ``parts`` (a ``--set`` key split at its dots) names a
+    deck key. A species key is ``["species", <name>, <key>]``; the name is not checked here."""
+    key = ".".join(parts)
+    if parts[0] == "species":
+        if len(parts) != 3:
+            raise DeckError(key, "address a species key as species.<name>.<key>")
+        if parts[2] not in _SPECIES:
+            raise DeckError(key, _unknown(f"species.{parts[2]}", parts[2], _SPECIES))
+        return
+    if len(parts) == 1:
+        if parts[0] not in _TOP:
+            raise DeckError(key, did_you_mean(parts[0], set(_TOP) | set(_SECTIONS)))
+    elif len(parts) == 2:
+        if parts[0] not in _SECTIONS:
+            raise DeckError(key, did_you_mean(parts[0], _SECTIONS))
+        if parts[1] not in _SECTIONS[parts[0]]:
+            raise DeckError(key, _unknown(key, parts[1], _SECTIONS[parts[0]]))
+    else:
+        raise DeckError(key, "not a deck key (write section.key)")
 
 
 def _coerce(path: str, spec: _Key, value: Any) -> Any:
@@ -315,9 +464,9 @@ def _coerce(path: str, spec: _Key, value: Any) -> Any:
         if not isinstance(value, str):
             raise DeckError(path, "must be a string (in quotes)", value)
         if spec.choices and value not in spec.choices:
-            close = [c for c in spec.choices if c == value.strip().lower()] or \
-                difflib.get_close_matches(value, spec.choices, n=1)
-            hint = f"; did you mean '{close[0]}'?" if close else ""
+            close = value.strip().lower() if value.strip().lower() in spec.choices else \
+                _closest(value, spec.choices)
+            hint = f"; did you mean '{close}'?" if close else ""
             raise DeckError(path, "must be one of " + ", ".join(f'"{c}"' for c in spec.choices) + hint,
                             value)
     elif kind == "bool":
@@ -343,14 +492,17 @@ def _coerce(path: str, spec: _Key, value: Any) -> Any:
     return value
 
 
-def _table(path: str, raw: Any, schema: dict[str, _Key]) -> dict:
+def _table(path: str, raw: Any, schema: dict[str, _Key], section: str = "") -> dict:
+    """Coerce one table against its schema. ``section`` names the schema for renamed keys
+    (``"species"`` for every species table)."""
     if raw is None:
         raw = {}
     if not isinstance(raw, dict):
         raise DeckError(path, "must be a table ([" + path + "])", raw)
     for key in raw:
         if key not in schema:
-            raise DeckError(f"{path}.{key}" if path else key, _did_you_mean(key, schema))
+            raise DeckError(f"{path}.{key}" if path else key,
+                            _unknown(f"{section}.{key}" if section else key, key, schema))
     out = {}
     for key, spec in schema.items():
         full = f"{path}.{key}" if path else key
@@ -374,36 +526,45 @@ def _species(i: int, raw: Any) -> Species:
         label = f"species.{raw['name']}"
     if not isinstance(raw, dict):
         raise DeckError(label, "must be a table ([[species]])", raw)
-    d = _table(label, raw, _SPECIES)
+    d = _table(label, raw, _SPECIES, "species")
     if d["drift_beta"] is not None and d["drift_u"] is not None:
         raise DeckError(f"{label}.drift_u", "give drift_beta or drift_u, not both", d["drift_u"])
+    kev = d["temperature_kev"]
+    if kev is not None and "theta" in raw:
+        raise DeckError(f"{label}.temperature_kev", "give theta or temperature_kev, not both", kev)
     if d["drift_beta"] is not None:
         b = d["drift_beta"]
         drift_u = b / math.sqrt(1.0 - b * b)
     else:
         drift_u = d["drift_u"] if d["drift_u"] is not None else 0.0
+    # the temperature as given: theta, or keV (converted in resolve())
+    temp_key, temp = ("temperature_kev", kev) if kev is not None else ("theta", d["theta"])
     dist = d["distribution"]
     if dist is None:
-        dist = "waterbag" if d["spread_u"] > 0 else ("juttner" if d["theta"] > 0 else "cold")
-    if dist == "cold" and d["theta"] > 0:
-        raise DeckError(f"{label}.theta", 'a "cold" species must have theta = 0 '
-                        '(use distribution = "juttner" for a warm one)', d["theta"])
+        dist = "waterbag" if d["spread_u"] > 0 else ("juttner" if temp > 0 else "cold")
+    if dist == "cold" and temp > 0:
+        raise DeckError(f"{label}.{temp_key}", f'a "cold" species must have {temp_key} = 0 '
+                        '(use distribution = "juttner" for a warm one)', temp)
     if dist == "waterbag":
-        if "theta" in raw and d["theta"] > 0:
-            raise DeckError(f"{label}.theta", "a waterbag species is set by spread_u, not theta",
-                            d["theta"])
+        if temp_key in raw and temp > 0:
+            raise DeckError(f"{label}.{temp_key}", f"a waterbag species is set by spread_u, not "
+                            f"{temp_key}", temp)
         if not d["spread_u"] > 0:
             raise DeckError(f"{label}.spread_u", "a waterbag species needs spread_u > 0", d["spread_u"])
     elif "spread_u" in raw and d["spread_u"] > 0:
         raise DeckError(f"{label}.spread_u", 'spread_u applies only to distribution = "waterbag"',
                         d["spread_u"])
     return Species(name=d["name"], charge=d["charge"], mass=d["mass"], density=d["density"],
-                   drift_u=drift_u, theta=d["theta"], distribution=dist,
-                   spread_u=d["spread_u"] if dist == "waterbag" else 0.0,
-                   particles_per_cell=d["particles_per_cell"], loading=d["loading"])
+                   drift_u=drift_u, theta=None if kev is not None else d["theta"],
+                   distribution=dist, spread_u=d["spread_u"] if dist == "waterbag" else 0.0,
+                   particles_per_cell=d["particles_per_cell"], loading=d["loading"],
+                   temperature_kev=kev)
 
 
-def _validate(raw: dict) -> Deck:
+def validate(raw: dict) -> Deck:
+    """Check raw deck data (a parsed TOML table) and build the :class:`Deck` it describes.
+
+    Derived values stay ``None`` (see :func:`resolve`). Raises :class:`DeckError`."""
     if not isinstance(raw, dict):
         raise DeckError("", "a deck must be a TOML table")
     for key in raw:
@@ -411,9 +572,9 @@ def _validate(raw: dict) -> Deck:
             hint = ""
             if "axis" in raw or "base" in raw:
                 hint = " (this looks like a scan file: run it with `streamsim scan`)"
-            raise DeckError(key, _did_you_mean(key, _ALL_TOP) + hint)
+            raise DeckError(key, did_you_mean(key, _ALL_TOP) + hint)
     top = _table("", {k: v for k, v in raw.items() if k in _TOP}, _TOP)
-    sec = {name: _table(name, raw.get(name), schema) for name, schema in _SECTIONS.items()}
+    sec = {name: _table(name, raw.get(name), schema, name) for name, schema in _SECTIONS.items()}
 
     raw_species = raw.get("species")
     if raw_species is None:
@@ -430,9 +591,12 @@ def _validate(raw: dict) -> Deck:
             raise DeckError(f"species.{n}.name", "two species have the same name", n)
 
     b = sec["box"]
-    if b["length"] is not None and b["fastest_wavelengths"] is not None:
-        raise DeckError("box.fastest_wavelengths", "give box.length or box.fastest_wavelengths, not both",
-                        b["fastest_wavelengths"])
+    (group,) = _EXCLUSIVE["box"]
+    given = [k for k in group if b[k] is not None]
+    if len(given) > 1:
+        raise DeckError(f"box.{given[-1]}", f"give box.{given[0]} or box.{given[1]}, not both"
+                        if len(given) == 2 else "give one of " + ", ".join(f"box.{k}" for k in given),
+                        b[given[-1]])
     t = sec["time"]
     p = sec["perturbation"]
     for n in p["species"]:
@@ -445,62 +609,111 @@ def _validate(raw: dict) -> Deck:
         raise DeckError("perturbation.modes", f"mode numbers must be <= cells/2 = {b['cells'] // 2}",
                         p["modes"])
 
-    units = Units(**sec["units"])
-    # -- resolve the box length: explicit, from the linear theory, or a default ------------
-    if b["length"] is not None:
-        length = b["length"]
-    elif b["fastest_wavelengths"] is not None:
+    box = Box(length=b["length"], cells=b["cells"], shape=b["shape"], solver=b["solver"],
+              smoothing_passes=b["smoothing_passes"], fastest_wavelengths=b["fastest_wavelengths"],
+              length_cm=b["length_cm"])
+    auto = t["dt"] == "auto"
+    if not auto and t["dt"] > t["end"]:
+        raise DeckError("time.dt", f"must be <= time.end = {t['end']:g}", t["dt"])
+    time = Time(dt=None if auto else t["dt"], end=t["end"], dt_auto=auto)
+
+    o = sec["output"]
+    if not auto:   # a cadence the user gave below the step is an error; defaults are clamped later
+        for key in ("diagnostics_interval", "fields_interval", "phase_space_interval"):
+            v = o[key]
+            if v is not None and v < t["dt"] * (1 - 1e-12):
+                raise DeckError(f"output.{key}", f"must be >= time.dt = {t['dt']:g}", v)
+    modes = o["modes"] or min(b["cells"] // 2, 64)
+    if modes > b["cells"] // 2:
+        raise DeckError("output.modes", f"must be <= cells/2 = {b['cells'] // 2}", modes)
+    title = top["title"]
+    output = Output(folder=o["folder"] or str(Path("runs") / "out" / _slug(title)),
+                    diagnostics_interval=o["diagnostics_interval"],
+                    fields_interval=o["fields_interval"],
+                    phase_space_interval=o["phase_space_interval"],
+                    phase_space_particles=o["phase_space_particles"], modes=modes,
+                    checkpoint_interval=o["checkpoint_interval"], threads=o["threads"])
+    return Deck(title=title, random_seed=top["random_seed"], units=Units(**sec["units"]),
+                box=box, time=time, species=species,
+                perturbation=Perturbation(modes=tuple(p["modes"]), amplitude=p["amplitude"],
+                                          species=tuple(p["species"])),
+                output=output, analysis=Analysis(**sec["analysis"]),
+                description=top["description"])
+
+
+# --------------------------------------------------------------------------------------------
+# Resolution of the derived values
+# --------------------------------------------------------------------------------------------
+def _resolve_species(s: Species) -> Species:
+    from . import units
+    theta = s.theta if s.theta is not None else units.theta_from_kev(s.temperature_kev, s.mass)
+    kev = s.temperature_kev if s.temperature_kev is not None else units.kev_from_theta(theta, s.mass)
+    return dataclasses.replace(s, theta=theta, temperature_kev=kev)
+
+
+def _resolve_box(b: Box, species: tuple[Species, ...], density_cm3: float) -> Box:
+    from . import units
+    length = b.length
+    if length is None and b.length_cm is not None:
+        length = units.length_from_cm(b.length_cm, density_cm3)
+    elif length is None and b.fastest_wavelengths is not None:
         try:
             from .theory import fastest_mode  # lazy: the deck asks the theory only when it must
             fast = fastest_mode(species)
         except Exception as ex:  # noqa: BLE001 - reported as a deck error naming the key
             raise DeckError("box.fastest_wavelengths", f"the linear theory could not find the "
-                            f"fastest mode for these species ({ex})", b["fastest_wavelengths"])
+                            f"fastest mode for these species ({ex})", b.fastest_wavelengths)
         if fast is None or not fast[1] > 0:
             raise DeckError("box.fastest_wavelengths", "these species are linearly stable, so there "
-                            "is no fastest-growing mode; give box.length", b["fastest_wavelengths"])
-        length = b["fastest_wavelengths"] * 2.0 * math.pi / fast[0]
-    else:
+                            "is no fastest-growing mode; give box.length", b.fastest_wavelengths)
+        length = b.fastest_wavelengths * 2.0 * math.pi / fast[0]
+    elif length is None:
         length = 2.0 * math.pi
-    box = Box(length=length, cells=b["cells"], shape=b["shape"], solver=b["solver"],
-              filter_passes=b["filter_passes"], fastest_wavelengths=b["fastest_wavelengths"])
+    length_cm = b.length_cm if b.length_cm is not None else units.length_cm(length, density_cm3)
+    return dataclasses.replace(b, length=length, length_cm=length_cm)
 
-    if t["dt"] == "auto":
-        from .health import auto_dt
-        dt = auto_dt(box, species, t["end"])
-    else:
-        dt = t["dt"]
-    if dt > t["end"]:
-        raise DeckError("time.dt", f"must be <= time.end = {t['end']:g}", t["dt"])
-    time = Time(dt=dt, end=t["end"], dt_auto=t["dt"] == "auto")
 
-    o = sec["output"]
-    title = top["title"]
-    folder = o["folder"] or str(Path("runs") / "out" / _slug(title))
-    # default: 0.1/omega_p (ten samples per e-fold at growth omega_p, ~60 per plasma period),
-    # more often for short runs, never more than once a step
-    diag = o["diagnostics_every"] or max(dt, min(0.1, t["end"] / 200.0))
-    fields_every = o["fields_every"] or t["end"] / 20.0
-    ps_every = o["phase_space_every"] or t["end"] / 8.0
-    if time.dt_auto:  # the user did not choose dt, so a cadence below it means "every step"
-        diag, fields_every, ps_every = (max(v, dt) for v in (diag, fields_every, ps_every))
-    for key, v in (("diagnostics_every", diag), ("fields_every", fields_every),
-                   ("phase_space_every", ps_every)):
-        if v < dt * (1 - 1e-12):
-            raise DeckError(f"output.{key}", f"must be >= time.dt = {dt:g}", v)
-    modes = o["modes"] or min(b["cells"] // 2, 64)
-    if modes > b["cells"] // 2:
-        raise DeckError("output.modes", f"must be <= cells/2 = {b['cells'] // 2}", modes)
-    output = Output(folder=folder, diagnostics_every=diag, fields_every=fields_every,
-                    phase_space_every=ps_every, phase_space_particles=o["phase_space_particles"],
-                    modes=modes, threads=o["threads"],
-                    checkpoint_every=t["end"] / 10.0 if o["checkpoint_every"] is None else o["checkpoint_every"])
-    return Deck(title=title, random_seed=top["random_seed"], units=units, box=box, time=time,
-                species=species,
-                perturbation=Perturbation(modes=tuple(p["modes"]), amplitude=p["amplitude"],
-                                          species=tuple(p["species"])),
-                output=output, analysis=Analysis(**sec["analysis"]),
-                description=top["description"])
+def _resolve_time(t: Time, box: Box, species: tuple[Species, ...]) -> Time:
+    if t.dt is not None:
+        return t
+    from .health import auto_dt
+    return dataclasses.replace(t, dt=auto_dt(box, species, t.end))
+
+
+def _resolve_output(o: Output, t: Time) -> Output:
+    dt, end = t.dt, t.end
+
+    def cadence(given, default):
+        if given is None:      # a default never undercuts the step
+            return max(dt, default)
+        if t.dt_auto:          # the user did not choose dt, so a cadence below it means "every step"
+            return max(dt, given)
+        return given
+
+    checkpoint = o.checkpoint_interval
+    return dataclasses.replace(
+        o,
+        # 0.1/omega_p: ten samples per e-fold at growth omega_p, ~60 per plasma period; more
+        # often for short runs (common practice)
+        diagnostics_interval=cadence(o.diagnostics_interval, min(0.1, end / 200.0)),
+        fields_interval=cadence(o.fields_interval, end / 20.0),
+        phase_space_interval=cadence(o.phase_space_interval, end / 8.0),
+        checkpoint_interval=0.0 if checkpoint == 0 else cadence(checkpoint, end / 10.0))
+
+
+def resolve(deck: Deck) -> Deck:
+    """Fill in the derived values of a validated deck: species temperatures (theta <-> keV),
+    the box length (from ``length_cm`` or the linear theory's fastest wavelength) and its cm
+    form, ``dt = "auto"`` (numerical-health rules) and the output cadences left to their
+    defaults (derived from ``time.end``, never below ``dt``). Resolving a resolved deck
+    returns an equal deck. Raises :class:`DeckError`."""
+    species = tuple(_resolve_species(s) for s in deck.species)
+    box = _resolve_box(deck.box, species, deck.units.density_cm3)
+    time = _resolve_time(deck.time, box, species)
+    if time.dt > time.end * (1 + 1e-12):
+        raise DeckError("time.dt", f"must be <= time.end = {time.end:g}", time.dt)
+    output = _resolve_output(deck.output, time)
+    return dataclasses.replace(deck, species=species, box=box, time=time, output=output)
 
 
 # --------------------------------------------------------------------------------------------
@@ -527,7 +740,9 @@ def parse_override(text: str) -> tuple[list[str], Any]:
 
 
 def apply_overrides(raw: dict, overrides: list[str]) -> dict:
-    """Apply ``--set`` overrides to raw deck data; species are addressed by name."""
+    """Apply ``--set`` overrides to raw deck data; species are addressed by name. Setting one
+    key of an exclusive group (``box.length``/``length_cm``/``fastest_wavelengths``,
+    ``drift_beta``/``drift_u``, ``theta``/``temperature_kev``) drops the others."""
     raw = copy.deepcopy(raw)
     for text in overrides:
         parts, value = parse_override(text)
@@ -541,22 +756,21 @@ def apply_overrides(raw: dict, overrides: list[str]) -> dict:
                 raise DeckError(key, f"no species named '{parts[1]}'; species are "
                                 + ", ".join(map(str, names)))
             target = found[0]
-            if parts[2] in ("drift_beta", "drift_u"):
-                target.pop("drift_beta", None)
-                target.pop("drift_u", None)
+            for other in _group("species", parts[2]):
+                target.pop(other, None)
             target[parts[2]] = value
             continue
         node = raw
         for p in parts[:-1]:
             if p not in _SECTIONS:
-                raise DeckError(key, _did_you_mean(p, _SECTIONS))
+                raise DeckError(key, did_you_mean(p, _SECTIONS))
             node = node.setdefault(p, {})
             if not isinstance(node, dict):
                 raise DeckError(key, f"{p} is not a table")
         last = parts[-1]
-        if len(parts) == 2 and parts[0] == "box" and last in ("length", "fastest_wavelengths"):
-            node.pop("length", None)
-            node.pop("fastest_wavelengths", None)
+        if len(parts) == 2:
+            for other in _group(parts[0], last):
+                node.pop(other, None)
         node[last] = value
     return raw
 
@@ -592,15 +806,16 @@ def read_toml(path: str | Path) -> dict:
 
 
 def load_deck(source: str | Path | dict | Deck | None = None, overrides: list[str] | None = None) -> Deck:
-    """Read, override and validate a deck.
+    """Read, override, validate and resolve a deck.
 
-    ``source`` is a path to a TOML file, an already-parsed dict, a Deck (returned as is, unless
-    there are overrides) or None for the built-in default deck. Raises :class:`DeckError`.
+    ``source`` is a path to a TOML file, an already-parsed dict, a Deck (returned resolved,
+    unless there are overrides) or None for the built-in default deck. Raises
+    :class:`DeckError`.
     """
     if isinstance(source, Deck):
         if not overrides:
-            return source
-        raw = source.to_dict()
+            return source if source.is_resolved else resolve(source)
+        raw = resolve(source).to_dict()
     elif source is None:
         raw = tomllib.loads(DEFAULT_DECK)
     elif isinstance(source, dict):
@@ -609,51 +824,14 @@ def load_deck(source: str | Path | dict | Deck | None = None, overrides: list[st
         raw = read_toml(source)
     if overrides:
         raw = apply_overrides(raw, list(overrides))
-    return _validate(raw)
+    return resolve(validate(raw))
 
 
-#: The built-in default deck (`streamsim run` with no DECK). Also shipped as runs/pair-beams.toml.
-DEFAULT_DECK = """\
-# Symmetric electron-positron beams, the default demo. Invented parameters: a pair plasma of
-# 1e10 cm^-3 whose two species counter-stream at 0.1 c. The two-stream instability grows at about
-# half the beam plasma frequency, saturates near t = 30/omega_p and leaves electron and positron
-# clumps behind.
-title = "symmetric pair beams"
-random_seed = 1
+def _read_default_deck() -> str:
+    return (importlib.resources.files("streamsim").joinpath("data").joinpath("default.toml")
+            .read_text(encoding="utf-8"))
 
-[units]
-density_cm3 = 1.0e10
 
-[box]
-fastest_wavelengths = 8
-cells = 256
-shape = "cic"
-
-[time]
-dt = 0.05
-end = 60.0
-
-[[species]]
-name = "electrons"
-charge = -1.0
-mass = 1.0
-density = 0.5
-drift_beta = 0.1
-theta = 0.0
-particles_per_cell = 128
-loading = "quiet"
-
-[[species]]
-name = "positrons"
-charge = 1.0
-mass = 1.0
-density = 0.5
-drift_beta = -0.1
-theta = 0.0
-particles_per_cell = 128
-loading = "quiet"
-
-[perturbation]
-modes = [8]
-amplitude = 1.0e-4
-"""
+#: The built-in default deck (`streamsim run` with no DECK), the text of the package data file
+#: streamsim/data/default.toml. Also shipped as runs/pair-beams.toml.
+DEFAULT_DECK = _read_default_deck()

@@ -81,15 +81,16 @@ def velocity_max(s) -> float:
 
 def auto_dt(box, species, end: float | None = None) -> float:
     """The step for ``dt = "auto"``: omega_p dt <= 0.1 and v_max dt <= 0.5 dx, rounded down to
-    two significant digits and, given the run's ``end``, shortened so that it divides it."""
+    two significant digits and, given the run's ``end``, shortened so that it divides it (a run
+    shorter than that step takes one step of ``end``)."""
     dt = OMEGA_DT_ACCURATE / max(omega_p_total(species), 1e-300)
     vmax = max(velocity_max(s) for s in species)
     if vmax > 0:
         dt = min(dt, CELL_CROSSING_AUTO * box.dx / vmax)
     exp = math.floor(math.log10(dt))
     dt = float(f"{math.floor(dt / 10**exp * 10) / 10:.1f}e{exp}")
-    if end is not None and end > dt:
-        dt = end / math.ceil(end / dt * (1 - 1e-12))
+    if end is not None:
+        dt = end / max(1, math.ceil(end / dt * (1 - 1e-12)))
     return dt
 
 

@@ -21,6 +21,8 @@ M_E_G = _sc.m_e * 1.0e3
 E_STATC = _sc.e * 10.0 * _sc.c
 #: electron rest energy m_e c^2, erg
 MC2_ERG = M_E_G * C_CM_S**2
+#: electron rest energy m_e c^2, keV (CODATA, scipy.constants: 510.99895 keV)
+MC2_KEV = _sc.physical_constants["electron mass energy equivalent in MeV"][0] * 1.0e3
 
 
 def omega_p_rad_s(density_cm3: float) -> float:
@@ -52,6 +54,26 @@ def time_ns(t: float, density_cm3: float) -> float:
 def length_cm(x: float, density_cm3: float) -> float:
     """A length in c/omega_p, converted to cm: x_cm = x c/omega_p."""
     return x * skin_depth_cm(density_cm3)
+
+
+def length_from_cm(length_cm: float, density_cm3: float) -> float:
+    """A length in cm, converted to c/omega_p: x = x_cm / (c/omega_p) = x_cm omega_p / c
+    (inverse of :func:`length_cm`; c/omega_p from :func:`skin_depth_cm`)."""
+    return length_cm / skin_depth_cm(density_cm3)
+
+
+def theta_from_kev(temperature_kev: float, mass: float = 1.0) -> float:
+    """The temperature parameter theta = kT/(m c^2) of a species of mass ``mass`` m_e whose kT
+    is given in keV: theta = kT / (mass * m_e c^2), m_e c^2 = 510.999 keV (CODATA via
+    scipy.constants). theta is the parameter of the Maxwell-Juttner distribution
+    f ∝ exp(-gamma/theta) (Synge 1957, The Relativistic Gas)."""
+    return temperature_kev / (mass * MC2_KEV)
+
+
+def kev_from_theta(theta: float, mass: float = 1.0) -> float:
+    """kT in keV of a species of mass ``mass`` m_e at theta = kT/(m c^2): kT = theta * mass *
+    m_e c^2 (inverse of :func:`theta_from_kev`)."""
+    return theta * mass * MC2_KEV
 
 
 def wavenumber_per_cm(k: float, density_cm3: float) -> float:

@@ -60,7 +60,7 @@ CASES = [
     ("unknown shape", mut(lambda r: r["box"].update(shape="quadratic")), "box.shape", "one of"),
     ("shape in capitals", mut(lambda r: r["box"].update(shape="CIC")), "box.shape", "did you mean 'cic'"),
     ("unknown solver", mut(lambda r: r["box"].update(solver="fft")), "box.solver", "one of"),
-    ("too many filter passes", mut(lambda r: r["box"].update(filter_passes=20)), "box.filter_passes", "between"),
+    ("too many smoothing passes", mut(lambda r: r["box"].update(smoothing_passes=20)), "box.smoothing_passes", "between"),
     ("length and wavelengths", mut(lambda r: r["box"].update(length=8.0)), "box.fastest_wavelengths", "not both"),
     ("negative length", mut(lambda r: (r["box"].pop("fastest_wavelengths"), r["box"].update(length=-3.0))), "box.length", "> 0"),
     ("zero wavelengths", mut(lambda r: r["box"].update(fastest_wavelengths=0)), "box.fastest_wavelengths", "> 0"),
@@ -93,7 +93,7 @@ CASES = [
     ("empty title", mut(lambda r: r.update(title="  ")), "title", "empty"),
     ("zero recorded modes", mut(lambda r: r.update(output={"modes": 0})), "output.modes", ">= 1"),
     ("too many recorded modes", mut(lambda r: r.update(output={"modes": 999})), "output.modes", "cells/2"),
-    ("diagnostics faster than dt", mut(lambda r: r.update(output={"diagnostics_every": 0.001})), "output.diagnostics_every", "time.dt"),
+    ("diagnostics faster than dt", mut(lambda r: r.update(output={"diagnostics_interval": 0.001})), "output.diagnostics_interval", "time.dt"),
     ("negative threads", mut(lambda r: r.update(output={"threads": -1})), "output.threads", ">= 0"),
     ("output key typo", mut(lambda r: r.update(output={"folderr": "x"})), "output.folderr", "did you mean 'folder'"),
     ("coherence drop above one", mut(lambda r: r.update(analysis={"coherence_drop": 1.5})), "analysis.coherence_drop", "(0, 1)"),
@@ -104,6 +104,19 @@ CASES = [
     ("box not a table", mut(lambda r: r.update(box=5)), "box", "table"),
     ("theta as boolean", mut(lambda r: _e(r).update(theta=True)), "species.electrons.theta", "number"),
     ("drift infinite", mut(lambda r: (_e(r).pop("drift_beta"), _e(r).update(drift_u=float("inf")))), "species.electrons.drift_u", "finite"),
+    # renamed keys name their new name
+    ("old diagnostics key", mut(lambda r: r.update(output={"diagnostics_every": 0.1})), "output.diagnostics_every", "renamed; use output.diagnostics_interval"),
+    ("old fields key", mut(lambda r: r.update(output={"fields_every": 1.0})), "output.fields_every", "renamed; use output.fields_interval"),
+    ("old phase-space key", mut(lambda r: r.update(output={"phase_space_every": 1.0})), "output.phase_space_every", "renamed; use output.phase_space_interval"),
+    ("old checkpoint key", mut(lambda r: r.update(output={"checkpoint_every": 1.0})), "output.checkpoint_every", "renamed; use output.checkpoint_interval"),
+    ("old filter key", mut(lambda r: r["box"].update(filter_passes=1)), "box.filter_passes", "renamed; use box.smoothing_passes"),
+    # physical-unit alternatives are exclusive with their normalised twins
+    ("length_cm and wavelengths", mut(lambda r: r["box"].update(length_cm=40.0)), "box.fastest_wavelengths", "not both"),
+    ("length and length_cm", mut(lambda r: (r["box"].pop("fastest_wavelengths"), r["box"].update(length=8.0, length_cm=40.0))), "box.length_cm", "not both"),
+    ("negative length_cm", mut(lambda r: (r["box"].pop("fastest_wavelengths"), r["box"].update(length_cm=-4.0))), "box.length_cm", "> 0"),
+    ("theta and keV", mut(lambda r: _e(r).update(temperature_kev=1.0)), "species.electrons.temperature_kev", "not both"),
+    ("negative keV", mut(lambda r: (_e(r).pop("theta"), _e(r).update(temperature_kev=-1.0))), "species.electrons.temperature_kev", ">= 0"),
+    ("cold with keV", mut(lambda r: (_e(r).pop("theta"), _e(r).update(distribution="cold", temperature_kev=1.0))), "species.electrons.temperature_kev", "cold"),
 ]
 
 
@@ -259,3 +272,131 @@ def test_negative_threads_and_nothing_to_resume(tmp_path, capsys):
     assert main(["run", "--quiet", "--resume", str(tmp_path / "none")]) == 4
     assert "nothing to resume" in capsys.readouterr().err
     assert not (tmp_path / "o").exists()
+
+
+@pytest.mark.parametrize("override,new", [
+    ("output.fields_every=1.0", "output.fields_interval"),
+    ("box.filter_passes=2", "box.smoothing_passes"),
+])
+def test_renamed_keys_via_set_exit_2_naming_the_new_key(override, new, tmp_path, capsys):
+    rc = main(["run", "--quiet", "--out", str(tmp_path / "o"), "--set", override])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert rc == 2 and len(err) == 1 and err[0].endswith(f"renamed; use {new}")
+    assert not (tmp_path / "o").exists()
+
+
+# --------------------------------------------------------------------------------------------
+# defaults, validation and resolution
+# --------------------------------------------------------------------------------------------
+def test_short_run_with_default_cadences_loads():
+    """time.end = 0.4 with dt = 0.05: the defaults end/20 and end/8 would undercut dt; a
+    default is clamped to the step, only a value the user gave below dt is an error."""
+    deck = load_deck(None, ["time.end=0.4", "time.dt=0.05"])
+    o = deck.output
+    assert o.fields_interval == 0.05 and o.diagnostics_interval == 0.05
+    assert o.phase_space_interval == 0.05 and o.checkpoint_interval == 0.05
+    with pytest.raises(DeckError) as info:
+        load_deck(None, ["time.end=0.4", "time.dt=0.05", "output.fields_interval=0.02"])
+    assert str(info.value) == "output.fields_interval = 0.02: must be >= time.dt = 0.05"
+
+
+def test_user_cadences_are_kept_and_long_run_defaults_follow_end():
+    deck = load_deck(None, ["output.fields_interval=2.5", "output.checkpoint_interval=0"])
+    assert deck.output.fields_interval == 2.5 and deck.output.checkpoint_interval == 0.0
+    assert deck.output.phase_space_interval == 60.0 / 8      # end/8 of the default deck
+
+
+def test_auto_dt_for_a_run_shorter_than_its_step_takes_one_step():
+    deck = load_deck(None, ["time.dt='auto'", "time.end=0.01"])
+    assert deck.time.dt == 0.01 and deck.time.steps == 1
+
+
+def test_default_deck_is_package_data_and_equals_runs_pair_beams():
+    from importlib.resources import files
+    root = Path(__file__).resolve().parents[1]
+    text = files("streamsim").joinpath("data").joinpath("default.toml").read_text(encoding="utf-8")
+    assert text == DEFAULT_DECK
+    assert tomllib.loads(DEFAULT_DECK) == tomllib.loads(
+        (root / "runs" / "pair-beams.toml").read_text(encoding="utf-8"))
+    assert load_deck(None) == load_deck(root / "runs" / "pair-beams.toml")
+
+
+def test_validate_leaves_derived_values_open_and_resolve_fills_them():
+    from streamsim.deck import resolve, validate
+    raw = copy.deepcopy(BASE)
+    raw["time"]["dt"] = "auto"
+    raw["species"][0].pop("theta")
+    raw["species"][0]["temperature_kev"] = 0.5
+    raw["species"][0]["distribution"] = "juttner"
+    bare = validate(raw)
+    assert not bare.is_resolved
+    assert bare.box.length is None and bare.time.dt is None and bare.species[0].theta is None
+    assert bare.output.fields_interval is None and bare.output.checkpoint_interval is None
+    deck = resolve(bare)
+    assert deck.is_resolved and deck == load_deck(raw)
+    assert resolve(deck) == deck                       # resolving twice changes nothing
+    assert load_deck(deck.to_dict()) == deck           # the resolved deck reloads to the same run
+    assert load_deck(tomllib.loads(deck.to_toml())) == deck
+
+
+def test_errors_share_one_class_and_formatter():
+    from streamsim.deck import InputError, did_you_mean, show_value
+    from streamsim.scan import ScanError
+    assert issubclass(DeckError, InputError) and issubclass(ScanError, InputError)
+    assert show_value(1e9) == "1e9" and show_value(0.05) == "0.05" and show_value("x") == "'x'"
+    assert did_you_mean("cels", ["cells", "shape"]) == "unknown key; did you mean 'cells'?"
+    assert str(DeckError("time.end", "too long", 1e9)) == "time.end = 1e9: too long"
+
+
+# --------------------------------------------------------------------------------------------
+# memory estimate and refusal
+# --------------------------------------------------------------------------------------------
+GIB = 2**30
+
+
+def test_memory_estimate_counts_the_arrays():
+    """Bytes counted by hand for the default deck (float64 = 8 B, complex128 = 16 B)."""
+    from streamsim import memory
+    deck = load_deck(None)
+    est = memory.estimate(deck)
+    n = 2 * 128 * 256                                   # 2 species x ppc x cells
+    assert est["particles"] == n * 3 * 8                # x, u + peak copy of x
+    steps = 1200                                        # 60 / 0.05
+    per_record = 8 * (1 + 2 + 1 + 2 + 3 + 3) + 16 * 64   # t, kin, W_E, mom, max, rms, modes
+    assert est["time_series"] == (steps // 2 + 2) * per_record          # every 0.1 = 2 steps
+    assert est["field_snapshots"] == (steps // 60 + 2) * (3 * 256 * 8 + 8)  # every 3.0
+    assert est["phase_space"] == (steps // 150 + 2) * (2 * 8 * 2 * 4096 + 8)
+    assert est["total"] == sum(v for k, v in est.items() if k != "total")
+    assert memory.check(deck, available_bytes=64 * GIB) == est
+
+
+def test_memory_refusal_for_a_very_long_run(tmp_path, capsys):
+    from streamsim import memory
+    deck = load_deck(None, ["time.end=1e9"])
+    with pytest.raises(memory.MemoryRefusal) as info:
+        memory.check(deck, available_bytes=23 * GIB)
+    line = str(info.value)
+    assert isinstance(info.value, DeckError) and "\n" not in line
+    # (2e10 // 2 + 2) records x 1120 bytes = 1.04e4 GiB
+    need = (int(1e9 / 0.05) // 2 + 2) * 1120 / GIB
+    assert line == (f"time.end = 1e9: the time series need {need:.0f} GiB at "
+                    "output.diagnostics_interval = 0.1 (available 23 GiB): raise "
+                    "output.diagnostics_interval or shorten time.end")
+
+
+def test_memory_refusal_for_huge_particle_counts():
+    from streamsim import memory
+    deck = load_deck(None, ["box.cells=65536", "species.electrons.particles_per_cell=1048576"])
+    with pytest.raises(memory.MemoryRefusal) as info:
+        memory.check(deck, available_bytes=8 * GIB)
+    line = str(info.value)
+    assert line.startswith("species.electrons.particles_per_cell = 1048576: the particles need ")
+    assert "(available 8 GiB)" in line and "lower particles_per_cell or box.cells" in line
+    need = (65536 * 1048576 + 65536 * 128) * 24 / GIB
+    assert f"need {need:.0f} GiB" in line
+
+
+def test_memory_available_reads_the_machine():
+    from streamsim import memory
+    avail = memory.memory_available()
+    assert avail is None or avail > 0

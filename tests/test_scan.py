@@ -138,6 +138,12 @@ def test_hash_ignores_folder_and_threads_only(tmp_path):
     ('[[axis]]\nname = "wall_s"\nkey = "box.cells"\nvalues = [32]\n', ["column"]),
     ('[axis]\nkey = "box.cells"\n', ["[[axis]]"]),
     ('[[axis]\n', ["not valid TOML"]),
+    ('[[axis]]\nkey = "output.fields_every"\nvalues = [1.0]\n',
+     ["output.fields_every", "renamed; use output.fields_interval"]),
+    ('[[axis]]\nkey = "box.length"\nvalues = [8.0]\n[[axis]]\nkey = "box.length_cm"\n'
+     'values = [40.0]\n', ["box.length_cm", "box.length", "axis[0]"]),
+    ('[[axis]]\nkey = "species.*.temperature_kev"\nvalues = [1.0]\n[[axis]]\n'
+     'key = "species.electrons.theta"\nvalues = [0.01]\n', ["temperature_kev", "axis[0]"]),
 ])
 def test_bad_scan_files_give_one_clear_line(tmp_path, body, words):
     path = write_scan(tmp_path, body)
@@ -290,3 +296,38 @@ def test_workers_times_threads_never_exceed_the_cores(tmp_path):
     proc = cli("scan", str(path), "--out", str(tmp_path / "c"), "--workers", str(cores + 1))
     assert proc.returncode == 2 and proc.stderr.startswith("argument error:")
     assert not (tmp_path / "a").exists()
+
+
+def test_axes_may_use_physical_keys(tmp_path):
+    """box.length_cm and species.*.temperature_kev as axes: each point resolves to
+    theta = kT/(m c^2) and L omega_p/c (CODATA via scipy.constants, SI route)."""
+    import scipy.constants as sc
+    path = write_scan(tmp_path, """
+[[axis]]
+key = "box.length_cm"
+values = [30.0, 60.0]
+[[axis]]
+key = "species.*.temperature_kev"
+values = [0.5]
+""")
+    scan = load_scan(path)
+    n = load_deck(BASE).units.density_cm3
+    wp = math.sqrt(n * 1e6 * sc.e**2 / (sc.epsilon_0 * sc.m_e))      # rad/s, SI
+    for p, l_cm in zip(scan.points, (30.0, 60.0)):
+        # 1e-9: the Gaussian 1 C = 10 c statC assumes mu_0 = 4 pi 1e-7 (2019 SI: off by ~1e-10)
+        assert p.deck.box.length == pytest.approx(l_cm * 1e-2 * wp / sc.c, rel=1e-9)
+        for s in p.deck.species:
+            assert s.theta == pytest.approx(500 * sc.e / (sc.m_e * sc.c**2), rel=1e-10, abs=0)
+    assert len({p.hash for p in scan.points}) == 2
+
+
+def test_spec_does_not_import_the_tables_and_agrees_with_their_columns():
+    import ast
+    import inspect
+
+    from streamsim.scan import spec, tables
+    tree = ast.parse(inspect.getsource(spec))
+    imported = {n.module for n in ast.walk(tree) if isinstance(n, ast.ImportFrom)}
+    imported |= {a.name for n in ast.walk(tree) if isinstance(n, ast.Import) for a in n.names}
+    assert not any(m and m.split(".")[-1] == "tables" for m in imported), imported
+    assert tables.RUN_COLUMNS == spec.RUN_COLUMNS and tables.METRICS == spec.METRICS

@@ -20,13 +20,18 @@ A scan file is TOML::
     scale = [1.0, -1.0]
     values = [0.05, 0.1, 0.2]
 
-``species.*.<key>`` addresses every species of the base deck. Every problem is one
-:class:`ScanError` line naming the file, the key and what is wrong.
+``species.*.<key>`` addresses every species of the base deck. Any deck key may be an axis,
+the physical-unit forms too (``box.length_cm``, ``species.*.temperature_kev``); two axes may
+not set two forms of one quantity. Every problem is one :class:`ScanError` line naming the
+file, the key and what is wrong; keys are checked by the deck's own schema
+(:func:`streamsim.deck.check_key_path`), with its "did you mean" and renamed-key messages.
+
+This module imports nothing from :mod:`streamsim.scan.tables`; the table columns an axis may not
+be named after (:data:`RESERVED_COLUMNS`) are listed here and the tables use them.
 """
 from __future__ import annotations
 
 import copy
-import difflib
 import hashlib
 import itertools
 import json
@@ -37,14 +42,48 @@ from pathlib import Path
 from typing import Any
 
 from .. import deck as _deck
-from ..deck import Deck, DeckError, apply_overrides, load_deck, parse_override, read_toml_file
+from ..deck import (Deck, DeckError, InputError, apply_overrides, check_key_path, did_you_mean,
+                    exclusive_keys, load_deck, parse_override, read_toml_file, show_value)
 
-__all__ = ["ScanError", "Axis", "Point", "Scan", "load_scan", "deck_hash", "FORBIDDEN_KEYS"]
+__all__ = ["ScanError", "Axis", "Point", "Scan", "load_scan", "deck_hash", "FORBIDDEN_KEYS",
+           "RUN_COLUMNS", "METRICS", "RESERVED_COLUMNS"]
 
 #: deck keys a scan sets itself and that an axis may not vary
 FORBIDDEN_KEYS = {"output.folder": "the scan gives every run its own folder",
                   "output.threads": "the scan chooses numba threads per run (streamsim scan "
                                     "--threads)"}
+
+#: The columns of scan.csv / scan.h5 besides the axes (scan.tables writes them). They live here
+#: so that an axis name can be checked against them without this module importing the tables.
+#: leading columns: which run, its state and where it lives
+RUN_COLUMNS = ("run", "point", "replica", "status", "error", "hash", "folder", "random_seed")
+
+#: column -> (unit, meaning); every number the summary offers that a scan is asked about
+METRICS = {
+    "density_cm3": ("cm^-3", "reference density units.density_cm3"),
+    "growth_mode": ("", "box mode of the headline growth fit (largest theoretical growth)"),
+    "growth_k": ("omega_p/c", "its wavenumber"),
+    "growth_measured": ("omega_p", "measured field-amplitude growth rate"),
+    "growth_measured_err": ("omega_p", "1-sigma error of the fit"),
+    "growth_theory": ("omega_p", "linear theory for the same box mode"),
+    "growth_ratio": ("", "measured / theory"),
+    "growth_time_ns": ("ns", "measured e-folding time 1/growth_measured"),
+    "growth_time_err_ns": ("ns", "its 1-sigma error from the fit"),
+    "theory_growth_time_ns": ("ns", "theory e-folding time of the same box mode"),
+    "theory_fastest_growth": ("omega_p", "theory growth rate of the fastest mode (any k)"),
+    "theory_fastest_growth_time_ns": ("ns", "its e-folding time"),
+    "t_unity_ns": ("ns", "first time max delta n/n reaches 1 (clump formation)"),
+    "contrast_max": ("", "maximum delta n/n over the run"),
+    "clump_count": ("", "clumps at the analysed snapshot"),
+    "clump_size_median_cm": ("cm", "median clump size"),
+    "nu_c_hz": ("Hz", "coherence cutoff frequency nu_c (see summary.json coherence)"),
+    "bulk_gamma": ("", "bulk Lorentz factor assumed for nu_c"),
+    "energy_error_max": ("", "maximum relative energy error"),
+    "wall_s": ("s", "wall time of the run"),
+}
+
+#: every column name an axis may not take
+RESERVED_COLUMNS = frozenset(RUN_COLUMNS) | frozenset(METRICS) | {"error_kind"}
 
 _TOP_KEYS = ("title", "description", "base", "set", "mode", "replicas", "run_figures", "axis")
 _AXIS_KEYS = ("name", "key", "keys", "scale", "values", "linspace", "logspace")
@@ -52,30 +91,9 @@ _SPACE_KEYS = ("start", "stop", "num")
 MAX_POINTS = 100_000
 
 
-class ScanError(ValueError):
-    """A scan-file problem; ``str(err)`` is the one line the CLI prints."""
-
-    def __init__(self, where: str, message: str):
-        self.where = where
-        self.message = message
-        if not where:
-            text = message
-        elif message.startswith("= "):       # "key = value: what is wrong", as for decks
-            text = f"{where} {message}"
-        else:
-            text = f"{where}: {message}"
-        super().__init__(text)
-
-
-def _show(v: Any) -> str:
-    text = repr(v)
-    return text if len(text) < 60 else text[:57] + "..."
-
-
-def _did_you_mean(word: str, options) -> str:
-    close = difflib.get_close_matches(word, sorted(options), n=1, cutoff=0.6)
-    return (f"unknown key; did you mean '{close[0]}'?" if close
-            else "unknown key; known keys: " + ", ".join(sorted(options)))
+class ScanError(InputError):
+    """A scan-file problem; ``str(err)`` is the one line the CLI prints (``where = value:
+    message`` as for decks, see :class:`streamsim.deck.InputError`)."""
 
 
 # --------------------------------------------------------------------------------------------
@@ -186,9 +204,9 @@ def _read(path: Path) -> tuple[dict, str]:
 
 def _number(where: str, v, *, positive=False) -> float:
     if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
-        raise ScanError(where, f"= {_show(v)}: must be a finite number")
+        raise ScanError(where, "must be a finite number", v)
     if positive and not v > 0:
-        raise ScanError(where, f"= {_show(v)}: must be > 0 (logspace is evenly spaced in log)")
+        raise ScanError(where, "must be > 0 (logspace is evenly spaced in log)", v)
     return v
 
 
@@ -197,7 +215,7 @@ def _space(where: str, raw, log: bool) -> tuple:
         raise ScanError(where, "must be a table {start = ..., stop = ..., num = ...}")
     for k in raw:
         if k not in _SPACE_KEYS:
-            raise ScanError(f"{where}.{k}", _did_you_mean(k, _SPACE_KEYS))
+            raise ScanError(f"{where}.{k}", did_you_mean(k, _SPACE_KEYS))
     for k in _SPACE_KEYS:
         if k not in raw:
             raise ScanError(f"{where}.{k}", "is required")
@@ -205,7 +223,7 @@ def _space(where: str, raw, log: bool) -> tuple:
     b = _number(f"{where}.stop", raw["stop"], positive=log)
     n = raw["num"]
     if isinstance(n, bool) or not isinstance(n, int) or not 1 <= n <= MAX_POINTS:
-        raise ScanError(f"{where}.num", f"= {_show(n)}: must be an integer from 1 to {MAX_POINTS}")
+        raise ScanError(f"{where}.num", f"must be an integer from 1 to {MAX_POINTS}", n)
     if n == 1:
         vals = [float(a)]
     elif log:
@@ -231,45 +249,26 @@ def _plain(v) -> bool:
 def _check_key(where: str, key: str, base_raw: dict) -> list[str]:
     """Check one axis key against the deck schema; return it with ``species.*`` expanded."""
     if key in FORBIDDEN_KEYS:
-        raise ScanError(where, f"= {key!r}: cannot be scanned ({FORBIDDEN_KEYS[key]})")
+        raise ScanError(where, f"cannot be scanned ({FORBIDDEN_KEYS[key]})", key)
     wild = key.startswith("species.*.")
     try:
         parts, _ = parse_override((key.replace("*", "X", 1) if wild else key) + "=0")
+        if parts[0] == "species" and len(parts) != 3:
+            raise DeckError(key, "address a species key as species.<name>.<key> "
+                                 "(or species.*.<key> for every species)")
+        check_key_path(parts)
     except DeckError as ex:
-        raise ScanError(where, f"= {key!r}: {ex.message}") from None
-    if wild:
-        parts[1] = "*"
-    species = [s.get("name") for s in base_raw.get("species", []) if isinstance(s, dict)]
-    top = getattr(_deck, "_TOP", None)
-    sections = getattr(_deck, "_SECTIONS", None)
-    spec_keys = getattr(_deck, "_SPECIES", None)
-    if parts[0] == "species":
-        if len(parts) != 3:
-            raise ScanError(where, f"= {key!r}: address a species key as species.<name>.<key> "
-                                   "(or species.*.<key> for every species)")
-        if spec_keys is not None and parts[2] not in spec_keys:
-            raise ScanError(where, f"= {key!r}: " + _did_you_mean(parts[2], spec_keys))
-        if parts[1] == "*":
-            if not species:
-                raise ScanError(where, f"= {key!r}: the base deck has no species")
-            return [f"species.{n}.{parts[2]}" for n in species]
-        if parts[1] not in species:
-            raise ScanError(where, f"= {key!r}: no species named '{parts[1]}' in the base deck; "
-                                   "species are " + ", ".join(map(str, species)))
+        raise ScanError(where, ex.message, key) from None
+    if parts[0] != "species":
         return [key]
-    if top is not None and sections is not None:
-        if len(parts) == 1:
-            if parts[0] not in top:
-                raise ScanError(where, f"= {key!r}: " + _did_you_mean(
-                    parts[0], set(top) | set(sections)))
-        elif len(parts) == 2:
-            if parts[0] not in sections:
-                raise ScanError(where, f"= {key!r}: " + _did_you_mean(parts[0], sections))
-            if parts[1] not in sections[parts[0]]:
-                raise ScanError(where, f"= {key!r}: " + _did_you_mean(parts[1],
-                                                                      sections[parts[0]]))
-        else:
-            raise ScanError(where, f"= {key!r}: not a deck key (write section.key)")
+    species = [s.get("name") for s in base_raw.get("species", []) if isinstance(s, dict)]
+    if wild:
+        if not species:
+            raise ScanError(where, "the base deck has no species", key)
+        return [f"species.{n}.{parts[2]}" for n in species]
+    if parts[1] not in species:
+        raise ScanError(where, f"no species named '{parts[1]}' in the base deck; "
+                               "species are " + ", ".join(map(str, species)), key)
     return [key]
 
 
@@ -279,19 +278,19 @@ def _axis(i: int, raw, base_raw: dict) -> Axis:
         raise ScanError(where, "write each axis as an [[axis]] table")
     for k in raw:
         if k not in _AXIS_KEYS:
-            raise ScanError(f"{where}.{k}", _did_you_mean(k, _AXIS_KEYS))
+            raise ScanError(f"{where}.{k}", did_you_mean(k, _AXIS_KEYS))
     if ("key" in raw) == ("keys" in raw):
         raise ScanError(where, "give key = \"section.name\" or keys = [...], exactly one")
     if "key" in raw:
         if not isinstance(raw["key"], str):
-            raise ScanError(f"{where}.key", f"= {_show(raw['key'])}: must be a string (in quotes)")
+            raise ScanError(f"{where}.key", "must be a string (in quotes)", raw['key'])
         written = [raw["key"]]
     else:
         written = raw["keys"]
         if not isinstance(written, list) or not written or not all(isinstance(k, str)
                                                                    for k in written):
-            raise ScanError(f"{where}.keys", f"= {_show(written)}: must be a non-empty list of "
-                                             "strings")
+            raise ScanError(f"{where}.keys", "must be a non-empty list of "
+                                             "strings", written)
     scale_raw = raw.get("scale")
     if scale_raw is None:
         scale_w = [1.0] * len(written)
@@ -299,15 +298,15 @@ def _axis(i: int, raw, base_raw: dict) -> Axis:
         if isinstance(scale_raw, (int, float)) and not isinstance(scale_raw, bool):
             scale_raw = [scale_raw]
         if not isinstance(scale_raw, list) or len(scale_raw) != len(written):
-            raise ScanError(f"{where}.scale", f"= {_show(scale_raw)}: must be a list of "
-                                              f"{len(written)} number(s), one per key")
+            raise ScanError(f"{where}.scale", "must be a list of "
+                                              f"{len(written)} number(s), one per key", scale_raw)
         scale_w = [float(_number(f"{where}.scale[{j}]", s)) for j, s in enumerate(scale_raw)]
     keys, scale = [], []
     for j, (k, s) in enumerate(zip(written, scale_w)):
         kw = f"{where}.key" if "key" in raw else f"{where}.keys[{j}]"
         for e in _check_key(kw, k, base_raw):
             if e in keys:
-                raise ScanError(kw, f"= {k!r}: the key {e} is listed twice")
+                raise ScanError(kw, f"the key {e} is listed twice", k)
             keys.append(e)
             scale.append(s)
     given = [k for k in ("values", "linspace", "logspace") if k in raw]
@@ -318,7 +317,7 @@ def _axis(i: int, raw, base_raw: dict) -> Axis:
     if spacing == "values":
         values = raw["values"]
         if not isinstance(values, list) or not values:
-            raise ScanError(f"{where}.values", f"= {_show(values)}: must be a non-empty list")
+            raise ScanError(f"{where}.values", "must be a non-empty list", values)
         if len(values) > MAX_POINTS:
             raise ScanError(f"{where}.values", f"more than {MAX_POINTS} values")
         values = tuple(values)
@@ -327,17 +326,17 @@ def _axis(i: int, raw, base_raw: dict) -> Axis:
     if any(s != 1.0 for s in scale):
         for j, v in enumerate(values):
             if isinstance(v, bool) or not isinstance(v, (int, float)):
-                raise ScanError(f"{where}.values[{j}]", f"= {_show(v)}: a scaled axis needs "
-                                                        "numbers")
+                raise ScanError(f"{where}.values[{j}]", "a scaled axis needs "
+                                                        "numbers", v)
     for j, v in enumerate(values):
         if not _plain(v):
-            raise ScanError(f"{where}.values[{j}]", f"= {_show(v)}: must be a number, a string, "
-                                                    "true/false or a list of those")
+            raise ScanError(f"{where}.values[{j}]", "must be a number, a string, "
+                                                    "true/false or a list of those", v)
         if isinstance(v, float) and not math.isfinite(v):
-            raise ScanError(f"{where}.values[{j}]", f"= {_show(v)}: must be finite")
+            raise ScanError(f"{where}.values[{j}]", "must be finite", v)
     name = raw.get("name", written[0])
     if not isinstance(name, str) or not name.strip() or "/" in name:
-        raise ScanError(f"{where}.name", f"= {_show(name)}: must be a non-empty string without '/'")
+        raise ScanError(f"{where}.name", "must be a non-empty string without '/'", name)
     return Axis(name=name.strip(), keys=tuple(keys), scale=tuple(scale), values=values,
                 spacing=spacing)
 
@@ -361,7 +360,8 @@ def load_scan(source: str | Path | dict, overrides: list[str] | None = None, *,
     except ScanError as ex:
         if ex.where.startswith(label):      # already names the file (a TOML syntax error)
             raise
-        raise ScanError(f"{label}: {ex.where}" if ex.where else label, ex.message) from None
+        raise ScanError(f"{label}: {ex.where}" if ex.where else label, ex.message,
+                        ex.value) from None
 
 
 def _validate(raw: dict, path, here: Path, text: str, cli_set: list[str], resolve: bool) -> Scan:
@@ -370,22 +370,22 @@ def _validate(raw: dict, path, here: Path, text: str, cli_set: list[str], resolv
             hint = " (axes are written [[axis]])" if k in ("axes", "axis_") else ""
             if "species" in raw or "box" in raw:
                 hint = " (this looks like a deck: run it with `streamsim run`, or name it as the scan's base)"
-            raise ScanError(k, _did_you_mean(k, _TOP_KEYS) + hint)
+            raise ScanError(k, did_you_mean(k, _TOP_KEYS) + hint)
     title = raw.get("title", path.stem if path else "scan")
     if not isinstance(title, str) or not title.strip():
-        raise ScanError("title", f"= {_show(title)}: must be a non-empty string")
+        raise ScanError("title", "must be a non-empty string", title)
     description = raw.get("description", "")
     if not isinstance(description, str):
         raise ScanError("description", "must be a string")
     mode = raw.get("mode", "product")
     if mode not in ("product", "zip"):
-        raise ScanError("mode", f"= {_show(mode)}: must be \"product\" or \"zip\"")
+        raise ScanError("mode", "must be \"product\" or \"zip\"", mode)
     replicas = raw.get("replicas", 1)
     if isinstance(replicas, bool) or not isinstance(replicas, int) or not 1 <= replicas <= 10_000:
-        raise ScanError("replicas", f"= {_show(replicas)}: must be an integer from 1 to 10000")
+        raise ScanError("replicas", "must be an integer from 1 to 10000", replicas)
     run_figures = raw.get("run_figures", False)
     if not isinstance(run_figures, bool):
-        raise ScanError("run_figures", f"= {_show(run_figures)}: must be true or false")
+        raise ScanError("run_figures", "must be true or false", run_figures)
     base_set = raw.get("set", [])
     if isinstance(base_set, str):
         base_set = [base_set]
@@ -398,16 +398,16 @@ def _validate(raw: dict, path, here: Path, text: str, cli_set: list[str], resolv
         base_raw = tomllib.loads(_deck.DEFAULT_DECK)
     else:
         if not isinstance(base, str) or not base.strip():
-            raise ScanError("base", f"= {_show(base)}: must be a deck path (a string)")
+            raise ScanError("base", "must be a deck path (a string)", base)
         base_path = Path(base).expanduser()
         if not base_path.is_absolute():
             base_path = here / base_path
         if not base_path.is_file():
-            raise ScanError("base", f"= {base!r}: no such deck file ({base_path})")
+            raise ScanError("base", f"no such deck file ({base_path})", base)
         try:
             base_raw = _deck.read_toml(base_path)
         except DeckError as ex:
-            raise ScanError("base", f"= {base!r}: {ex}") from None
+            raise ScanError("base", f"{ex}", base) from None
     for label, items in (("set", base_set), ("--set", cli_set)):
         for j, s in enumerate(items):
             try:
@@ -425,11 +425,10 @@ def _validate(raw: dict, path, here: Path, text: str, cli_set: list[str], resolv
     if not axes and replicas < 2:
         raise ScanError("axis", "a scan needs at least one [[axis]] (or replicas >= 2)")
     names = [a.name for a in axes]
-    from .tables import METRICS, RUN_COLUMNS   # lazy: tables imports this module
     for i, n in enumerate(names):
-        if n in METRICS or n in RUN_COLUMNS or n == "error_kind":
-            raise ScanError(f"axis[{i}].name", f"= {n!r}: is a column of scan.csv already; "
-                                               "choose another name")
+        if n in RESERVED_COLUMNS:
+            raise ScanError(f"axis[{i}].name", "is a column of scan.csv already; "
+                                               "choose another name", n)
     for n in names:
         if names.count(n) > 1:
             raise ScanError("axis", f"two axes have the name {n!r}; give each a distinct name")
@@ -438,6 +437,10 @@ def _validate(raw: dict, path, here: Path, text: str, cli_set: list[str], resolv
         for k in a.keys:
             if k in seen:
                 raise ScanError(f"axis[{i}]", f"the key {k} is already set by axis[{seen[k]}]")
+            for other in exclusive_keys(k):     # e.g. box.length and box.length_cm
+                if other in seen:
+                    raise ScanError(f"axis[{i}]", f"the key {k} says what {other} of "
+                                                  f"axis[{seen[other]}] says; scan one of them")
             seen[k] = i
     if mode == "zip" and axes:
         lens = {len(a.values) for a in axes}
@@ -468,7 +471,7 @@ def _combinations(scan: Scan):
 
 
 def _expand(scan: Scan, base_raw: dict) -> list[Point]:
-    default_seed = _deck._TOP["random_seed"].default if hasattr(_deck, "_TOP") else 1
+    default_seed = _deck._TOP["random_seed"].default
     points: list[Point] = []
     by_hash: dict[str, int] = {}
     for p, idx in enumerate(_combinations(scan)):
