@@ -182,7 +182,7 @@ def measure(particles: int, threads: int, *, steps: int = 10, repeats: int = 3,
         best_kernel = min(best_kernel, time.perf_counter() - t)
     out = {
         "particles": n, "threads": sim.threads, "cells": b.cells, "shape": b.shape,
-        "diagnostics_every_steps": handlers[-1].every,
+        "diagnostics_interval_steps": handlers[-1].every,
         "setup_s": setup,
         "step_s": best_step,
         "particle_steps_per_s": n / best_step,

@@ -130,10 +130,6 @@ class Box:
     def dx(self) -> float:
         return self.length / self.cells
 
-    @property
-    def smoothing_passes(self) -> int:
-        return self.filter_passes
-
 
 @dataclass(frozen=True)
 class Time:
@@ -197,11 +193,6 @@ class Output:
     modes: int                    # |E_k| recorded for m = 1..modes
     checkpoint_interval: float | None    # 1/omega_p (default end/10); 0 = only at the end and on a signal
     threads: int                  # numba threads; 0 = all cores
-
-    diagnostics_interval = property(lambda self: self.diagnostics_every)
-    fields_interval = property(lambda self: self.fields_every)
-    phase_space_interval = property(lambda self: self.phase_space_every)
-    checkpoint_interval = property(lambda self: self.checkpoint_every)
 
 
 @dataclass(frozen=True)

@@ -40,7 +40,7 @@ def binomial_response(k: np.ndarray, dx: float, passes: int) -> np.ndarray:
 
 
 def green_function(cells: int, length: float, solver: str = "spectral",
-                   filter_passes: int = 0) -> np.ndarray:
+                   smoothing_passes: int = 0) -> np.ndarray:
     """G(k) on the rfft modes such that E_k = G(k) rho_k (filter included)."""
     k = wavenumbers(cells, length)
     dx = length / cells
@@ -57,7 +57,7 @@ def green_function(cells: int, length: float, solver: str = "spectral",
             g[-1] = 0.0
     else:
         raise ValueError(f"unknown solver {solver!r}")
-    return g * binomial_response(k, dx, filter_passes)
+    return g * binomial_response(k, dx, smoothing_passes)
 
 
 def solve(rho: np.ndarray, green: np.ndarray) -> np.ndarray:

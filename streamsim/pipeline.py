@@ -356,10 +356,7 @@ def run(deck=None, out: str | Path | None = None, *, quiet: bool = True, resume:
 
 
 def _check_memory(deck: Deck) -> None:
-    try:
-        from . import memory
-    except ImportError:
-        return
+    from . import memory
     memory.check(deck)
 
 

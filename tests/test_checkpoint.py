@@ -22,7 +22,7 @@ from streamsim.cli import main
 
 def _deck(tmp_path, end=100.0):
     raw = pair_deck(cells=64, ppc=16, end=end, beta=0.1, nwaves=4)
-    raw["output"].update(diagnostics_every=0.25, checkpoint_every=5.0)
+    raw["output"].update(diagnostics_interval=0.25, checkpoint_interval=5.0)
     path = tmp_path / "deck.toml"
     path.write_text(tomli_w.dumps(raw))
     return path
@@ -124,7 +124,7 @@ def test_sigterm_checkpoints_and_resumes(reference, tmp_path):
 def test_resume_in_process_matches(tmp_path):
     """The API: stop after some steps, resume, compare with one straight run."""
     raw = pair_deck(cells=64, ppc=8, end=20.0)
-    raw["output"]["checkpoint_every"] = 2.0
+    raw["output"]["checkpoint_interval"] = 2.0
     straight = streamsim.run(raw, out=tmp_path / "a", analyze=False)
     with pytest.raises(streamsim.pipeline.Interrupted):
         streamsim.run(raw, out=tmp_path / "b", analyze=False, stop_after_steps=137)
@@ -138,7 +138,7 @@ def test_resume_in_process_matches(tmp_path):
 
 def test_injected_nan_stops_with_exit_3_and_readable_checkpoint(tmp_path, capsys, monkeypatch):
     raw = pair_deck(cells=64, ppc=8, end=20.0)
-    raw["output"]["checkpoint_every"] = 2.0
+    raw["output"]["checkpoint_interval"] = 2.0
     deck = tmp_path / "deck.toml"
     deck.write_text(tomli_w.dumps(raw))
     real = streamsim.engine.kernels.push_deposit

@@ -48,7 +48,7 @@ def test_binomial_filter_matches_real_space_stencils(passes):
         r = 0.25 * np.roll(r, 1) + 0.5 * r + 0.25 * np.roll(r, -1)
     r = -passes / 4 * np.roll(r, 1) + (1 + passes / 2) * r - passes / 4 * np.roll(r, -1)
     e_ref = fields.solve(r, fields.green_function(n, length, "spectral"))
-    e = fields.solve(rho, fields.green_function(n, length, "spectral", filter_passes=passes))
+    e = fields.solve(rho, fields.green_function(n, length, "spectral", smoothing_passes=passes))
     np.testing.assert_allclose(e, e_ref, atol=1e-12)
 
 

@@ -46,7 +46,7 @@ from ..deck import (Deck, DeckError, InputError, apply_overrides, check_key_path
                     exclusive_keys, load_deck, parse_override, read_toml_file, show_value)
 
 __all__ = ["ScanError", "Axis", "Point", "Scan", "load_scan", "deck_hash", "FORBIDDEN_KEYS",
-           "RUN_COLUMNS", "METRICS", "RESERVED_COLUMNS"]
+           "RUN_COLUMNS", "METRICS", "METRIC_PATHS", "RESERVED_COLUMNS"]
 
 #: deck keys a scan sets itself and that an axis may not vary
 FORBIDDEN_KEYS = {"output.folder": "the scan gives every run its own folder",
@@ -58,29 +58,31 @@ FORBIDDEN_KEYS = {"output.folder": "the scan gives every run its own folder",
 #: leading columns: which run, its state and where it lives
 RUN_COLUMNS = ("run", "point", "replica", "status", "error", "hash", "folder", "random_seed")
 
-#: column -> (unit, meaning); every number the summary offers that a scan is asked about
-METRICS = {
-    "density_cm3": ("cm^-3", "reference density units.density_cm3"),
-    "growth_mode": ("", "box mode of the headline growth fit (largest theoretical growth)"),
-    "growth_k": ("omega_p/c", "its wavenumber"),
-    "growth_measured": ("omega_p", "measured field-amplitude growth rate"),
-    "growth_measured_err": ("omega_p", "1-sigma error of the fit"),
-    "growth_theory": ("omega_p", "linear theory for the same box mode"),
-    "growth_ratio": ("", "measured / theory"),
-    "growth_time_ns": ("ns", "measured e-folding time 1/growth_measured"),
-    "growth_time_err_ns": ("ns", "its 1-sigma error from the fit"),
-    "theory_growth_time_ns": ("ns", "theory e-folding time of the same box mode"),
-    "theory_fastest_growth": ("omega_p", "theory growth rate of the fastest mode (any k)"),
-    "theory_fastest_growth_time_ns": ("ns", "its e-folding time"),
-    "t_unity_ns": ("ns", "first time max delta n/n reaches 1 (clump formation)"),
-    "contrast_max": ("", "maximum delta n/n over the run"),
-    "clump_count": ("", "clumps at the analysed snapshot"),
-    "clump_size_median_cm": ("cm", "median clump size"),
-    "nu_c_hz": ("Hz", "coherence cutoff frequency nu_c (see summary.json coherence)"),
-    "bulk_gamma": ("", "bulk Lorentz factor assumed for nu_c"),
-    "energy_error_max": ("", "maximum relative energy error"),
-    "wall_s": ("s", "wall time of the run"),
+#: run-level columns (not from an analysis block): name -> (unit, meaning, summary.json path)
+_RUN_METRICS = {
+    "density_cm3": ("cm^-3", "reference density units.density_cm3",
+                    ("normalization", "density_cm3")),
 }
+_TAIL_METRICS = {
+    "energy_error_max": ("", "maximum relative energy error", ("energy", "relative_error_max")),
+    "wall_s": ("s", "wall time of the run", ("wall_s",)),
+}
+
+
+def _metric_paths() -> dict[str, tuple[str, str, tuple]]:
+    """Every scan column with its unit, meaning and summary.json key path: the run-level ones
+    and every analysis block's ``SCAN_COLUMNS`` (a new block brings its own columns)."""
+    from ..analysis import scan_columns
+    cols = dict(_RUN_METRICS)
+    cols.update({c.name: (c.unit, c.meaning, c.path) for c in scan_columns()})
+    cols.update(_TAIL_METRICS)
+    return cols
+
+
+#: column -> (unit, meaning, summary.json path)
+METRIC_PATHS = _metric_paths()
+#: column -> (unit, meaning); every number the summary offers that a scan is asked about
+METRICS = {k: (unit, meaning) for k, (unit, meaning, _) in METRIC_PATHS.items()}
 
 #: every column name an axis may not take
 RESERVED_COLUMNS = frozenset(RUN_COLUMNS) | frozenset(METRICS) | {"error_kind"}

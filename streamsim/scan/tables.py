@@ -16,37 +16,11 @@ from typing import Any
 import numpy as np
 
 from ..numbers import finite_or_none
-from .spec import Scan
+from .spec import METRIC_PATHS as _PATHS
+from .spec import METRICS, RUN_COLUMNS, Scan
 from .worker import ERROR_FILE, _read_json, read_state
 
 __all__ = ["METRICS", "RUN_COLUMNS", "collect_rows", "write_tables", "run_folder"]
-
-#: leading columns: which run, its state and where it lives
-RUN_COLUMNS = ("run", "point", "replica", "status", "error", "hash", "folder", "random_seed")
-
-#: run-level columns (not from an analysis block): name -> (unit, meaning, summary.json path)
-_RUN_METRICS = {
-    "density_cm3": ("cm^-3", "reference density units.density_cm3",
-                    ("normalization", "density_cm3")),
-}
-_TAIL_METRICS = {
-    "energy_error_max": ("", "maximum relative energy error", ("energy", "relative_error_max")),
-    "wall_s": ("s", "wall time of the run", ("wall_s",)),
-}
-
-
-def _metric_paths() -> dict[str, tuple[str, str, tuple]]:
-    from ..analysis import scan_columns
-    cols = dict(_RUN_METRICS)
-    cols.update({c.name: (c.unit, c.meaning, c.path) for c in scan_columns()})
-    cols.update(_TAIL_METRICS)
-    return cols
-
-
-_PATHS = _metric_paths()
-
-#: column -> (unit, meaning): the run-level numbers and every analysis block's scan columns
-METRICS = {k: (unit, meaning) for k, (unit, meaning, _) in _PATHS.items()}
 
 
 def run_folder(out: Path, point) -> Path:

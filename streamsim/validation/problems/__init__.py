@@ -1,6 +1,6 @@
 """The validation problems: invented scenarios, outside references, honest tolerances.
 
-Every problem runs small decks through :func:`streamsim.engine.run` (in memory), measures one
+Every problem runs small decks through :func:`streamsim.pipeline.run` (in memory), measures one
 kind of quantity, and compares it with a reference computed in :mod:`..references` (never with
 what streamsim itself computed). Where streamsim.theory gives the same number, a separate line
 checks the theory module against the independent reference.

@@ -43,7 +43,7 @@ THETA_WARM = 1.0e-4
 # Running decks
 # --------------------------------------------------------------------------------------------
 class Runner:
-    """Runs decks in memory (``engine.run(write=False)``) and caches them for the whole validation,
+    """Runs decks in memory (``pipeline.run(write=False)``) and caches them for the whole validation,
     so a problem may reuse another's run (same deck dict, same result)."""
 
     def __init__(self):
@@ -54,7 +54,7 @@ class Runner:
     def __call__(self, raw: dict):
         key = json.dumps(raw, sort_keys=True)
         if key not in self.cache:
-            from streamsim.engine import run
+            from streamsim.pipeline import run
             res = run(raw, write=False, analyze=False, quiet=True)
             self.cache[key] = res
             self.runs += 1
@@ -64,8 +64,8 @@ class Runner:
 
 def _output(dt: float, modes: int, end: float) -> dict:
     """Every step recorded (fits want it); density snapshots and phase space only at the ends."""
-    return {"diagnostics_every": dt, "modes": modes, "phase_space_particles": 0,
-            "fields_every": end, "phase_space_every": end}
+    return {"diagnostics_interval": dt, "modes": modes, "phase_space_particles": 0,
+            "fields_interval": end, "phase_space_interval": end}
 
 
 def plasma_deck(*, cells, length, ppc, theta=0.0, dt=0.05, end=20.0, modes=(1,), amplitude=0.0,
