@@ -16,21 +16,18 @@ WPS2 = 0.5          # omega_ps^2 = density * charge^2 / mass = 0.5 for each beam
 
 
 def cold_symmetric_growth(k, v0=V0, wps2=WPS2):
-    """Growth of symmetric cold beams: gamma^2 = w_b sqrt(w_b^2 + 4 k^2 v^2) - k^2 v^2 - w_b^2,
-    w_b^2 = w_ps^2/gamma_0^3 (root of 1 - w_b^2/(w - kv)^2 - w_b^2/(w + kv)^2 = 0; Birdsall &
-    Langdon 1991, two-stream instability; maximum w_b/2 at k v = (sqrt 3 / 2) w_b)."""
-    g0 = 1.0 / math.sqrt(1.0 - v0 * v0)
-    wb = math.sqrt(wps2 / g0 ** 3)
-    a2 = (np.asarray(k) * v0) ** 2
-    g2 = wb * np.sqrt(wb * wb + 4 * a2) - a2 - wb * wb
-    return np.sqrt(np.maximum(g2, 0.0)), wb / 2.0
+    """Growth of symmetric cold beams on an array of k, and its maximum w_b/2 (textbook cold
+    two-stream root, Birdsall & Langdon 1991), from streamsim.validation.references."""
+    from streamsim.validation.references import cold_symmetric_growth as root
+    wb = math.sqrt(wps2 * (1.0 - v0 * v0) ** 1.5)       # w_b^2 = w_ps^2 / gamma_0^3
+    return np.array([root(float(kk), v0, wb) for kk in np.atleast_1d(k)]), wb / 2.0
 
 
 def _cold_run(modes, end):
     sets = [f"species.{s}.particles_per_cell=512" for s in ("electrons", "positrons")]
     sets += [f"perturbation.modes={modes}", "perturbation.amplitude=1e-6",
              "perturbation.species=['electrons', 'positrons']", f"time.end={end}"]
-    return streamsim.run(load_deck(None, sets), out=None, quiet=True)
+    return streamsim.run(load_deck(None, sets), write=False, quiet=True)
 
 
 @pytest.fixture(scope="module")

@@ -56,6 +56,19 @@ def test_prescribed_content_is_recovered(synthetic):
     assert co["bulk_gamma"] == 1.0
 
 
+def test_times_in_ns_follow_the_plasma_frequency(synthetic):
+    _, blocks, _ = synthetic
+    # NRL Plasma Formulary: omega_pe = 5.64e4 n^1/2 rad/s (synthetic run at n = 1e10 cm^-3)
+    wp = 5.64e4 * math.sqrt(1.0e10)
+    g = blocks["growth"]
+    assert g["growth_time_ns"] == pytest.approx(1e9 / (g["measured"] * wp), rel=2e-3)
+    assert g["growth_time_err_ns"] == pytest.approx(
+        g["growth_time_ns"] * g["measured_err"] / g["measured"], rel=1e-9)
+    assert g["theory_growth_time_ns"] == pytest.approx(1e9 / (g["theory"] * wp), rel=2e-3)
+    c = blocks["contrast"]
+    assert c["t_unity_ns"] == pytest.approx(1e9 * c["t_unity"] / wp, rel=2e-3)
+
+
 def test_options_override_the_deck(synthetic):
     data, blocks, _ = synthetic
     b10 = analyze(data, bulk_gamma=10.0, write=False)

@@ -88,7 +88,7 @@ def test_momentum_conserved_to_roundoff(shape, solver):
     raw["perturbation"]["amplitude"] = 1e-3
     res = _run(raw)
     p = res.series.total_momentum
-    scale = sum(res.data.deck["species"][i]["density"] * abs(res.deck.species[i].drift_u)
+    scale = sum(res.deck.species[i].density * abs(res.deck.species[i].drift_u)
                 for i in range(2)) * res.deck.box.length
     assert np.max(np.abs(p - p[0])) / scale < 1e-11
     # and the run really was nonlinear: the beam lost momentum to the plasma
