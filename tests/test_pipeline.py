@@ -1,0 +1,113 @@
+"""The run pipeline around the physics: the run-folder lock, a finished run of another deck,
+the memory refusal before anything is written, summary.json written once, warnings merged
+across species. These are behaviours of the program (no physics reference applies)."""
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+import time
+
+import pytest
+import tomli_w
+
+from conftest import pair_deck
+from streamsim import io, pipeline
+from streamsim.cli import main
+from streamsim.health import Finding
+
+
+def _deck_file(tmp_path, name="deck.toml", **kw):
+    raw = pair_deck(cells=64, ppc=8, end=kw.pop("end", 4.0), **kw)
+    path = tmp_path / name
+    path.write_text(tomli_w.dumps(raw))
+    return path, raw
+
+
+def test_a_second_run_into_a_folder_in_use_exits_4_naming_the_process(tmp_path, capsys):
+    deck, _ = _deck_file(tmp_path, end=400.0)
+    out = tmp_path / "run"
+    first = subprocess.Popen([sys.executable, "-m", "streamsim.cli", "run", str(deck), "--quiet",
+                              "--no-analysis", "--out", str(out)],
+                             stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    try:
+        lock = out / pipeline.LOCK_FILE
+        for _ in range(600):        # wait until the first run holds the folder
+            if lock.is_file() and f"pid {first.pid}" in lock.read_text():
+                break
+            time.sleep(0.05)
+        rc = main(["run", str(deck), "--quiet", "--no-analysis", "--out", str(out)])
+        err = capsys.readouterr().err.strip().splitlines()
+        assert rc == 4
+        assert len(err) == 1 and "in use" in err[0] and f"pid {first.pid}" in err[0]
+    finally:
+        first.kill()
+        first.wait()
+    # the lock dies with its process: the folder can be used again
+    assert main(["run", str(deck), "--quiet", "--no-analysis", "--out", str(out)]) == 0
+
+
+def test_a_finished_run_of_another_deck_is_refused_unless_forced(tmp_path, capsys):
+    deck, raw = _deck_file(tmp_path)
+    out = tmp_path / "run"
+    assert main(["run", str(deck), "--quiet", "--out", str(out), "--no-figures"]) == 0
+    first = (out / io.FILES["summary"]).read_text()
+    # the same deck reruns as before
+    assert main(["run", str(deck), "--quiet", "--out", str(out), "--no-figures"]) == 0
+    capsys.readouterr()
+    # another deck (one key changed) is refused, naming that key, and nothing is overwritten
+    rc = main(["run", str(deck), "--quiet", "--out", str(out), "--no-figures",
+               "--set", "random_seed=7"])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert rc == 2
+    assert err[-1].startswith("deck error:") and "random_seed differs" in err[-1]
+    assert json.loads((out / io.FILES["summary"]).read_text())["status"] == "completed"
+    assert (out / io.FILES["summary"]).read_text() != "" and first
+    assert main(["run", str(deck), "--quiet", "--out", str(out), "--no-figures",
+                 "--set", "random_seed=7", "--force"]) == 0
+
+
+def test_memory_refusal_comes_before_any_file(tmp_path, capsys):
+    deck, _ = _deck_file(tmp_path)
+    out = tmp_path / "never"
+    rc = main(["run", str(deck), "--quiet", "--out", str(out), "--set", "time.end=1e9",
+               "--set", "time.dt=0.05"])
+    err = capsys.readouterr().err.strip().splitlines()
+    assert rc == 2
+    assert len(err) == 1 and err[0].startswith("deck error:") and "GiB" in err[0]
+    assert not out.exists()
+
+
+def test_summary_json_is_written_once(tmp_path, monkeypatch):
+    deck, _ = _deck_file(tmp_path)
+    writes = []
+    real = io.write_json
+
+    def counting(path, data):
+        writes.append(os.path.basename(path))
+        return real(path, data)
+
+    monkeypatch.setattr(io, "write_json", counting)
+    pipeline.run(str(deck), out=tmp_path / "run", figures=False)
+    assert writes.count(io.FILES["summary"]) == 1
+
+
+def test_a_warning_that_holds_for_several_species_is_one_line():
+    f = [Finding("warning", "cold-beam grid instability", "box.cells",
+                 "species electrons: omega_p dx/|v_d| = 2 > 1: use box.cells >= 9"),
+         Finding("warning", "cold-beam grid instability", "box.cells",
+                 "species positrons: omega_p dx/|v_d| = 2 > 1: use box.cells >= 9"),
+         Finding("warning", "time-step accuracy", "time.dt", "omega_p dt = 0.3 > 0.2")]
+    lines = pipeline.merge_findings(f)
+    assert lines == ["cold-beam grid instability: species electrons, positrons: "
+                     "omega_p dx/|v_d| = 2 > 1: use box.cells >= 9",
+                     "time-step accuracy: omega_p dt = 0.3 > 0.2"]
+
+
+def test_quiet_keeps_health_warnings_on_stderr(tmp_path, capsys):
+    deck, _ = _deck_file(tmp_path, dt=0.25, end=5.0)    # omega_p dt = 0.25 > 0.2: a warning
+    rc = main(["run", str(deck), "--quiet", "--no-analysis", "--out", str(tmp_path / "r")])
+    cap = capsys.readouterr()
+    assert rc == 0 and cap.out == ""
+    assert any(line.startswith("warning: time-step accuracy") for line in cap.err.splitlines())
