@@ -24,7 +24,6 @@ import platform
 import subprocess
 import sys
 import time
-from pathlib import Path
 
 import numpy as np
 
@@ -206,7 +205,7 @@ def measure(particles: int, threads: int, *, steps: int = 10, repeats: int = 3,
                 best = min(best, time.perf_counter() - t)
             out["numpy_particle_steps_per_s"] = n / best
             out["speedup_vs_numpy"] = out["particle_steps_per_s"] / out["numpy_particle_steps_per_s"]
-    del sim, xs, us, xd, ud
+    sim = handlers = xs = us = xd = ud = None  # noqa: F841 - free the arrays before the next size
     return out
 
 

@@ -296,7 +296,6 @@ class _Key:
     choices: tuple[str, ...] = ()
 
 
-def _gt(lo):   return lambda v: None if v > lo else f"must be > {lo:g}"
 def _ge(lo):   return lambda v: None if v >= lo else f"must be >= {lo:g}"
 
 

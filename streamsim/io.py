@@ -20,7 +20,6 @@ from __future__ import annotations
 import contextlib
 import datetime as _dt
 import json
-import math
 import os
 import tempfile
 from pathlib import Path
@@ -30,6 +29,7 @@ import numpy as np
 
 from . import units
 from ._version import __version__
+from .numbers import finite_or_none
 from .rundata import DensitySnapshots, ParticleSnapshot, PhaseSpace, RunData, TimeSeries
 
 FILES = {"deck": "deck.toml", "summary": "summary.json", "theory": "theory.json",
@@ -118,11 +118,39 @@ def jsonable(obj):
     if isinstance(obj, np.integer):
         return int(obj)
     if isinstance(obj, (float, np.floating)):
-        v = float(obj)
-        return v if math.isfinite(v) else None
+        return finite_or_none(obj)
     if isinstance(obj, Path):
         return str(obj)
     return obj
+
+
+def csv_cell(v):
+    """One CSV cell: None/NaN/inf empty, floats exactly (repr), lists and dicts as JSON."""
+    if v is None:
+        return ""
+    if isinstance(v, (bool, np.bool_)):
+        return bool(v)
+    if isinstance(v, (float, np.floating)):
+        f = finite_or_none(v)
+        return "" if f is None else repr(f)
+    if isinstance(v, np.integer):
+        return int(v)
+    if isinstance(v, (list, tuple, dict)):
+        return json.dumps(jsonable(v))
+    return v
+
+
+def write_csv(path: str | Path, header: list[str], rows) -> Path:
+    """A CSV file with one header line, written atomically (cells by :func:`csv_cell`)."""
+    import csv
+    import io as _sio
+    buf = _sio.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(header)
+    for r in rows:
+        w.writerow([csv_cell(v) for v in r])
+    write_text(path, buf.getvalue())
+    return Path(path)
 
 
 def save_figure(fig, path: str | Path, dpi: int = 110) -> Path:

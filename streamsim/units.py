@@ -81,10 +81,6 @@ def wavenumber_per_cm(k: float, density_cm3: float) -> float:
     return k / skin_depth_cm(density_cm3)
 
 
-def rate_per_s(rate: float, density_cm3: float) -> float:
-    """A rate (growth rate, frequency) in omega_p, converted to 1/s (rad/s for frequencies)."""
-    return rate * omega_p_rad_s(density_cm3)
-
 
 def growth_time_ns(growth: float, density_cm3: float) -> float:
     """e-folding time 1/gamma of a growth rate gamma given in omega_p, in ns (inf if gamma <= 0)."""

@@ -9,7 +9,6 @@ import subprocess
 import sys
 import time
 
-import pytest
 import tomli_w
 
 from conftest import pair_deck

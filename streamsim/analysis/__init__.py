@@ -13,7 +13,6 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from ..numbers import finite_or_none
 from .base import BlockResult, Context, ScanColumn, Table
 from .registry import BLOCKS
 
@@ -99,13 +98,3 @@ def analyze(source, *, folder=None, write: bool = True, figures: bool = True,
         write_outputs(results, data, folder, figures=figures)
         io.update_summary(Path(folder), entries)
     return entries
-
-
-def headline_value(summary: dict, path: tuple[str, ...]):
-    """The number at a key path of a summary.json, or None."""
-    d = summary
-    for p in path:
-        if not isinstance(d, dict):
-            return None
-        d = d.get(p)
-    return finite_or_none(d)

@@ -2,9 +2,6 @@
 os.replace), CSV and HDF5, and JSON-safe conversion (no NaN/inf: None)."""
 from __future__ import annotations
 
-import csv
-import io
-import math
 from pathlib import Path
 
 import numpy as np
@@ -29,23 +26,10 @@ def atomic_write_text(path, text: str) -> Path:
     return atomic_write_bytes(path, text.encode("utf-8"))
 
 
-def _cell(v):
-    if v is None:
-        return ""
-    if isinstance(v, (float, np.floating)):
-        v = float(v)
-        return "" if not math.isfinite(v) else repr(v)
-    return v
-
-
 def write_csv(path, header: list[str], rows) -> Path:
-    """A CSV with one header line; None/NaN cells are left empty."""
-    buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(header)
-    for r in rows:
-        w.writerow([_cell(v) for v in r])
-    return atomic_write_text(path, buf.getvalue())
+    """A CSV with one header line; None/NaN cells are left empty (:func:`streamsim.io.write_csv`)."""
+    from ..io import write_csv as _write
+    return _write(path, header, rows)
 
 
 def write_h5(path, tables: dict) -> Path:

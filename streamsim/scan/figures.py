@@ -10,7 +10,6 @@
 """
 from __future__ import annotations
 
-import io
 import re
 from pathlib import Path
 
@@ -26,14 +25,8 @@ MAX_LINES = 12
 
 
 def _save(fig, path: Path) -> Path:
-    from ..io import atomic_path
-    buf = io.BytesIO()
-    fig.tight_layout()
-    fig.savefig(buf, format="png", dpi=110)
-    plt.close(fig)
-    with atomic_path(path) as tmp:
-        Path(tmp).write_bytes(buf.getvalue())
-    return path
+    from ..io import save_figure
+    return save_figure(fig, path)
 
 
 def _slug(name: str) -> str:

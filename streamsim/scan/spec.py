@@ -43,7 +43,7 @@ from typing import Any
 
 from .. import deck as _deck
 from ..deck import (Deck, DeckError, InputError, apply_overrides, check_key_path, did_you_mean,
-                    exclusive_keys, load_deck, parse_override, read_toml_file, show_value)
+                    exclusive_keys, load_deck, parse_override, read_toml_file)
 
 __all__ = ["ScanError", "Axis", "Point", "Scan", "load_scan", "deck_hash", "FORBIDDEN_KEYS",
            "RUN_COLUMNS", "METRICS", "METRIC_PATHS", "RESERVED_COLUMNS"]

@@ -6,10 +6,7 @@ both are rewritten atomically while the scan goes on, so an interrupted scan kee
 """
 from __future__ import annotations
 
-import csv
-import io as _io
 import json
-import math
 from pathlib import Path
 from typing import Any
 
@@ -80,28 +77,12 @@ def columns(scan: Scan) -> list[str]:
     return list(RUN_COLUMNS) + axis_cols + list(METRICS) + ["error_kind"]
 
 
-def _cell(v):
-    if v is None:
-        return ""
-    if isinstance(v, float):
-        return repr(v) if math.isfinite(v) else ""
-    if isinstance(v, (list, dict)):
-        return json.dumps(v)
-    return v
-
-
 def write_tables(scan: Scan, out: Path, rows: list[dict]) -> tuple[Path, Path]:
     """Write scan.csv and scan.h5 atomically; returns their paths."""
     from .. import io
     out = Path(out)
     cols = columns(scan)
-    buf = _io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(cols)
-    for r in rows:
-        w.writerow([_cell(r.get(c)) for c in cols])
-    csv_path = out / "scan.csv"
-    io.write_text(csv_path, buf.getvalue())
+    csv_path = io.write_csv(out / "scan.csv", cols, ([r.get(c) for c in cols] for r in rows))
     h5_path = out / "scan.h5"
     _write_h5(scan, h5_path, rows, cols)
     return csv_path, h5_path
