@@ -236,8 +236,9 @@ def _completed(out: Path) -> list[Path]:
 
 
 def test_resume_after_an_interrupt_runs_only_the_missing_points(tmp_path):
-    path = write_scan(tmp_path, '[[axis]]\nkey = "units.density_cm3"\n'
-                                'values = [1.0e8, 1.0e9, 1.0e10, 1.0e11, 1.0e12]\n')
+    # five distinct runs (a density axis alone would be one normalised run)
+    path = write_scan(tmp_path, '[[axis]]\nname = "seed"\nkey = "random_seed"\n'
+                                'values = [1, 2, 3, 4, 5]\n')
     out = tmp_path / "out"
     args = [sys.executable, "-m", "streamsim.cli", "scan", str(path), "--out", str(out),
             "--workers", "1", "--threads", "1", "--no-figures"]

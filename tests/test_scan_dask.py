@@ -51,6 +51,10 @@ values = [0.0, 1.0e-4]
     assert "LocalCluster" in proc.stdout
     rows = read_csv(out / "scan.csv")
     assert len(rows) == 4 and all(r["status"] == "completed" for r in rows)
+    # the density only sets the units: two normalised runs, each shared by two rows, whose
+    # physical columns (converted per row) must equal a run made at that row's density
+    assert len(list((out / "runs").iterdir())) == 2
+    assert all(r["shared_run"] == "2" for r in rows)
     for r in rows:
         n, theta = float(r["units.density_cm3"]), float(r["species.electrons.theta"])
         # the same deck, built here from the base file, run alone in this process
@@ -80,8 +84,9 @@ def test_killing_a_worker_mid_scan_loses_and_duplicates_nothing(tmp_path):
 set = ["box.cells=64", "time.end=40.0", "species.electrons.particles_per_cell=64",
        "species.positrons.particles_per_cell=64"]
 [[axis]]
-key = "units.density_cm3"
-values = [1.0e8, 1.0e9, 1.0e10, 1.0e11, 1.0e12, 1.0e13]
+name = "seed"
+key = "random_seed"
+values = [1, 2, 3, 4, 5, 6]
 """, tiny=False)
     out = tmp_path / "out"
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,

@@ -132,8 +132,12 @@ def run_scan(scan: Scan | str | Path, out: str | Path | None = None, *, workers:
     # -- which runs are left to do ----------------------------------------------------------
     todo: list[Point] = []
     skipped = 0
+    queued: set[str] = set()
     for p in scan.points:
         folder = run_folder(out, p)
+        if p.deck is not None and p.folder_name in queued:
+            continue            # the same normalised run at another density: run once
+        queued.add(p.folder_name)
         if p.deck is None:
             write_failure(folder, p.hash, p.run, "deck", p.error or "invalid deck",
                           extra={"raw_deck": p.raw})

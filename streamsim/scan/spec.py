@@ -45,7 +45,8 @@ from .. import deck as _deck
 from ..deck import (Deck, DeckError, InputError, apply_overrides, check_key_path, did_you_mean,
                     exclusive_keys, load_deck, parse_override, read_toml_file)
 
-__all__ = ["ScanError", "Axis", "Point", "Scan", "load_scan", "deck_hash", "FORBIDDEN_KEYS",
+__all__ = ["ScanError", "Axis", "Point", "Scan", "load_scan", "deck_hash", "normalised_hash",
+           "FORBIDDEN_KEYS",
            "RUN_COLUMNS", "METRICS", "METRIC_PATHS", "RESERVED_COLUMNS"]
 
 #: deck keys a scan sets itself and that an axis may not vary
@@ -56,7 +57,8 @@ FORBIDDEN_KEYS = {"output.folder": "the scan gives every run its own folder",
 #: The columns of scan.csv / scan.h5 besides the axes (scan.tables writes them). They live here
 #: so that an axis name can be checked against them without this module importing the tables.
 #: leading columns: which run, its state and where it lives
-RUN_COLUMNS = ("run", "point", "replica", "status", "error", "hash", "folder", "random_seed")
+RUN_COLUMNS = ("run", "point", "replica", "status", "error", "hash", "folder", "random_seed",
+               "shared_run")
 
 #: run-level columns (not from an analysis block): name -> (unit, meaning, summary.json path)
 _RUN_METRICS = {
@@ -141,10 +143,13 @@ class Point:
     raw: dict                      # raw deck data after all overrides
     hash: str                      # sha256 hex of the resolved deck (or of the raw data if invalid)
     error: str | None = None       # one-line DeckError when the deck is invalid
+    #: sha256 of the normalised resolved deck (without units.density_cm3): points that differ
+    #: only in the reference density are one normalised simulation and share one run folder
+    run_hash: str = ""
 
     @property
     def folder_name(self) -> str:
-        return ("invalid-" if self.deck is None else "") + self.hash[:16]
+        return ("invalid-" if self.deck is None else "") + (self.run_hash or self.hash)[:16]
 
 
 @dataclass
@@ -192,6 +197,23 @@ def deck_hash(deck: Deck) -> str:
     d = deck.to_dict()
     d["output"].pop("folder", None)
     d["output"].pop("threads", None)
+    return hashlib.sha256(tomli_w.dumps(d).encode("utf-8")).hexdigest()
+
+
+def normalised_hash(deck: Deck) -> str:
+    """sha256 of what the run computes in normalised units: the resolved deck without
+    output.folder, output.threads and units.density_cm3, and without the title.
+
+    In this model the reference density only sets the units (t in 1/omega_p, x in c/omega_p), so
+    two decks that agree here are one simulation; a key given in physical units (box.length_cm,
+    a current in statA/cm^2) resolves to a different normalised value at another density and so
+    changes this hash by itself."""
+    import tomli_w
+    d = deck.to_dict()
+    d["output"].pop("folder", None)
+    d["output"].pop("threads", None)
+    d.get("units", {}).pop("density_cm3", None)
+    d.pop("title", None)
     return hashlib.sha256(tomli_w.dumps(d).encode("utf-8")).hexdigest()
 
 
@@ -482,6 +504,7 @@ def _expand(scan: Scan, base_raw: dict) -> list[Point]:
         for r in range(scan.replicas):
             run = p * scan.replicas + r
             deck = error = seed = None
+            run_hash = ""
             raw: dict = {}
             try:
                 raw = apply_overrides(base_raw, overrides)
@@ -491,6 +514,7 @@ def _expand(scan: Scan, base_raw: dict) -> list[Point]:
                 deck = load_deck(raw)
                 seed = deck.random_seed
                 h = deck_hash(deck)
+                run_hash = normalised_hash(deck)
             except DeckError as ex:
                 deck, error = None, str(ex)
                 h = _raw_hash({"deck": raw, "overrides": overrides, "replica": r})
@@ -500,7 +524,8 @@ def _expand(scan: Scan, base_raw: dict) -> list[Point]:
                                         f"(values {q.values} and {values}); remove the duplicate")
             by_hash[h] = run
             points.append(Point(run=run, point=p, replica=r, indices=tuple(idx), values=values,
-                                seed=seed, deck=deck, raw=raw, hash=h, error=error))
+                                seed=seed, deck=deck, raw=raw, hash=h, error=error,
+                                run_hash=run_hash))
     if points and all(pt.deck is None for pt in points):
         raise ScanError("", f"every run's deck is invalid; the first: {points[0].error}")
     if scan.replicas > 1:

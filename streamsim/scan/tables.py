@@ -41,15 +41,40 @@ def metrics_from_summary(s: dict) -> dict:
     return out
 
 
+#: how a column in a physical unit scales with the reference density at fixed normalised
+#: values: times and lengths as n^-1/2 (1/omega_p, c/omega_p), frequencies and wavenumbers as
+#: n^+1/2 (omega_p = (4 pi n e^2 / m_e)^1/2)
+_DENSITY_POWER = {"ns": -0.5, "cm": -0.5, "Hz": 0.5, "1/cm": 0.5}
+
+
+def at_density(metrics: dict, n_run: float | None, n_row: float | None) -> dict:
+    """The metrics of a run made at reference density ``n_run``, expressed at ``n_row``: every
+    column in ns or cm scales as (n_run/n_row)^1/2, every one in Hz or 1/cm as (n_row/n_run)^1/2;
+    normalised columns are unchanged."""
+    if not n_run or not n_row or n_run == n_row:
+        return metrics
+    out = dict(metrics)
+    for k, v in metrics.items():
+        p = _DENSITY_POWER.get(METRICS.get(k, ("",))[0])
+        if p is not None and v is not None:
+            out[k] = v * (n_row / n_run) ** p
+    out["density_cm3"] = n_row
+    return out
+
+
 def collect_rows(scan: Scan, out: Path) -> list[dict]:
-    """One row per run of the scan, in run order, read from the run folders."""
+    """One row per point of the scan, in run order, read from the run folders. Points that
+    differ only in the reference density share one run (``shared_run``: the number of rows that
+    share it); their physical-unit columns are converted to each row's density."""
+    from collections import Counter
+    sharing = Counter(p.folder_name for p in scan.points)
     rows = []
     for p in scan.points:
         folder = run_folder(out, p)
         state, point = read_state(folder)
         row = {"run": p.run, "point": p.point, "replica": p.replica, "status": state,
                "error": None, "hash": p.hash, "folder": str(Path("runs") / p.folder_name),
-               "random_seed": p.seed}
+               "random_seed": p.seed, "shared_run": sharing[p.folder_name]}
         for a, v, i in zip(scan.axes, p.values, p.indices):
             row[a.name] = v
             row[f"{a.name}#index"] = i
@@ -61,7 +86,9 @@ def collect_rows(scan: Scan, out: Path) -> list[dict]:
         if state in ("completed", "failed"):
             s = _read_json(folder / "summary.json")
             if s is not None:
-                row.update(metrics_from_summary(s))
+                n_row = p.deck.units.density_cm3 if p.deck is not None else None
+                m = metrics_from_summary(s)
+                row.update(at_density(m, m.get("density_cm3"), n_row))
                 if state == "completed" and s.get("analysis_error"):
                     row["error"] = f"analysis: {s['analysis_error']}"
         if row["density_cm3"] is None and p.deck is not None:
