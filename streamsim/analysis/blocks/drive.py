@@ -9,8 +9,9 @@ Theory at the driven state: at a time t* (``drive.theory_time``; else the middle
 block's fit window; else the end of the run) each species' drift is replaced by the measured
 drift four-velocity of its mean flow (:func:`streamsim.analysis.driven.bulk_drift_u`), its
 temperature kept from the deck, and the deck's dispersion model is solved again for the fastest
-mode and for the growth block's headline box mode (the instantaneous roots; a slowly changing
-drift is assumed).
+mode and for every recorded box mode (the instantaneous roots; a slowly changing drift is
+assumed). Each mode's growth is then fitted (:func:`streamsim.analysis.growth.fit_modes`) with
+these rates as its theory; the headline is the mode of largest driven-state growth.
 """
 from __future__ import annotations
 
@@ -22,6 +23,7 @@ from ... import units
 from ...drive import carrying_limit, max_abs_current
 from ...numbers import finite_or_none
 from .. import driven as _dv
+from .. import growth as _gr
 from ..base import BlockResult, Context, Figure, ScanColumn, Table, fmt
 
 NAME = "drive"
@@ -134,16 +136,19 @@ def _theory_at_driven_state(ctx) -> dict:
         fast = theory.fastest_mode(species)
         if fast is not None:
             out["fastest"] = {"k": fast[0], "growth": fast[1], "omega_r": fast[2]}
-        growth = ctx.results.get("growth")
-        head = (growth.summary.get("growth") or {}) if growth is not None else {}
-        k = finite_or_none(head.get("k"))
-        if k is not None:
-            rate = float(np.asarray(theory.growth_curve(species, np.array([k]))[0])[0])
-            meas = finite_or_none(head.get("measured"))
-            out["headline_mode"] = {"mode": head.get("mode"), "k": k, "theory": rate,
-                                    "measured": meas,
-                                    "ratio": meas / rate if meas is not None and rate > 0
-                                    else None}
+        amp = np.asarray(data.series.mode_amplitude)
+        if amp.ndim == 2 and amp.shape[1]:
+            k = 2.0 * np.pi * np.arange(1, amp.shape[1] + 1) / data.length
+            rates = np.asarray(theory.growth_curve(species, k)[0], float)
+            th = {m + 1: float(r) for m, r in enumerate(rates) if np.isfinite(r)}
+            g_top = max([*th.values(), fast[1] if fast is not None else 0.0])
+            rows = _gr.fit_modes(tt, amp, data.length, th, g_top if g_top > 0 else None)
+            best = max(rows, key=lambda r: r["theory"] if r["theory"] is not None else -np.inf)
+            out["headline_mode"] = {key: best.get(key) for key in
+                                    ("mode", "k", "theory", "measured", "measured_err", "ratio",
+                                     "window", "status")}
+            out["modes"] = [{key: r.get(key) for key in ("mode", "theory", "measured", "ratio")}
+                            for r in rows]
     except Exception as ex:  # noqa: BLE001 - the block reports the failure and goes on
         out["error"] = f"{ex.__class__.__name__}: {ex}"
     return out
@@ -164,7 +169,9 @@ def _lines(e: dict, names) -> list[str]:
     if hm:
         lines.append(f"  theory at the driven state (t = {fmt(th['t'], '.4g')}, "
                      f"{th['t_chosen_by']}): mode {hm['mode']} grows at {fmt(hm['theory'])} w_p"
-                     f", measured {fmt(hm['measured'])}")
+                     f", measured {fmt(hm['measured'])}"
+                     + (f" (ratio {fmt(hm['ratio'], '.3f')})" if hm.get("ratio") else
+                        f" ({hm.get('status')})" if hm.get("measured") is None else ""))
     elif th.get("fastest"):
         lines.append(f"  theory at the driven state (t = {fmt(th['t'], '.4g')}): fastest growth "
                      f"{fmt(th['fastest']['growth'])} w_p at k = {fmt(th['fastest']['k'])} w_p/c")
