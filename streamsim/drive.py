@@ -6,7 +6,7 @@ the mean (k = 0) field of a periodic 1D box, whose curl B has no k = 0 part, rea
 
     dE0/dt = -(<J> - J_ext)          (Gaussian: dE0/dt = -4 pi (<J> - J_ext))
 
-(Jackson, *Classical Electrodynamics*, 3rd ed. (1999), sec. 6.3, the displacement current;
+(Jackson, *Classical Electrodynamics*, 3rd ed. (1999), sec. 6.1, the displacement current;
 J_ext is the current the large-scale field imposes). The k != 0 part of E still comes from
 Poisson's equation. The plasma cannot carry more than every carrier at c,
 
@@ -67,7 +67,7 @@ def max_abs_current(drive, t_end: float) -> float:
 
 def ampere_step(e0: float, current: float, current_ext: float, dt: float) -> float:
     """One leapfrog step of Ampere's law for the mean field: E0^{n+1} = E0^n - dt (<J>^{n+1/2}
-    - J_ext^{n+1/2}), normalised (module docstring; Jackson 1999, sec. 6.3)."""
+    - J_ext^{n+1/2}), normalised (module docstring; Jackson 1999, sec. 6.1)."""
     return e0 - dt * (current - current_ext)
 
 
