@@ -36,7 +36,7 @@ from ._version import __version__
 
 __all__ = [
     "InputError", "DeckError", "did_you_mean", "show_value",
-    "Deck", "Species", "Box", "Time", "Units", "Perturbation", "Output", "Analysis",
+    "Deck", "Species", "Box", "Time", "Units", "Perturbation", "Output", "Analysis", "Drive",
     "load_deck", "validate", "resolve", "apply_overrides", "parse_override", "check_key_path",
     "exclusive_keys", "RENAMED_KEYS", "DEFAULT_DECK",
 ]
@@ -200,8 +200,22 @@ class Analysis:
     clump_threshold: float        # a clump is a connected region with delta n/n above this
     coherence_drop: float         # k_c: where |F|^2 falls to this fraction of its peak
     coherence_kmax_factor: float  # form factor computed up to this multiple of the grid Nyquist k
-    bulk_gamma: float             # Lorentz factor of the simulation frame towards the observer
+    bulk_gamma: float | str       # Lorentz factor of the simulation frame towards the observer, or "measured"
     energy_tolerance: float       # relative energy error above which a run warns
+
+
+@dataclass(frozen=True)
+class Drive:
+    """The optional ``[drive]`` block: a uniform current J_ext(t) imposed through Ampere's law
+    for the mean field (see :mod:`streamsim.drive`)."""
+    current: float | None         # J_ext amplitude, e n_ref c (derived when a physical form was given)
+    profile: str                  # "constant" | "ramp" | "sine"
+    ramp_time: float | None       # 1/omega_p ("ramp")
+    frequency: float | None       # omega_p ("sine")
+    phase: float                  # rad ("sine")
+    theory_time: float | None     # 1/omega_p: when the theory at the driven state is taken (None: chosen by the analysis)
+    current_statA_cm2: float | None = field(default=None, compare=False)  # the same in CGS
+    current_A_m2: float | None = field(default=None, compare=False)       # the same in SI
 
 
 @dataclass(frozen=True)
@@ -216,6 +230,7 @@ class Deck:
     output: Output
     analysis: Analysis
     description: str = ""
+    drive: Drive | None = None    # the optional [drive] block
 
     def species_named(self, name: str) -> Species:
         for s in self.species:
@@ -231,7 +246,8 @@ class Deck:
                 and self.time.dt is not None
                 and all(s.theta is not None and s.temperature_kev is not None for s in self.species)
                 and None not in (o.diagnostics_interval, o.fields_interval,
-                                 o.phase_space_interval, o.checkpoint_interval))
+                                 o.phase_space_interval, o.checkpoint_interval)
+                and (self.drive is None or self.drive.current is not None))
 
     def to_dict(self) -> dict:
         """The resolved deck as plain TOML-ready data in normalised keys (it loads back to an
@@ -264,6 +280,8 @@ class Deck:
         }
         if self.description:
             out["description"] = self.description
+        if self.drive is not None:
+            out["drive"] = _drive_dict(self.drive)
         return out
 
     def to_toml(self) -> str:
@@ -279,6 +297,12 @@ class Deck:
             if s.theta > 0:
                 head.append(f"#   species.{s.name}.theta = {s.theta:.6g} = "
                             f"{s.temperature_kev:.6g} keV")
+        if self.drive is not None:
+            from . import units
+            n = self.units.density_cm3
+            head.append(f"#   drive.current = {self.drive.current:.6g} e n_ref c = "
+                        f"{units.current_statA_cm2(self.drive.current, n):.6g} statA/cm^2 = "
+                        f"{units.current_A_m2(self.drive.current, n):.6g} A/m^2")
         return "\n".join(head) + "\n" + tomli_w.dumps(self.to_dict())
 
 
@@ -361,11 +385,23 @@ _ANALYSIS = {
     "clump_threshold": _Key("float", 0.5, _finite_pos),
     "coherence_drop": _Key("float", 0.5, lambda v: None if 0 < v < 1 else "must be in (0, 1)"),
     "coherence_kmax_factor": _Key("float", 4.0, lambda v: None if 1 <= v <= 64 else "must be between 1 and 64"),
-    "bulk_gamma": _Key("float", 1.0, lambda v: None if (math.isfinite(v) and v >= 1) else "must be >= 1"),
+    "bulk_gamma": _Key("float_or_measured", 1.0, lambda v: None if (math.isfinite(v) and v >= 1) else "must be >= 1"),
     "energy_tolerance": _Key("float", 1.0e-2, _finite_pos),
 }
+_DRIVE = {
+    "current": _Key("float", None),
+    "current_statA_cm2": _Key("float", None),
+    "current_A_m2": _Key("float", None),
+    "profile": _Key("str", "constant", choices=("constant", "ramp", "sine")),
+    "ramp_time": _Key("float", None, _finite_pos),
+    "frequency": _Key("float", None, _finite_pos),
+    "phase": _Key("float", 0.0),
+    "theory_time": _Key("float", None, _finite_nonneg),
+}
 _SECTIONS = {"units": _UNITS, "box": _BOX, "time": _TIME, "perturbation": _PERTURBATION,
-             "output": _OUTPUT, "analysis": _ANALYSIS}
+             "output": _OUTPUT, "analysis": _ANALYSIS, "drive": _DRIVE}
+#: sections that are absent unless the deck has them (no defaults are filled in)
+_OPTIONAL_SECTIONS = ("drive",)
 _ALL_TOP = set(_TOP) | set(_SECTIONS) | {"species"}
 
 #: keys of earlier versions -> their new names (an old name is a one-line error naming the new)
@@ -381,6 +417,7 @@ RENAMED_KEYS = {
 _EXCLUSIVE = {
     "box": (("length", "length_cm", "fastest_wavelengths"),),
     "species": (("drift_beta", "drift_u"), ("theta", "temperature_kev")),
+    "drive": (("current", "current_statA_cm2", "current_A_m2"),),
 }
 
 
@@ -433,11 +470,15 @@ def check_key_path(parts: list[str]) -> None:
 
 def _coerce(path: str, spec: _Key, value: Any) -> Any:
     kind = spec.kind
-    if kind in ("float", "float_or_auto"):
+    if kind in ("float", "float_or_auto", "float_or_measured"):
         if kind == "float_or_auto" and isinstance(value, str):
             if value == "auto":
                 return value
             raise DeckError(path, 'must be a number or "auto"', value)
+        if kind == "float_or_measured" and isinstance(value, str):
+            if value == "measured":
+                return value
+            raise DeckError(path, 'must be a number or "measured"', value)
         if isinstance(value, bool) or not isinstance(value, (int, float)):
             raise DeckError(path, "must be a number", value)
         value = float(value)
@@ -475,7 +516,8 @@ def _coerce(path: str, spec: _Key, value: Any) -> Any:
         if not isinstance(value, list) or not all(isinstance(v, str) for v in value):
             raise DeckError(path, "must be a list of strings", value)
         value = list(value)
-    if spec.check is not None and value is not None and not (kind == "float_or_auto" and value == "auto"):
+    if spec.check is not None and value is not None and not (
+            kind in ("float_or_auto", "float_or_measured") and isinstance(value, str)):
         problem = spec.check(value)
         if problem:
             raise DeckError(path, problem, value)
@@ -623,12 +665,51 @@ def validate(raw: dict) -> Deck:
                     phase_space_interval=o["phase_space_interval"],
                     phase_space_particles=o["phase_space_particles"], modes=modes,
                     checkpoint_interval=o["checkpoint_interval"], threads=o["threads"])
+    drive = _drive(raw["drive"], sec["drive"], t["end"]) if "drive" in raw else None
     return Deck(title=title, random_seed=top["random_seed"], units=Units(**sec["units"]),
                 box=box, time=time, species=species,
                 perturbation=Perturbation(modes=tuple(p["modes"]), amplitude=p["amplitude"],
                                           species=tuple(p["species"])),
                 output=output, analysis=Analysis(**sec["analysis"]),
-                description=top["description"])
+                description=top["description"], drive=drive)
+
+
+def _drive(raw: dict, d: dict, end: float) -> Drive:
+    """The [drive] block: exactly one form of the current, and only the keys of its profile."""
+    (forms,) = _EXCLUSIVE["drive"]
+    given = [k for k in forms if d[k] is not None]
+    if not given:
+        raise DeckError("drive.current", "is required in [drive]: give drive.current (e n_ref c), "
+                        "drive.current_statA_cm2 or drive.current_A_m2")
+    if len(given) > 1:
+        raise DeckError(f"drive.{given[-1]}", "give one of " + ", ".join(f"drive.{k}" for k in given)
+                        + ", not several", d[given[-1]])
+    profile = d["profile"]
+    needs = {"ramp": ("ramp_time",), "sine": ("frequency",)}.get(profile, ())
+    for key in needs:
+        if d[key] is None:
+            raise DeckError(f"drive.{key}", f'is required for profile = "{profile}"')
+    for key, owner in (("ramp_time", "ramp"), ("frequency", "sine"), ("phase", "sine")):
+        if key in raw and profile != owner:
+            raise DeckError(f"drive.{key}", f'applies only to profile = "{owner}"', d[key])
+    if d["theory_time"] is not None and d["theory_time"] > end:
+        raise DeckError("drive.theory_time", f"must be <= time.end = {end:g}", d["theory_time"])
+    return Drive(current=d["current"], profile=profile, ramp_time=d["ramp_time"],
+                 frequency=d["frequency"], phase=d["phase"] if profile == "sine" else 0.0,
+                 theory_time=d["theory_time"], current_statA_cm2=d["current_statA_cm2"],
+                 current_A_m2=d["current_A_m2"])
+
+
+def _drive_dict(d: Drive) -> dict:
+    """The resolved [drive] block as TOML-ready data (normalised current only)."""
+    out = {"current": d.current, "profile": d.profile}
+    if d.profile == "ramp":
+        out["ramp_time"] = d.ramp_time
+    if d.profile == "sine":
+        out.update(frequency=d.frequency, phase=d.phase)
+    if d.theory_time is not None:
+        out["theory_time"] = d.theory_time
+    return out
 
 
 # --------------------------------------------------------------------------------------------
@@ -703,7 +784,14 @@ def resolve(deck: Deck) -> Deck:
     if time.dt > time.end * (1 + 1e-12):
         raise DeckError("time.dt", f"must be <= time.end = {time.end:g}", time.dt)
     output = _resolve_output(deck.output, time)
-    return dataclasses.replace(deck, species=species, box=box, time=time, output=output)
+    drive = deck.drive
+    if drive is not None and drive.current is None:
+        from .drive import convert_current
+        form = "current_statA_cm2" if drive.current_statA_cm2 is not None else "current_A_m2"
+        drive = dataclasses.replace(drive, current=convert_current(
+            getattr(drive, form), form, deck.units.density_cm3))
+    return dataclasses.replace(deck, species=species, box=box, time=time, output=output,
+                               drive=drive)
 
 
 # --------------------------------------------------------------------------------------------

@@ -7,11 +7,19 @@ solve in :mod:`fields`.
 Time levels: at the top of step n the state holds x^n, u^{n-1/2}, the densities n_s^n and E^n.
 After :meth:`Simulation.advance`, ``prev_density``/``prev_efield`` are n^n/E^n and
 ``old_sums``/``new_sums`` the per-species sums of (gamma - 1) and u over u^{n-1/2} and u^{n+1/2}.
+
+With a ``[drive]`` block the mean field E0 (k = 0) is part of the state: E^n on the grid is the
+Poisson field plus E0^n (the gather's weights sum to one, so every particle's push sees E0 without
+a kernel change), and after the push E0 advances by Ampere's law, E0^{n+1} = E0^n - dt (<J>^{n+1/2}
+- J_ext^{n+1/2}) (:func:`streamsim.drive.ampere_step`), <J> from the half-step velocities. Then
+``prev_e0`` is E0^n, ``old_current``/``new_current`` are <J>^{n-1/2}/<J>^{n+1/2} and
+``current_ext_half`` is J_ext^{n+1/2}. Without the block none of this runs.
 """
 from __future__ import annotations
 
 import numpy as np
 
+from . import drive as _drive
 from . import fields, kernels, loading
 from .deck import Deck
 
@@ -61,6 +69,9 @@ class Simulation:
         self.partial = np.zeros((self.nchunks, b.cells))
         self.sums = np.zeros((len(self.names), self.nchunks, kernels.NSUMS))
         self.step = 0
+        #: the [drive] block (None: no mean field, the run is exactly the undriven one)
+        self.drive = deck.drive
+        self.e0 = self.prev_e0 = 0.0
         self._deposit_all()
         # u^0 -> u^{-1/2}: a backward half kick with E^0
         for s in range(len(self.names)):
@@ -70,6 +81,11 @@ class Simulation:
         self.sums_half = self._half_step_sums()
         self.old_sums = self.new_sums = self.sums_half
         self.prev_density, self.prev_efield = self.density, self.efield
+        if self.drive is not None:
+            #: <J>^{n-1/2} at the top of step n
+            self.current_half = self._current(self.u)
+            self.old_current = self.new_current = self.current_half
+            self.current_ext_half = _drive.external_current(self.drive, -0.5 * self.dt)
 
     @property
     def n_particles(self) -> int:
@@ -101,6 +117,12 @@ class Simulation:
     def _solve(self) -> None:
         rho = self.charges @ self.density
         self.efield = fields.solve(rho, self.green)
+        if self.drive is not None:
+            self.efield += self.e0
+
+    def _current(self, us) -> float:
+        """<J> of momenta ``us`` (one array per species), units of e n_ref c."""
+        return _drive.mean_current(self.charges, self.weights, us, self.deck.box.length)
 
     # -- one step ------------------------------------------------------------------------
     def advance(self) -> None:
@@ -118,6 +140,13 @@ class Simulation:
         self.old_sums = self.sums_half
         self.new_sums = np.stack([tot[:, kernels.SUM_KE_NEW], tot[:, kernels.SUM_U_NEW]], axis=1)
         self.sums_half = self.new_sums
+        if self.drive is not None:
+            self.old_current, self.new_current = self.current_half, self._current(self.u)
+            self.current_half = self.new_current
+            self.current_ext_half = _drive.external_current(self.drive, (n + 0.5) * self.dt)
+            self.prev_e0 = self.e0
+            self.e0 = _drive.ampere_step(self.e0, self.new_current, self.current_ext_half,
+                                         self.dt)
         self.prev_density, self.prev_efield = self.density, self.efield
         self.density = new_density
         self._solve()
@@ -138,6 +167,22 @@ class Simulation:
         tot = self.sums.sum(axis=1)
         return np.stack([tot[:, kernels.SUM_KE_NEW], tot[:, kernels.SUM_U_NEW]], axis=1)
 
+    def next_momenta(self) -> list[np.ndarray]:
+        """Copies of u^{N+1/2} = u^{N-1/2} + (q/m) E^N dt, for the diagnostics of the last level
+        t_N (nothing moves)."""
+        b = self.deck.box
+        out = []
+        for s in range(len(self.names)):
+            u = self.u[s].copy()
+            kernels.kick(u, self.x[s], self.efield, self.qm[s] * self.dt, b.length, self.shape)
+            out.append(u)
+        return out
+
+    def final_current(self, next_u=None) -> float:
+        """<J>(t_N): the mean of <J> over u^{N-1/2} and u^{N+1/2} (drive runs only)."""
+        nxt = self._current(next_u if next_u is not None else self.next_momenta())
+        return 0.5 * (self.current_half + nxt)
+
     def _fail_particles(self) -> None:
         for s, (x, u) in enumerate(zip(self.x, self.u)):
             bad = np.flatnonzero(~((x >= 0) & (x < self.deck.box.length)) | ~np.isfinite(u))
@@ -152,15 +197,29 @@ class Simulation:
     # -- state for checkpoints -----------------------------------------------------------
     def state(self) -> dict:
         """What a checkpoint needs of the simulation itself (arrays and JSON)."""
+        meta = {"threads": self.threads, "sums_half": self.sums_half.tolist(),
+                "rng_state": self.rng_state}
+        if self.drive is not None:      # JSON floats round-trip exactly
+            meta["drive"] = {"e0": self.e0, "current_half": self.current_half}
         return {"step": self.step, "x": self.x, "u": self.u, "density": self.density,
-                "meta": {"threads": self.threads, "sums_half": self.sums_half.tolist(),
-                         "rng_state": self.rng_state}}
+                "meta": meta}
 
     def restore(self, step: int, x, u, density, meta: dict) -> None:
         if len(x) != len(self.x) or any(a.shape != b.shape for a, b in zip(x, self.x)):
             raise ValueError("the checkpoint does not belong to this deck "
                              "(particle counts differ)")
         self.x, self.u, self.step = list(x), list(u), int(step)
+        if self.drive is not None:
+            d = meta.get("drive")
+            if d is None:
+                raise ValueError("the checkpoint has no mean field E0 (written without [drive])")
+            self.e0 = self.prev_e0 = float(d["e0"])
+            self.current_half = float(d["current_half"])
+            self.old_current = self.new_current = self.current_half
+            self.current_ext_half = _drive.external_current(self.drive,
+                                                            (self.step - 0.5) * self.dt)
+        elif meta.get("drive") is not None:
+            raise ValueError("the checkpoint holds a mean field E0 but the deck has no [drive]")
         if density is not None and density.shape == self.density.shape:
             self.density = density
             self._solve()

@@ -23,6 +23,7 @@ from . import io, units
 from ._version import __version__
 from .deck import Deck, DeckError, load_deck
 from .diagnostics import Handler, standard_handlers, stride
+from .drive_diagnostics import drive_handlers
 from .engine import NumericalError, Simulation
 from .health import check_deck
 from .rundata import ParticleSnapshot, RunData
@@ -346,6 +347,8 @@ def run(deck=None, out: str | Path | None = None, *, quiet: bool = True, resume:
     try:
         for line in merge_findings(findings):
             say(line)
+        if deck.drive is not None and not quiet:
+            print(_drive_line(deck), file=sys.stderr)
         return _run_locked(deck, folder, dispersion, theory, findings, warnings, say,
                            quiet=quiet, resume=resume, analyze=analyze, threads=threads,
                            progress=progress, stop_after_steps=stop_after_steps,
@@ -353,6 +356,15 @@ def run(deck=None, out: str | Path | None = None, *, quiet: bool = True, resume:
     finally:
         if lock is not None:
             lock.release()
+
+
+def _drive_line(deck: Deck) -> str:
+    """The imposed current against the carrying limit, printed before a driven run."""
+    from .drive import carrying_limit, max_abs_current
+    lim = carrying_limit(deck.species)
+    j = max_abs_current(deck.drive, deck.time.end)
+    return (f"drive: max |J_ext| = {j:.4g} e n_ref c, carrying_limit = {lim:.4g} e n_ref c, "
+            f"ratio = {j / lim:.4g}" + (" (charge-starved)" if j > lim else ""))
 
 
 def _check_memory(deck: Deck) -> None:
@@ -363,7 +375,7 @@ def _check_memory(deck: Deck) -> None:
 def _run_locked(deck, folder, dispersion, theory, findings, warnings, say, *, quiet, resume,
                 analyze, threads, progress, stop_after_steps, figures) -> Result:
     sim = Simulation(deck, threads)
-    handlers = standard_handlers(sim)
+    handlers = standard_handlers(sim) + drive_handlers(sim)
     by_name = {h.name: h for h in handlers}
     recorder = by_name["series"]
     state = {"finished": False}
@@ -393,7 +405,9 @@ def _run_locked(deck, folder, dispersion, theory, findings, warnings, say, *, qu
     try:
         with _Signals() as sig:
             stop = StopRequest(sig, step0, stop_after_steps)
-            control = [EnergyWatch(recorder, deck.analysis.energy_tolerance, say)]
+            # a driven run watches its energy balance W - W0 = L int J_ext E0 dt instead
+            control = [EnergyWatch(by_name.get("drive", recorder),
+                                   deck.analysis.energy_tolerance, say)]
             if folder is not None:
                 control.append(Checkpointer(stride(deck.output.checkpoint_interval, sim.dt)
                                             if deck.output.checkpoint_interval > 0 else 0, save))
@@ -473,14 +487,22 @@ def _finish_run(sim, handlers, deck, folder, dispersion, theory, findings, warni
     end = ParticleSnapshot(t=float(sim.step * sim.dt),
                            x={n: x.copy() for n, x in zip(sim.names, sim.x)},
                            weight={n: float(w) for n, w in zip(sim.names, sim.weights)})
+    series = rec.series()
+    if "drive" in by_name:
+        series.arrays.update(by_name["drive"].series_arrays())
     data = RunData(deck=deck, names=sim.names, length=deck.box.length, cells=deck.box.cells,
-                   dt=sim.dt, series=rec.series(), snapshots=by_name["fields"].snapshots(),
+                   dt=sim.dt, series=series, snapshots=by_name["fields"].snapshots(),
                    phase_space=by_name["phase"].phase_space(), peak=by_name["peak"].snapshot(),
                    end=end, theory=dispersion)
     summary = _run_summary(sim, deck, rec, findings, warnings, status=status, wall=wall,
                            steps_done=steps_done)
     if theory is not None:
         summary["theory"] = theory
+    if "drive" in by_name:  # energy is not conserved when driven: report the balance instead
+        err = by_name["drive"].energy_err_max
+        summary["energy"].update(relative_error_max=err, warning=err > deck.analysis.energy_tolerance,
+                                 measure="driven run: max |W - W0 - L int J_ext E0 dt| / "
+                                         "max(|W0|, max |W - W0|)")
     if folder is not None:  # the raw data first: nothing is lost if the analysis fails
         snaps, phase = data.snapshots, data.phase_space
         io.write_series(folder / io.FILES["series"], sim.names, data.series,

@@ -99,3 +99,54 @@ def normalization(density_cm3: float) -> dict:
         "time_unit_ns": time_ns(1.0, density_cm3),
         "length_unit_cm": skin_depth_cm(density_cm3),
     }
+
+
+# ----------------------------------------------------------------------------------------------
+# current densities and fields (the imposed current of [drive])
+# ----------------------------------------------------------------------------------------------
+#: elementary charge, C (CODATA via scipy.constants)
+E_C = _sc.e
+#: speed of light, m/s
+C_M_S = _sc.c
+
+
+def current_unit_statA_cm2(density_cm3: float) -> float:
+    """The normalised current-density unit e n_ref c in statA/cm^2 (Gaussian CGS):
+    J_unit = e [statC] n_ref [cm^-3] c [cm/s]."""
+    if not density_cm3 > 0:
+        raise ValueError("density_cm3 must be > 0")
+    return E_STATC * density_cm3 * C_CM_S
+
+
+def current_unit_A_m2(density_cm3: float) -> float:
+    """The normalised current-density unit e n_ref c in A/m^2 (SI): J_unit = e [C] n_ref [m^-3]
+    c [m/s], n_ref [m^-3] = 1e6 n_ref [cm^-3]."""
+    if not density_cm3 > 0:
+        raise ValueError("density_cm3 must be > 0")
+    return E_C * density_cm3 * 1.0e6 * C_M_S
+
+
+def current_from_statA_cm2(j: float, density_cm3: float) -> float:
+    """A current density in statA/cm^2, converted to units of e n_ref c."""
+    return j / current_unit_statA_cm2(density_cm3)
+
+
+def current_from_A_m2(j: float, density_cm3: float) -> float:
+    """A current density in A/m^2, converted to units of e n_ref c."""
+    return j / current_unit_A_m2(density_cm3)
+
+
+def current_statA_cm2(j: float, density_cm3: float) -> float:
+    """A current density in units of e n_ref c, converted to statA/cm^2."""
+    return j * current_unit_statA_cm2(density_cm3)
+
+
+def current_A_m2(j: float, density_cm3: float) -> float:
+    """A current density in units of e n_ref c, converted to A/m^2."""
+    return j * current_unit_A_m2(density_cm3)
+
+
+def efield_statv_cm(e: float, density_cm3: float) -> float:
+    """An electric field in units of m_e c omega_p / e, converted to statV/cm (Gaussian CGS):
+    E [statV/cm] = E m_e c omega_p / e, with omega_p from :func:`omega_p_rad_s`."""
+    return e * M_E_G * C_CM_S * omega_p_rad_s(density_cm3) / E_STATC

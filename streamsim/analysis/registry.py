@@ -3,7 +3,7 @@ from ``ctx.results``). Adding a block: one module in :mod:`streamsim.analysis.bl
 line here."""
 from __future__ import annotations
 
-from .blocks import clumps, coherence, contrast, growth, oscillation, phase_space
+from .blocks import clumps, coherence, contrast, drive, growth, oscillation, phase_space
 
 BLOCKS = (
     growth,
@@ -12,4 +12,5 @@ BLOCKS = (
     clumps,
     coherence,
     phase_space,
+    drive,
 )

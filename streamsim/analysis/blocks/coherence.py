@@ -12,6 +12,7 @@ import numpy as np
 
 from ... import units
 from .. import coherence as _co
+from .. import driven as _driven
 from ..base import BlockResult, Context, Figure, ScanColumn, Table, fmt
 
 NAME = "coherence"
@@ -25,6 +26,8 @@ SCAN_COLUMNS = [
 
 
 def compute(ctx: Context) -> BlockResult:
+    if _driven.is_measured(ctx.options):  # analysis.bulk_gamma = "measured"
+        return _driven.coherence_with_measured_gamma(ctx, compute)
     data, n_cm3, opt = ctx.data, ctx.density_cm3, ctx.options
     drop, bulk, kmf = opt.coherence_drop, opt.bulk_gamma, opt.coherence_kmax_factor
     modes = _co.form_factor_modes(data.cells, kmf)
