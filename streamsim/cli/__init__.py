@@ -25,8 +25,7 @@ COMMANDS = {
 
 class _Parser(argparse.ArgumentParser):
     def error(self, message):  # argparse's own errors: one line, exit 2
-        self.print_usage(sys.stderr)
-        print(f"{self.prog}: error: {message}", file=sys.stderr)
+        print(f"argument error: {self.prog}: {message} (see {self.prog} --help)", file=sys.stderr)
         raise SystemExit(2)
 
 

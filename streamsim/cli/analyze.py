@@ -9,11 +9,23 @@ from streamsim.cli.common import error, output_failure, read_run_folder
 HELP = "analyse a run folder again: growth fits, density contrast, clumps, coherence cutoff"
 
 
+def _gamma(text: str):
+    """A number, or the word 'measured'."""
+    if text.strip().lower() == "measured":
+        return "measured"
+    try:
+        return float(text)
+    except ValueError:
+        import argparse
+        raise argparse.ArgumentTypeError(f"{text!r}: a number >= 1 or 'measured'") from None
+
+
 def add_arguments(p) -> None:
     p.add_argument("run_dir", metavar="RUN_DIR", help="a run folder written by `streamsim run`")
-    p.add_argument("--bulk-gamma", type=float, default=None, metavar="G",
+    p.add_argument("--bulk-gamma", type=_gamma, default=None, metavar="G",
                    help="Lorentz factor of the simulation frame toward the observer for the "
-                        "emission cutoff nu_c = G c k_c / 2 pi (default: the deck's "
+                        "emission cutoff nu_c = G c k_c / 2 pi, or 'measured' (the bulk Lorentz "
+                        "factor of the species that sets k_c; default: the deck's "
                         "analysis.bulk_gamma, 1 = the simulation frame)")
     p.add_argument("--clump-threshold", type=float, default=None, metavar="X",
                    help="a clump is a connected region with delta n/n > X (default: the deck's "

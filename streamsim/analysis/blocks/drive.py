@@ -21,7 +21,6 @@ import numpy as np
 
 from ... import units
 from ...drive import carrying_limit, max_abs_current
-from ...numbers import finite_or_none
 from .. import driven as _dv
 from .. import growth as _gr
 from ..base import BlockResult, Context, Figure, ScanColumn, Table, fmt
