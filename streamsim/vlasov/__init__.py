@@ -109,7 +109,7 @@ def summary_block(sim, data, wall: float, steps_done: int, say) -> dict:
         worst_edge = max(worst_edge, edge or 0.0)
         out["species"][name] = {
             "u_min": g.u_min, "u_max": g.u_max, "du": g.du, "automatic": g.automatic,
-            "recurrence_time": None,
+            "recurrence_time_mode1": None,
             "mass_relative_error_max": float(np.max(np.abs(m - m0)) / m0) if m0 else None,
             "l1_relative_change_max": float(np.max(np.abs(s.vlasov_l1[:, j] - s.vlasov_l1[0, j]))
                                             / s.vlasov_l1[0, j]) if m0 else None,
@@ -121,7 +121,7 @@ def summary_block(sim, data, wall: float, steps_done: int, say) -> dict:
         k1 = 2.0 * np.pi / sim.deck.box.length
         # recurrence of the first box mode on this grid: t_R = 2 pi / (k dv), dv the largest
         # velocity step of the grid (Cheng & Knorr 1976)
-        out["species"][name]["recurrence_time"] = 2.0 * np.pi / (k1 * dv) if dv else None
+        out["species"][name]["recurrence_time_mode1"] = 2.0 * np.pi / (k1 * dv) if dv else None
     if worst_edge > EDGE_WARN:
         say(f"f reaches the edge of a momentum grid (up to {worst_edge:.2g} of a species' mass "
             f"in its outermost cells): widen vlasov.u_min/u_max or raise vlasov.widen")
