@@ -305,3 +305,44 @@ def test_thread_count_does_not_change_the_result():
             threads=2)
     np.testing.assert_array_equal(a.series.field_energy, b.series.field_energy)
     np.testing.assert_array_equal(a.data.snapshots.density, b.data.snapshots.density)
+
+
+def test_compare_cli_writes_the_contract(tmp_path):
+    """`streamsim compare --json`: compare.json has exactly the three contract keys, the outputs
+    named as in summary.json, and the relative difference is (PIC - Vlasov)/|Vlasov| of the two
+    runs' own summary.json values (read back from their folders)."""
+    import subprocess
+    import sys
+    out = tmp_path / "cmp"
+    args = [sys.executable, "-m", "streamsim.cli", "compare", "runs/warm-pair-beams-vlasov.toml",
+            "--out", str(out), "--json", "--set", "species.electrons.particles_per_cell=32",
+            "--set", "species.positrons.particles_per_cell=32"]
+    for o in SMALL:
+        args += ["--set", o]
+    proc = subprocess.run(args, capture_output=True, text=True, timeout=600)
+    assert proc.returncode == 0, proc.stderr
+    c = json.loads((out / "compare.json").read_text())
+    assert json.loads(proc.stdout) == c
+    assert set(c) == {"pic", "vlasov", "relative_difference"}
+    for key in ("growth.measured", "contrast.max", "coherence.frequency_cutoff_hz",
+                "clumps.size_median", "coherence.k_cutoff", "contrast.t_unity_ns",
+                "energy.relative_error_max"):
+        assert key in c["pic"] and key in c["vlasov"] and key in c["relative_difference"]
+    pic = json.loads((out / "pic" / "summary.json").read_text())
+    vl = json.loads((out / "vlasov" / "summary.json").read_text())
+    assert pic["method"] == "pic" and vl["method"] == "vlasov"
+    p, v = pic["contrast"]["max"], vl["contrast"]["max"]
+    assert c["relative_difference"]["contrast.max"] == pytest.approx((p - v) / abs(v))
+    for fig in ("compare_field_energy.png", "compare_contrast.png", "compare_density.png",
+                "compare_form_factor.png"):
+        assert (out / fig).is_file(), fig
+
+
+def test_compare_refuses_a_cold_deck_in_one_line(tmp_path):
+    import subprocess
+    import sys
+    proc = subprocess.run([sys.executable, "-m", "streamsim.cli", "compare",
+                           "runs/pair-beams.toml", "--out", str(tmp_path / "c")],
+                          capture_output=True, text=True, timeout=300)
+    assert proc.returncode == 2
+    assert proc.stderr.strip().count("\n") == 0 and "momentum spread" in proc.stderr
