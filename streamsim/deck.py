@@ -37,6 +37,7 @@ from ._version import __version__
 __all__ = [
     "InputError", "DeckError", "did_you_mean", "show_value",
     "Deck", "Species", "Box", "Time", "Units", "Perturbation", "Output", "Analysis", "Drive",
+    "Vlasov", "METHODS", "VLASOV_IGNORED_KEYS",
     "load_deck", "validate", "resolve", "apply_overrides", "parse_override", "check_key_path",
     "exclusive_keys", "RENAMED_KEYS", "DEFAULT_DECK",
 ]
@@ -204,6 +205,46 @@ class Analysis:
     energy_tolerance: float       # relative energy error above which a run warns
 
 
+#: the simulation methods of the top-level key ``method``
+METHODS = ("pic", "vlasov")
+#: keys that mean nothing to a continuum run (``method = "vlasov"`` ignores them, saying so once)
+VLASOV_IGNORED_KEYS = ("particles_per_cell", "loading", "shape")
+
+
+@dataclass(frozen=True)
+class Vlasov:
+    """The ``[vlasov]`` section: the momentum grid and the scheme of ``method = "vlasov"``.
+
+    ``u_min``/``u_max``: None = automatic (from the loaded distribution, ``thermal_widths`` and
+    ``widen``), else a tuple of (species name, value) pairs; a single number in the deck applies
+    to every species (stored under the name ``"*"``)."""
+    momentum_cells: int = 256
+    u_min: tuple | None = None
+    u_max: tuple | None = None
+    thermal_widths: float = 7.0    # automatic range: the loaded distribution out to this many widths
+    widen: float = 1.0             # ... widened by this times the largest drift difference
+    x_advection: str = "pfc"       # "pfc" (positive, flux-conservative) | "spectral" (FFT shift)
+    ignored: tuple[str, ...] = field(default=(), compare=False)   # PIC-only keys the deck gave
+
+    def bound(self, which: str, name: str) -> float | None:
+        """The explicit u_min/u_max of species ``name``, or None (automatic)."""
+        pairs = getattr(self, which)
+        if pairs is None:
+            return None
+        values = dict(pairs)
+        return values.get(name, values.get("*"))
+
+    def to_dict(self) -> dict:
+        def bound(pairs):
+            if pairs is None:
+                return "auto"
+            d = dict(pairs)
+            return d["*"] if set(d) == {"*"} else d
+        return {"momentum_cells": self.momentum_cells, "u_min": bound(self.u_min),
+                "u_max": bound(self.u_max), "thermal_widths": self.thermal_widths,
+                "widen": self.widen, "x_advection": self.x_advection}
+
+
 @dataclass(frozen=True)
 class Drive:
     """The optional ``[drive]`` block: a uniform current J_ext(t) imposed through Ampere's law
@@ -231,6 +272,8 @@ class Deck:
     analysis: Analysis
     description: str = ""
     drive: Drive | None = None    # the optional [drive] block
+    method: str = "pic"           # "pic" | "vlasov"
+    vlasov: Vlasov = field(default_factory=Vlasov)
 
     def species_named(self, name: str) -> Species:
         for s in self.species:
@@ -282,6 +325,10 @@ class Deck:
             out["description"] = self.description
         if self.drive is not None:
             out["drive"] = _drive_dict(self.drive)
+        if self.method != "pic":
+            out["method"] = self.method
+        if self.method != "pic" or self.vlasov != Vlasov():
+            out["vlasov"] = self.vlasov.to_dict()
         return out
 
     def to_toml(self) -> str:
@@ -335,6 +382,7 @@ _TOP = {
     "title": _Key("str", "streamsim run", lambda v: None if v.strip() else "must not be empty"),
     "description": _Key("str", ""),
     "random_seed": _Key("int", 1, _ge(0)),
+    "method": _Key("str", "pic", choices=METHODS),
 }
 _UNITS = {"density_cm3": _Key("float", 1.0e10, _finite_pos)}
 _BOX = {
@@ -398,8 +446,18 @@ _DRIVE = {
     "phase": _Key("float", 0.0),
     "theory_time": _Key("float", None, _finite_nonneg),
 }
+_VLASOV = {
+    "momentum_cells": _Key("int", 256, lambda v: None if 16 <= v <= 65536
+                           else "must be between 16 and 65536"),
+    "u_min": _Key("float_map_or_auto", "auto"),
+    "u_max": _Key("float_map_or_auto", "auto"),
+    "thermal_widths": _Key("float", 7.0, lambda v: None if 3 <= v <= 40
+                           else "must be between 3 and 40"),
+    "widen": _Key("float", 1.0, lambda v: None if 0 <= v <= 10 else "must be between 0 and 10"),
+    "x_advection": _Key("str", "pfc", choices=("pfc", "spectral")),
+}
 _SECTIONS = {"units": _UNITS, "box": _BOX, "time": _TIME, "perturbation": _PERTURBATION,
-             "output": _OUTPUT, "analysis": _ANALYSIS, "drive": _DRIVE}
+             "output": _OUTPUT, "analysis": _ANALYSIS, "drive": _DRIVE, "vlasov": _VLASOV}
 #: sections that are absent unless the deck has them (no defaults are filled in)
 _OPTIONAL_SECTIONS = ("drive",)
 _ALL_TOP = set(_TOP) | set(_SECTIONS) | {"species"}
@@ -500,6 +558,18 @@ def _coerce(path: str, spec: _Key, value: Any) -> Any:
             hint = f"; did you mean '{close}'?" if close else ""
             raise DeckError(path, "must be one of " + ", ".join(f'"{c}"' for c in spec.choices) + hint,
                             value)
+    elif kind == "float_map_or_auto":   # "auto", one number, or {species name = number}
+        if value == "auto":
+            return value
+        items = value.items() if isinstance(value, dict) else [("*", value)]
+        out = {}
+        for name, v in items:
+            where = path if name == "*" else f"{path}.{name}"
+            if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+                raise DeckError(where, 'must be "auto", a number, or a table {species name = '
+                                'number}', v)
+            out[name] = float(v)
+        return out
     elif kind == "bool":
         if not isinstance(value, bool):
             raise DeckError(path, "must be true or false", value)
@@ -666,12 +736,23 @@ def validate(raw: dict) -> Deck:
                     phase_space_particles=o["phase_space_particles"], modes=modes,
                     checkpoint_interval=o["checkpoint_interval"], threads=o["threads"])
     drive = _drive(raw["drive"], sec["drive"], t["end"]) if "drive" in raw else None
+    method, vlasov = top["method"], _vlasov(sec["vlasov"], raw, species)
+    if method == "vlasov":
+        for s in species:
+            if s.is_cold:
+                raise DeckError(f"species.{s.name}.theta", 'method = "vlasov" needs a resolved '
+                                'momentum spread (a continuum cannot hold a cold beam): give '
+                                'theta > 0 or spread_u > 0', s.theta)
+    if method == "vlasov" and drive is not None:
+        raise DeckError("drive", 'an imposed current needs method = "pic" (the Vlasov solver '
+                        'has no mean-field drive yet)')
     return Deck(title=title, random_seed=top["random_seed"], units=Units(**sec["units"]),
                 box=box, time=time, species=species,
                 perturbation=Perturbation(modes=tuple(p["modes"]), amplitude=p["amplitude"],
                                           species=tuple(p["species"])),
                 output=output, analysis=Analysis(**sec["analysis"]),
-                description=top["description"], drive=drive)
+                description=top["description"], drive=drive, method=method,
+                vlasov=vlasov)
 
 
 def _drive(raw: dict, d: dict, end: float) -> Drive:
@@ -710,6 +791,38 @@ def _drive_dict(d: Drive) -> dict:
     if d.theory_time is not None:
         out["theory_time"] = d.theory_time
     return out
+
+
+def _vlasov(v: dict, raw: dict, species: tuple[Species, ...]) -> Vlasov:
+    """The [vlasov] section: species named in u_min/u_max exist, u_min < u_max, and the PIC-only
+    keys the deck gave (reported once by a continuum run)."""
+    names = [s.name for s in species]
+    pairs = {}
+    for which in ("u_min", "u_max"):
+        given = v[which]
+        if given == "auto":
+            pairs[which] = None
+            continue
+        for name in given:
+            if name != "*" and name not in names:
+                raise DeckError(f"vlasov.{which}.{name}", "no species named '" + name +
+                                "'; species are " + ", ".join(names), given[name])
+        pairs[which] = tuple(sorted(given.items()))
+    out = Vlasov(momentum_cells=v["momentum_cells"], u_min=pairs["u_min"], u_max=pairs["u_max"],
+                 thermal_widths=v["thermal_widths"], widen=v["widen"],
+                 x_advection=v["x_advection"])
+    for name in names:
+        lo, hi = out.bound("u_min", name), out.bound("u_max", name)
+        if lo is not None and hi is not None and not lo < hi:
+            raise DeckError("vlasov.u_max", f"must be > vlasov.u_min = {lo:g} (species {name})",
+                            hi)
+    ignored = []
+    for s in raw.get("species") or []:
+        if isinstance(s, dict):
+            ignored += [f"species.{s.get('name')}.{k}" for k in VLASOV_IGNORED_KEYS if k in s]
+    if isinstance(raw.get("box"), dict):
+        ignored += [f"box.{k}" for k in VLASOV_IGNORED_KEYS if k in raw["box"]]
+    return dataclasses.replace(out, ignored=tuple(ignored))
 
 
 # --------------------------------------------------------------------------------------------

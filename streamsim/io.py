@@ -12,8 +12,12 @@ Run folder layout::
     theory.json      the linear theory for the deck's box modes
     timeseries.h5    energies, momenta, complex E_k, contrast vs time
     fields.h5        openPMD 1.1: meshes E, rho, density_<species>; particle subsample
-    particles.h5     all positions at the time of maximum contrast and at the end
+    particles.h5     all positions at the time of maximum contrast and at the end (PIC)
+    continuum.h5     the densities at maximum contrast and at the end (method = "vlasov")
     checkpoint.h5    full state for --resume
+
+A continuum run's fields.h5 also holds f(x, u) of each species at the field cadence, as the 2D
+mesh records ``f_<species>`` (axes u, x).
 """
 from __future__ import annotations
 
@@ -30,11 +34,14 @@ import numpy as np
 from . import units
 from ._version import __version__
 from .numbers import finite_or_none
-from .rundata import DensitySnapshots, ParticleSnapshot, PhaseSpace, RunData, TimeSeries
+from .rundata import DensityProfile, DensitySnapshots, ParticleSnapshot, PhaseSpace, RunData, \
+    TimeSeries
 
 FILES = {"deck": "deck.toml", "summary": "summary.json", "theory": "theory.json",
          "series": "timeseries.h5", "fields": "fields.h5", "particles": "particles.h5",
          "checkpoint": "checkpoint.h5"}
+#: a continuum run's densities at maximum contrast and at the end (in place of particles.h5)
+CONTINUUM_FILE = "continuum.h5"
 
 
 def _umask() -> int:
@@ -215,9 +222,12 @@ def _si_scales(density_cm3: float) -> dict:
 
 def write_openpmd(path, deck, snapshots: DensitySnapshots, phase: PhaseSpace,
                   charges: list[float], weights: list[float], steps_fields: list[int],
-                  steps_phase: list[int]) -> None:
+                  steps_phase: list[int], distributions: dict | None = None) -> None:
     """Meshes (E, rho, density_<species>) at the field cadence and the phase-space subsample at
-    its cadence, in one groupBased openPMD 1.1 file (openPMD standard 1.1.0)."""
+    its cadence, in one groupBased openPMD 1.1 file (openPMD standard 1.1.0).
+
+    ``distributions`` (continuum runs): {"t", "f": [per species (n_f, momentum_cells, cells)],
+    "grids": [MomentumGrid]} at the field times, written as the 2D meshes ``f_<species>``."""
     si = _si_scales(deck.units.density_cm3)
     dx = deck.box.dx
     names = [s.name for s in deck.species]
@@ -268,6 +278,8 @@ def write_openpmd(path, deck, snapshots: DensitySnapshots, phase: PhaseSpace,
                     rec.attrs["timeOffset"] = np.float64(0.0)
                     comp.attrs["position"] = np.array([0.0], dtype=np.float64)
                     comp.attrs["unitSI"] = np.float64(unit_si)
+                if distributions is not None:
+                    _write_distributions(meshes, distributions, i, names, dx, si)
             if it in pidx:
                 i = pidx[it]
                 for s, name in enumerate(names):
@@ -315,6 +327,73 @@ def write_openpmd(path, deck, snapshots: DensitySnapshots, phase: PhaseSpace,
                         grp.attrs["unitDimension"] = _dims(L=1)
                         d = grp.create_dataset("x", data=np.array([val], dtype=np.float64))
                         d.attrs["unitSI"] = np.float64(si["length"])
+
+
+def _write_distributions(meshes, dist: dict, i: int, names, dx: float, si: dict) -> None:
+    """f_s(u, x) of snapshot i as the 2D mesh records ``f_<species>``: C order, axes (u, x),
+    cell-average values at the middle of each momentum cell and on the x nodes. f du is a
+    number density, so f has the dimension of a density per momentum (unitSI = n_ref / (m_e c)).
+    openPMD 1.1 gives one gridUnitSI for all axes: it is the length unit (for x); the u axis is
+    in m_e c, whose SI value the extra attribute ``momentumAxisUnitSI`` gives."""
+    for s, name in enumerate(names):
+        g = dist["grids"][s]
+        rec = meshes.create_dataset(f"f_{name}", data=np.asarray(dist["f"][s][i], dtype=np.float64))
+        rec.attrs["geometry"] = _b("cartesian")
+        rec.attrs["dataOrder"] = _b("C")
+        rec.attrs["axisLabels"] = np.array([b"u", b"x"])
+        rec.attrs["gridSpacing"] = np.array([g.du, dx], dtype=np.float64)
+        rec.attrs["gridGlobalOffset"] = np.array([g.u_min, 0.0], dtype=np.float64)
+        rec.attrs["gridUnitSI"] = np.float64(si["length"])
+        rec.attrs["momentumAxisUnitSI"] = np.float64(si["momentum"])
+        rec.attrs["unitDimension"] = _dims(L=-4, M=-1, T=1)
+        rec.attrs["timeOffset"] = np.float64(0.0)
+        rec.attrs["position"] = np.array([0.5, 0.0], dtype=np.float64)
+        rec.attrs["unitSI"] = np.float64(si["density"] / si["momentum"])
+
+
+def read_distributions(path, names: list[str]) -> dict | None:
+    """{"t", "f": [per species (n_f, momentum_cells, cells)], "u_min": [..], "du": [..]} from the
+    ``f_<species>`` meshes of a fields.h5, or None when it has none (a PIC run)."""
+    with h5py.File(path, "r") as f:
+        its = sorted(f["data"], key=int)
+        t, fs, lo, du = [], {n: [] for n in names}, {}, {}
+        for it in its:
+            m = f["data"][it]["meshes"]
+            if not all(f"f_{n}" in m for n in names):
+                continue
+            t.append(float(f["data"][it].attrs["time"]))
+            for n in names:
+                d = m[f"f_{n}"]
+                fs[n].append(d[()])
+                lo[n] = float(d.attrs["gridGlobalOffset"][0])
+                du[n] = float(d.attrs["gridSpacing"][0])
+    if not t:
+        return None
+    return {"t": np.array(t), "f": [np.array(fs[n]) for n in names],
+            "u_min": [lo[n] for n in names], "du": [du[n] for n in names]}
+
+
+def write_profiles(path, profiles: dict[str, DensityProfile | None]) -> None:
+    """Density profiles by label ("peak", "end"): group <label> with attribute t and dataset
+    density (S, cells)."""
+    with atomic_h5(path) as f:
+        for label, prof in profiles.items():
+            if prof is None:
+                continue
+            g = f.create_group(label)
+            g.attrs["t"] = prof.t
+            g.create_dataset("density", data=prof.density)
+
+
+def read_profiles(path) -> dict[str, DensityProfile | None]:
+    out = {"peak": None, "end": None}
+    if not Path(path).exists():
+        return out
+    with h5py.File(path, "r") as f:
+        for label in f:
+            out[label] = DensityProfile(t=float(f[label].attrs["t"]),
+                                        density=f[label]["density"][()])
+    return out
 
 
 # ----------------------------------------------------------------------------------------------
@@ -460,9 +539,11 @@ def read_run(folder) -> RunData:
         raw = json.loads((folder / FILES["theory"]).read_text(encoding="utf-8"))
         if isinstance(raw, dict) and "error" not in raw:
             theory = Dispersion.from_dict(raw)
+    profiles = read_profiles(folder / CONTINUUM_FILE)
     return RunData(deck=deck, names=names, length=deck.box.length, cells=cells,
                    dt=deck.time.dt, series=series, snapshots=snaps, phase_space=phase,
-                   peak=parts["peak"], end=parts["end"], theory=theory)
+                   peak=parts["peak"], end=parts["end"], theory=theory,
+                   peak_density=profiles["peak"], end_density=profiles["end"])
 
 
 def update_summary(folder, entries: dict) -> None:

@@ -333,6 +333,9 @@ def run(deck=None, out: str | Path | None = None, *, quiet: bool = True, resume:
 
     dispersion, theory = _theory(deck)
     findings = check_deck(deck, theory)
+    if deck.method == "vlasov":
+        from . import vlasov
+        findings = vlasov.health_findings(deck, findings)
     for f in findings:
         if f.level == "refusal" and not force:
             raise HealthRefusal(f.key, f"{f.message} (--force runs it anyway)",
@@ -349,6 +352,9 @@ def run(deck=None, out: str | Path | None = None, *, quiet: bool = True, resume:
             say(line)
         if deck.drive is not None and not quiet:
             print(_drive_line(deck), file=sys.stderr)
+        if deck.method == "vlasov":
+            for line in vlasov.notes(deck):
+                say(line)
         return _run_locked(deck, folder, dispersion, theory, findings, warnings, say,
                            quiet=quiet, resume=resume, analyze=analyze, threads=threads,
                            progress=progress, stop_after_steps=stop_after_steps,
@@ -368,14 +374,28 @@ def _drive_line(deck: Deck) -> str:
 
 
 def _check_memory(deck: Deck) -> None:
+    if deck.method == "vlasov":
+        from . import vlasov
+        vlasov.check_memory(deck)
+        return
     from . import memory
     memory.check(deck)
 
 
+def _simulation(deck: Deck, threads):
+    """The simulation object of the deck's method, and its recording handlers."""
+    if deck.method == "vlasov":
+        from .vlasov import VlasovSimulation, vlasov_handlers
+        sim = VlasovSimulation(deck, threads)
+        return sim, vlasov_handlers(sim)
+    sim = Simulation(deck, threads)
+    return sim, standard_handlers(sim)
+
+
 def _run_locked(deck, folder, dispersion, theory, findings, warnings, say, *, quiet, resume,
                 analyze, threads, progress, stop_after_steps, figures) -> Result:
-    sim = Simulation(deck, threads)
-    handlers = standard_handlers(sim) + drive_handlers(sim)
+    sim, handlers = _simulation(deck, threads)
+    handlers = handlers + (drive_handlers(sim) if deck.method == "pic" else [])
     by_name = {h.name: h for h in handlers}
     recorder = by_name["series"]
     state = {"finished": False}
@@ -484,18 +504,27 @@ def _finish_run(sim, handlers, deck, folder, dispersion, theory, findings, warni
     """io -> analysis -> figures -> summary.json (once)."""
     by_name = {h.name: h for h in handlers}
     rec = by_name["series"]
-    end = ParticleSnapshot(t=float(sim.step * sim.dt),
-                           x={n: x.copy() for n, x in zip(sim.names, sim.x)},
-                           weight={n: float(w) for n, w in zip(sim.names, sim.weights)})
-    series = rec.series()
-    if "drive" in by_name:
-        series.arrays.update(by_name["drive"].series_arrays())
-    data = RunData(deck=deck, names=sim.names, length=deck.box.length, cells=deck.box.cells,
-                   dt=sim.dt, series=series, snapshots=by_name["fields"].snapshots(),
-                   phase_space=by_name["phase"].phase_space(), peak=by_name["peak"].snapshot(),
-                   end=end, theory=dispersion)
+    continuum = deck.method == "vlasov"
+    if continuum:
+        from . import vlasov
+        data = vlasov.run_data(sim, by_name, dispersion)
+        end = None
+    else:
+        series = rec.series()
+        if "drive" in by_name:
+            series.arrays.update(by_name["drive"].series_arrays())
+        end = ParticleSnapshot(t=float(sim.step * sim.dt),
+                               x={n: x.copy() for n, x in zip(sim.names, sim.x)},
+                               weight={n: float(w) for n, w in zip(sim.names, sim.weights)})
+        data = RunData(deck=deck, names=sim.names, length=deck.box.length,
+                       cells=deck.box.cells, dt=sim.dt, series=series,
+                       snapshots=by_name["fields"].snapshots(),
+                       phase_space=by_name["phase"].phase_space(),
+                       peak=by_name["peak"].snapshot(), end=end, theory=dispersion)
     summary = _run_summary(sim, deck, rec, findings, warnings, status=status, wall=wall,
                            steps_done=steps_done)
+    if continuum:
+        summary["vlasov"] = vlasov.summary_block(sim, data, wall, steps_done, say)
     if theory is not None:
         summary["theory"] = theory
     if "drive" in by_name:  # energy is not conserved when driven: report the balance instead
@@ -509,8 +538,13 @@ def _finish_run(sim, handlers, deck, folder, dispersion, theory, findings, warni
                         {"dt": sim.dt, "length": deck.box.length, "cells": deck.box.cells})
         io.write_openpmd(folder / io.FILES["fields"], deck, snaps, phase, list(sim.charges),
                          sim.weights, [int(round(t / sim.dt)) for t in snaps.t],
-                         [int(round(t / sim.dt)) for t in phase.t])
-        io.write_particles(folder / io.FILES["particles"], {"peak": data.peak, "end": end})
+                         [int(round(t / sim.dt)) for t in phase.t],
+                         distributions=data.extra.get("distribution"))
+        if continuum:
+            io.write_profiles(folder / io.CONTINUUM_FILE, {"peak": data.peak_density,
+                                                           "end": data.end_density})
+        else:
+            io.write_particles(folder / io.FILES["particles"], {"peak": data.peak, "end": end})
     results = {}
     if analyze:
         from . import analysis
@@ -538,7 +572,8 @@ def _finish_run(sim, handlers, deck, folder, dispersion, theory, findings, warni
     if folder is not None:
         io.write_json(folder / io.FILES["summary"], summary)
     return Result(deck=deck, folder=folder, data=data, summary=io.jsonable(summary),
-                  x=dict(zip(sim.names, sim.x)), u=dict(zip(sim.names, sim.u)),
+                  x={} if continuum else dict(zip(sim.names, sim.x)),
+                  u={} if continuum else dict(zip(sim.names, sim.u)),
                   warnings=warnings, analysis=results, dispersion=dispersion)
 
 
@@ -550,6 +585,7 @@ def _run_summary(sim, deck, rec, findings, warnings, *, status, wall, steps_done
     return {
         "streamsim_version": __version__,
         "deck_title": deck.title,
+        "method": deck.method,
         "status": status,
         "normalization": units.normalization(deck.units.density_cm3),
         "steps": int(sim.step),

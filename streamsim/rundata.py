@@ -81,6 +81,14 @@ class ParticleSnapshot:
 
 
 @dataclass
+class DensityProfile:
+    """Grid densities of every species at one time: what a continuum (Vlasov) run keeps where a
+    PIC run keeps particle positions (its form factor is that of the density, noise floor 0)."""
+    t: float
+    density: np.ndarray         # (S, cells) n_s(x) / n_ref on the grid nodes
+
+
+@dataclass
 class PhaseSpace:
     t: np.ndarray               # (n_p,)
     x: dict[str, np.ndarray]    # species -> (n_p, n_sub)
@@ -101,3 +109,7 @@ class RunData:
     end: ParticleSnapshot | None      # at the end of the run
     theory: "Dispersion | None" = None  # the deck's linear theory (theory.json)
     extra: dict = field(default_factory=dict)
+    #: continuum runs: the densities at the diagnostic time of maximum delta n/n of any species,
+    #: and at the end (None for PIC runs, which keep the particle positions in peak/end)
+    peak_density: DensityProfile | None = None
+    end_density: DensityProfile | None = None

@@ -20,6 +20,7 @@ COMMANDS = {
     "scan": "streamsim.cli.scan",
     "validate": "streamsim.cli.validate",
     "bench": "streamsim.cli.bench",
+    "compare": "streamsim.cli.compare",
 }
 
 

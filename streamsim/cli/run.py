@@ -77,8 +77,12 @@ def _print_summary(result) -> None:
     from streamsim.analysis import terminal_lines
     s = result.summary
     n = s["normalization"]
-    lines = [f"{s['deck_title']}: {s['steps']} steps, {s['particles']} particles, "
-             f"{s['wall_s']:.1f} s ({s['particle_steps_per_s']:.3g} particle-steps/s)",
+    v = s.get("vlasov")
+    size = (f"{v['phase_space_cells']} phase-space cells (Vlasov), {s['wall_s']:.1f} s "
+            f"({v['cell_steps_per_s'] or 0:.3g} cell-steps/s)" if v else
+            f"{s['particles']} particles, {s['wall_s']:.1f} s "
+            f"({s['particle_steps_per_s']:.3g} particle-steps/s)")
+    lines = [f"{s['deck_title']}: {s['steps']} steps, {size}",
              f"  n_ref = {n['density_cm3']:.3g} cm^-3: 1/omega_p = {n['time_unit_ns']:.4g} ns, "
              f"c/omega_p = {n['skin_depth_cm']:.4g} cm",
              f"  energy error max {s['energy']['relative_error_max']:.2e}"]

@@ -226,7 +226,20 @@ def fig_convergence(d, path):
     save_figure(fig, path)
 
 
+def fig_pic_vlasov(d, path):
+    plt = _plt()
+    fig, ax = plt.subplots(figsize=(6.4, 4))
+    ax.semilogy(d["t"], d["field_energy_pic"], lw=1, label="PIC")
+    ax.semilogy(d["t"], d["field_energy_vlasov"], "--", lw=1, label="Vlasov")
+    ax.set_xlabel("t [1/w_p]")
+    ax.set_ylabel("field energy")
+    ax.set_title("warm pair beams: PIC and Vlasov")
+    ax.legend()
+    save_figure(fig, path)
+
+
 FIGURES = {"plasma_oscillation": fig_oscillation, "langmuir": fig_langmuir,
            "landau": fig_landau, "two_stream": fig_two_stream, "weak_beam": fig_weak_beam,
            "relativistic": fig_relativistic, "warm_beams": fig_warm,
-           "conservation": fig_conservation, "convergence": fig_convergence}
+           "conservation": fig_conservation, "convergence": fig_convergence,
+           "pic_vlasov": fig_pic_vlasov}

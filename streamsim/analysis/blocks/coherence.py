@@ -13,6 +13,7 @@ import numpy as np
 from ... import units
 from .. import coherence as _co
 from .. import driven as _driven
+from .. import continuum as _cn
 from ..base import BlockResult, Context, Figure, ScanColumn, Table, fmt
 
 NAME = "coherence"
@@ -36,18 +37,26 @@ def compute(ctx: Context) -> BlockResult:
     cols = {"snapshot": [], "t": [], "mode": [], "k": []}
     power: dict[str, list] = {}
     floors = {}
-    for label, snap in (("peak", data.peak), ("end", data.end)):
+    sources = (("peak", data.peak), ("end", data.end))
+    continuum = data.peak is None and getattr(data, "peak_density", None) is not None
+    if continuum:   # a Vlasov run: the density's form factor, noise floor 0 (analysis.continuum)
+        sources = (("peak", data.peak_density), ("end", data.end_density))
+    for label, snap in sources:
         if snap is None:
             continue
         entry = {"t": float(snap.t), "t_ns": units.time_ns(float(snap.t), n_cm3),
                  "by_species": {}}
         k = None
         for s, name in enumerate(data.names):
-            x = snap.x.get(name)
-            if x is None or len(x) == 0:
-                continue
-            r = _co.species_coherence(x, data.length, modes, drop=drop, density_cm3=n_cm3,
-                                      bulk_gamma=bulk, max_particles=ctx.max_particles, seed=s)
+            if continuum:
+                r = _cn.density_coherence(snap.density[s], data.length, modes, drop=drop,
+                                          density_cm3=n_cm3, bulk_gamma=bulk)
+            else:
+                x = snap.x.get(name)
+                if x is None or len(x) == 0:
+                    continue
+                r = _co.species_coherence(x, data.length, modes, drop=drop, density_cm3=n_cm3,
+                                          bulk_gamma=bulk, max_particles=ctx.max_particles, seed=s)
             k = r.pop("k")
             power.setdefault(name, []).append(r.pop("power"))
             floors[f"noise_floor_{label}_{name}"] = r["noise_floor"]

@@ -1,0 +1,238 @@
+"""PIC and Vlasov on one deck: the cross-check of the nonlinear outputs.
+
+    from streamsim.vlasov.compare import compare
+    c = compare("runs/warm-pair-beams-vlasov.toml", out="runs/out/compare")
+    c.table()            # side by side, with the relative differences
+    c.contract()         # what compare.json holds
+
+The deck is run twice through :func:`streamsim.pipeline.run`, once with ``method = "pic"`` and
+once with ``method = "vlasov"`` (everything else the same), into ``<out>/pic`` and
+``<out>/vlasov``. compare.json is ``{"pic": {output: value}, "vlasov": {output: value},
+"relative_difference": {output: value}}`` with the outputs named by their summary.json key paths;
+the relative difference is (PIC - Vlasov) / |Vlasov|: PIC's departure from the noise-free
+continuum (null where either value is missing or the Vlasov value is 0).
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from ..numbers import finite_or_none
+
+__all__ = ["compare", "Comparison", "OUTPUTS", "relative_difference"]
+
+#: (summary.json key path, what it is, unit)
+OUTPUTS = (
+    ("growth.measured", "fastest growth (headline mode)", "omega_p"),
+    ("contrast.t_unity_ns", "clump formation time t_unity", "ns"),
+    ("contrast.max", "max delta n/n", ""),
+    ("clumps.size_median", "clump median size (FWHM)", "c/omega_p"),
+    ("coherence.k_cutoff", "coherence cutoff k_c", "omega_p/c"),
+    ("coherence.frequency_cutoff_hz", "emission cutoff nu_c", "Hz"),
+    ("energy.relative_error_max", "energy error (max relative)", ""),
+)
+
+FILE = "compare.json"
+
+
+def _value(summary: dict, path: str):
+    d = summary
+    for p in path.split("."):
+        if not isinstance(d, dict):
+            return None
+        d = d.get(p)
+    return finite_or_none(d)
+
+
+def relative_difference(pic, vlasov):
+    """(pic - vlasov) / |vlasov|, or None."""
+    if pic is None or vlasov is None or vlasov == 0:
+        return None
+    return (pic - vlasov) / abs(vlasov)
+
+
+@dataclass
+class Comparison:
+    pic: object                    # pipeline.Result
+    vlasov: object                 # pipeline.Result
+    folder: Path | None
+    figures: list[Path] = field(default_factory=list)
+
+    def values(self, which: str) -> dict:
+        res = self.pic if which == "pic" else self.vlasov
+        return {path: _value(res.summary, path) for path, _, _ in OUTPUTS}
+
+    def contract(self) -> dict:
+        p, v = self.values("pic"), self.values("vlasov")
+        return {"pic": p, "vlasov": v,
+                "relative_difference": {k: relative_difference(p[k], v[k]) for k in p}}
+
+    def table(self) -> str:
+        c = self.contract()
+        rows = [("output", "PIC", "Vlasov", "(PIC-Vlasov)/|Vlasov|")]
+        for path, what, unit in OUTPUTS:
+            rd = c["relative_difference"][path]
+            rows.append((f"{path} ({what}{', ' + unit if unit else ''})", _g(c["pic"][path]),
+                         _g(c["vlasov"][path]), "-" if rd is None else f"{100 * rd:+.2f} %"))
+        w = [max(len(r[i]) for r in rows) for i in range(4)]
+        lines = ["  ".join(x.ljust(n) for x, n in zip(r, w)).rstrip() for r in rows]
+        lines.insert(1, "  ".join("-" * n for n in w))
+        return "\n".join(lines)
+
+    def csv(self) -> str:
+        import csv
+        import io as _io
+        c = self.contract()
+        buf = _io.StringIO()
+        wr = csv.writer(buf, lineterminator="\n")
+        wr.writerow(["output", "meaning", "unit", "pic", "vlasov", "relative_difference"])
+        for path, what, unit in OUTPUTS:
+            wr.writerow([path, what, unit] + ["" if c[k][path] is None else repr(c[k][path])
+                                              for k in ("pic", "vlasov", "relative_difference")])
+        return buf.getvalue()
+
+
+def _g(x) -> str:
+    return "n/a" if x is None else f"{x:.5g}"
+
+
+def compare(deck=None, out: str | Path | None = None, *, overrides: list[str] | None = None,
+            write: bool = True, threads: int | None = None, quiet: bool = True, warn=None,
+            figures: bool = True, force: bool = False) -> Comparison:
+    """Run ``deck`` with both methods and compare. out: the folder (default: the deck's
+    ``output.folder`` + ``-compare``); write=False keeps everything in memory. Raises what
+    :func:`streamsim.pipeline.run` raises (a cold species: a DeckError for the Vlasov run)."""
+    from .. import io
+    from ..deck import load_deck
+    from ..pipeline import run
+    overrides = list(overrides or [])
+    decks = {m: load_deck(deck, overrides + [f'method="{m}"']) for m in ("vlasov", "pic")}
+    folder = None
+    if write:
+        folder = Path(out if out is not None else decks["pic"].output.folder + "-compare")
+    results = {}
+    for m in ("pic", "vlasov"):
+        results[m] = run(decks[m], out=None if folder is None else folder / m, write=write,
+                         quiet=quiet, threads=threads, warn=warn, figures=figures and write,
+                         force=force)
+    c = Comparison(results["pic"], results["vlasov"], folder)
+    if folder is not None:
+        io.write_json(folder / FILE, c.contract())
+        io.write_text(folder / "compare.csv", c.csv())
+        if figures:
+            c.figures = draw(c, folder)
+    return c
+
+
+# ----------------------------------------------------------------------------------------------
+# figures: both methods overlaid
+# ----------------------------------------------------------------------------------------------
+STYLE = {"pic": dict(color="tab:blue", ls="-", label="PIC"),
+         "vlasov": dict(color="tab:red", ls="--", label="Vlasov")}
+
+
+def peak_density(result) -> tuple[float, np.ndarray] | None:
+    """(t, (S, cells) densities) at the diagnostic time of maximum contrast: the continuum's
+    own, or the PIC peak positions deposited with cloud-in-cell weights (Birdsall & Langdon
+    1991, ch. 8) on the run's grid."""
+    d = result.data
+    if d.peak_density is not None:
+        return d.peak_density.t, d.peak_density.density
+    if d.peak is None:
+        return None
+    N, L = d.cells, d.length
+    dx = L / N
+    out = np.zeros((len(d.names), N))
+    for s, name in enumerate(d.names):
+        x = np.asarray(d.peak.x[name]) / dx
+        j = np.floor(x).astype(np.int64)
+        w = x - j
+        out[s] = (np.bincount(j % N, 1 - w, N) + np.bincount((j + 1) % N, w, N)) \
+            * d.peak.weight[name] / dx
+    return d.peak.t, out
+
+
+def draw(c: Comparison, folder: Path) -> list[Path]:
+    from .. import io
+    from ..plots import plt
+    paths = []
+    runs = {"pic": c.pic, "vlasov": c.vlasov}
+    names = c.pic.data.names
+
+    fig, ax = plt.subplots(figsize=(7, 4.5))
+    for m, r in runs.items():
+        s = r.data.series
+        ax.semilogy(s.t, np.where(s.field_energy > 0, s.field_energy, np.nan), lw=1, **STYLE[m])
+    ax.set_xlabel("t [1/w_p]")
+    ax.set_ylabel("field energy")
+    ax.set_title("field energy: PIC and Vlasov")
+    ax.legend()
+    paths.append(io.save_figure(fig, folder / "compare_field_energy.png"))
+
+    fig, ax = plt.subplots(figsize=(7, 4.5))
+    for m, r in runs.items():
+        s = r.data.series
+        for j, name in enumerate(names + ["total"]):
+            y = s.contrast_max[:, j]
+            st = dict(STYLE[m])
+            st["label"] = f"{st['label']}, {name}"
+            ax.semilogy(s.t, np.where(y > 0, y, np.nan), lw=1, alpha=1.0 if j == 0 else 0.6,
+                        **{k: v for k, v in st.items() if k != "color"},
+                        color=plt.cm.tab10(j + (0 if m == "pic" else 3)))
+    ax.axhline(1.0, color="0.5", lw=0.8, ls=":")
+    ax.set_xlabel("t [1/w_p]")
+    ax.set_ylabel("max delta n/n")
+    ax.set_title("density contrast: PIC (solid) and Vlasov (dashed)")
+    ax.legend(fontsize=7, ncol=2)
+    paths.append(io.save_figure(fig, folder / "compare_contrast.png"))
+
+    fig, axes = plt.subplots(len(names), 1, figsize=(8, 2.6 * len(names)), sharex=True,
+                             squeeze=False)
+    for m, r in runs.items():
+        got = peak_density(r)
+        if got is None:
+            continue
+        t, dens = got
+        x = np.arange(r.data.cells) * r.data.length / r.data.cells
+        for s, name in enumerate(names):
+            st = dict(STYLE[m])
+            st["label"] = f"{st['label']}, t = {t:.4g} /w_p"
+            axes[s, 0].plot(x, dens[s] / dens[s].mean() - 1.0, lw=0.9, **st)
+            axes[s, 0].set_ylabel(f"dn/n, {name}")
+    axes[0, 0].legend(fontsize=8)
+    axes[0, 0].set_title("density at maximum contrast")
+    axes[-1, 0].set_xlabel("x [c/w_p]")
+    paths.append(io.save_figure(fig, folder / "compare_density.png"))
+
+    fig, ax = plt.subplots(figsize=(7, 4.5))
+    for m, r in runs.items():
+        co = r.analysis.get("coherence")
+        tab = co.tables.get("form_factor") if co is not None else None
+        if tab is None or not len(tab):
+            continue
+        part = tab.where("snapshot", "peak")
+        for j, name in enumerate(names):
+            if f"F2_{name}" not in part.columns:
+                continue
+            P = part.col(f"F2_{name}")
+            st = dict(STYLE[m])
+            st["label"] = f"{st['label']}, {name}"
+            ax.loglog(part.col("k"), np.where(P > 0, P, np.nan), lw=0.8, alpha=1.0 if j == 0
+                      else 0.6, **st)
+        floor = (r.summary.get("coherence") or {}).get("noise_floor")
+        if floor:
+            ax.axhline(floor, color=STYLE[m]["color"], lw=0.8, ls=":",
+                       label=f"{STYLE[m]['label']} noise floor 1/N")
+    ax.set_xlabel("k [w_p/c]")
+    ax.set_ylabel("|F(k)|^2 at maximum contrast")
+    ax.set_title("form factor: PIC particles and the Vlasov density")
+    ax.legend(fontsize=7)
+    paths.append(io.save_figure(fig, folder / "compare_form_factor.png"))
+    return paths
+
+
+def _finite(x) -> bool:
+    return x is not None and math.isfinite(x)
