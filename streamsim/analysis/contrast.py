@@ -23,13 +23,14 @@ __all__ = ["first_crossing", "contrast_block", "species_contrast", "exponential_
            "NOISE_MARGIN"]
 
 #: the exponential phase is fitted below this max delta n/n (still linear: common practice)
-LINEAR_TOP = 0.1
+LINEAR_TOP = 0.3
 #: rms residual of ln(max delta n/n) about the fitted line that counts as exponential
-FIT_RMS = 0.1
+FIT_RMS = 0.15
 #: the fitted phase must span at least this many e-folds
 MIN_EFOLDS = 1.5
-#: a seed whose growing part lies this far below the back-extrapolated start is "below noise"
-NOISE_MARGIN = 10.0
+#: a seed whose max delta n/n is this far below the loading's own level before the growth
+#: is "below the noise" (common practice)
+NOISE_MARGIN = 3.0
 
 
 def first_crossing(t, y, level: float = 1.0) -> float | None:

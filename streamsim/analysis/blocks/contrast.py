@@ -94,15 +94,19 @@ def _start(block: dict, ctx: Context) -> list[str]:
         block["t_unity_ns_for_level"] = units.time_ns(tl, n_cm3)
         block["extrapolation"] = (f"t_unity + ln(initial_level / {asked:g}) / rate, along the "
                                   f"measured growth rate {rate:.4g} /omega_p of max delta n/n")
-    if seed > 0:
-        back = float(np.exp(fit["intercept"]))        # the fitted line at t = 0
-        below = bool(back > _ct.NOISE_MARGIN * seed)
+    t = np.asarray(s.t, float)
+    early = (t > 0) & (t < fit["t0"])
+    if seed > 0 and early.sum() >= 3:
+        noise = float(np.nanmedian(cmax[early]))     # the loading's own level before growth
+        block["loading_noise"] = noise
+        below = bool(noise > _ct.NOISE_MARGIN * seed)
         block["seed_below_noise"] = below
         if below:
             warnings.append(f"the seed (max dn/n = {seed:.2g}) lies below the loading's own "
-                            f"noise: the growth extrapolates back to dn/n = {back:.2g} at t = 0, "
-                            "so t_unity is set by the loading, not by perturbation.amplitude; "
-                            "raise the amplitude or set analysis.initial_level")
+                            f"noise (median max dn/n = {noise:.2g} before the growth), so "
+                            "t_unity is set by the loading, not by perturbation.amplitude; "
+                            "raise the amplitude, or set analysis.initial_level to extrapolate "
+                            "from a level of your own")
     return warnings
 
 
