@@ -24,6 +24,7 @@ from __future__ import annotations
 import copy
 import dataclasses
 import difflib
+import functools
 import importlib.resources
 import math
 import re
@@ -179,9 +180,11 @@ class Species:
 
 @dataclass(frozen=True)
 class Perturbation:
-    modes: tuple[int, ...] = ()
-    amplitude: float = 0.0        # delta n / n of each listed mode, by displacing positions
+    modes: tuple[int, ...] = ()   # box modes m (k_m = 2 pi m / L); derived when "band" was given
+    amplitude: float = 0.0        # delta n / n of each seeded mode, by placing the positions
     species: tuple[str, ...] = () # which species are displaced; empty = every negative species
+    phases: str | None = None     # "zero" | "random" (derived: "random" for a band, else "zero")
+    band: bool = field(default=False, compare=False)   # modes = "band" was given
 
 
 @dataclass(frozen=True)
@@ -199,10 +202,14 @@ class Output:
 @dataclass(frozen=True)
 class Analysis:
     clump_threshold: float        # a clump is a connected region with delta n/n above this
-    coherence_drop: float         # k_c: where |F|^2 falls to this fraction of its peak
+    coherence_drop: float         # k_c: where the log-binned envelope of |F|^2 falls to this
+                                  # fraction of its peak
     coherence_kmax_factor: float  # form factor computed up to this multiple of the grid Nyquist k
     bulk_gamma: float | str       # Lorentz factor of the simulation frame towards the observer, or "measured"
     energy_tolerance: float       # relative energy error above which a run warns
+    initial_level: float | None = None     # delta n/n to extrapolate the formation time from
+    coherence_bins_per_decade: int = 8     # log bins per decade of k for the |F|^2 envelope
+    clump_grid_cells: float = 3.0          # median FWHM below this many cells: grid-limited
 
 
 #: the simulation methods of the top-level key ``method``
@@ -286,7 +293,7 @@ class Deck:
         """True when every derived value is filled in (see :func:`resolve`)."""
         o = self.output
         return (self.box.length is not None and self.box.length_cm is not None
-                and self.time.dt is not None
+                and self.time.dt is not None and self.perturbation.phases is not None
                 and all(s.theta is not None and s.temperature_kev is not None for s in self.species)
                 and None not in (o.diagnostics_interval, o.fields_interval,
                                  o.phase_space_interval, o.checkpoint_interval)
@@ -317,9 +324,11 @@ class Deck:
             "species": species,
             "perturbation": {"modes": list(self.perturbation.modes),
                              "amplitude": self.perturbation.amplitude,
-                             "species": list(self.perturbation.species)},
+                             "species": list(self.perturbation.species),
+                             "phases": self.perturbation.phases},
             "output": dataclasses.asdict(self.output),
-            "analysis": dataclasses.asdict(self.analysis),
+            "analysis": {k: v for k, v in dataclasses.asdict(self.analysis).items()
+                         if v is not None},
         }
         if self.description:
             out["description"] = self.description
@@ -415,7 +424,10 @@ _SPECIES = {
     "loading": _Key("str", "quiet", choices=("quiet", "random")),
 }
 _PERTURBATION = {
-    "modes": _Key("int_list", [], lambda v: None if all(m >= 1 for m in v) else "mode numbers must be >= 1"),
+    # a list of box mode numbers, or "band": every box mode in the linear theory's unstable band
+    "modes": _Key("int_list_or_band", [], lambda v: None if v == "band" or all(m >= 1 for m in v)
+                  else "mode numbers must be >= 1"),
+    "phases": _Key("str", None, choices=("random", "zero")),
     "amplitude": _Key("float", 0.0, lambda v: None if (math.isfinite(v) and 0 <= v < 1) else "must be in [0, 1)"),
     "species": _Key("str_list", []),
 }
@@ -435,6 +447,12 @@ _ANALYSIS = {
     "coherence_kmax_factor": _Key("float", 4.0, lambda v: None if 1 <= v <= 64 else "must be between 1 and 64"),
     "bulk_gamma": _Key("float_or_measured", 1.0, lambda v: None if (math.isfinite(v) and v >= 1) else "must be >= 1"),
     "energy_tolerance": _Key("float", 1.0e-2, _finite_pos),
+    "initial_level": _Key("float", None, lambda v: None if (math.isfinite(v) and 0 < v < 1)
+                          else "must be in (0, 1) (a delta n/n)"),
+    "coherence_bins_per_decade": _Key("int", 8, lambda v: None if 2 <= v <= 64
+                                      else "must be between 2 and 64"),
+    "clump_grid_cells": _Key("float", 3.0, lambda v: None if (math.isfinite(v) and 0 < v <= 64)
+                             else "must be in (0, 64]"),
 }
 _DRIVE = {
     "current": _Key("float", None),
@@ -573,7 +591,10 @@ def _coerce(path: str, spec: _Key, value: Any) -> Any:
     elif kind == "bool":
         if not isinstance(value, bool):
             raise DeckError(path, "must be true or false", value)
-    elif kind == "int_list":
+    elif kind == "int_list_or_band" and isinstance(value, str):
+        if value != "band":
+            raise DeckError(path, 'must be a list of mode numbers or "band"', value)
+    elif kind in ("int_list", "int_list_or_band"):
         if isinstance(value, int) and not isinstance(value, bool):
             value = [value]
         if not isinstance(value, list) or not all(isinstance(v, int) and not isinstance(v, bool)
@@ -705,9 +726,16 @@ def validate(raw: dict) -> Deck:
         if n not in names:
             raise DeckError("perturbation.species", f"no species named '{n}'; species are "
                             + ", ".join(names), p["species"])
+    band = p["modes"] == "band"
     if p["amplitude"] > 0 and not p["modes"]:
         raise DeckError("perturbation.modes", "an amplitude > 0 needs at least one mode", p["modes"])
-    if p["modes"] and max(p["modes"]) > b["cells"] // 2:
+    if band and not p["amplitude"] > 0:
+        raise DeckError("perturbation.amplitude", 'modes = "band" needs an amplitude > 0',
+                        p["amplitude"])
+    if not band and p["modes"] and p["amplitude"] * len(set(p["modes"])) >= 1:
+        raise DeckError("perturbation.amplitude", f"amplitude x {len(set(p['modes']))} modes must "
+                        "be < 1 (the density must stay positive)", p["amplitude"])
+    if not band and p["modes"] and max(p["modes"]) > b["cells"] // 2:
         raise DeckError("perturbation.modes", f"mode numbers must be <= cells/2 = {b['cells'] // 2}",
                         p["modes"])
 
@@ -748,8 +776,9 @@ def validate(raw: dict) -> Deck:
                         'has no mean-field drive yet)')
     return Deck(title=title, random_seed=top["random_seed"], units=Units(**sec["units"]),
                 box=box, time=time, species=species,
-                perturbation=Perturbation(modes=tuple(p["modes"]), amplitude=p["amplitude"],
-                                          species=tuple(p["species"])),
+                perturbation=Perturbation(modes=() if band else tuple(p["modes"]),
+                                          amplitude=p["amplitude"], species=tuple(p["species"]),
+                                          phases=p["phases"], band=band),
                 output=output, analysis=Analysis(**sec["analysis"]),
                 description=top["description"], drive=drive, method=method,
                 vlasov=vlasov)
@@ -885,6 +914,36 @@ def _resolve_output(o: Output, t: Time) -> Output:
         checkpoint_interval=0.0 if checkpoint == 0 else cadence(checkpoint, end / 10.0))
 
 
+@functools.lru_cache(maxsize=64)
+def _bands(species: tuple[Species, ...]) -> tuple[tuple[float, float], ...]:
+    from .theory.roots import unstable_bands  # lazy: the deck asks the theory only when it must
+    return tuple(unstable_bands(species))
+
+
+def _resolve_perturbation(p: Perturbation, box: Box, species: tuple[Species, ...]) -> Perturbation:
+    """``modes = "band"``: every box mode m = 1..cells/2 whose k_m = 2 pi m / L lies in an
+    unstable band of the deck's linear theory; ``phases`` defaults to "random" for a band and
+    "zero" for a list of modes."""
+    phases = p.phases or ("random" if p.band else "zero")
+    if not p.band or p.modes:
+        return dataclasses.replace(p, phases=phases)
+    try:
+        bands = _bands(species)
+    except Exception as ex:  # noqa: BLE001 - reported as a deck error naming the key
+        raise DeckError("perturbation.modes", f"the linear theory could not find the unstable "
+                        f"band ({ex})", "band")
+    modes = tuple(m for m in range(1, box.cells // 2 + 1)
+                  if any(lo <= 2 * math.pi * m / box.length <= hi for lo, hi in bands))
+    if not modes:
+        raise DeckError("perturbation.modes", "no box mode lies in an unstable band of the "
+                        "linear theory (stable species, or a box shorter than the unstable "
+                        "wavelengths)", "band")
+    if p.amplitude * len(modes) >= 1:
+        raise DeckError("perturbation.amplitude", f"amplitude x {len(modes)} band modes must be "
+                        "< 1 (the density must stay positive)", p.amplitude)
+    return dataclasses.replace(p, modes=modes, phases=phases)
+
+
 def resolve(deck: Deck) -> Deck:
     """Fill in the derived values of a validated deck: species temperatures (theta <-> keV),
     the box length (from ``length_cm`` or the linear theory's fastest wavelength) and its cm
@@ -903,8 +962,9 @@ def resolve(deck: Deck) -> Deck:
         form = "current_statA_cm2" if drive.current_statA_cm2 is not None else "current_A_m2"
         drive = dataclasses.replace(drive, current=convert_current(
             getattr(drive, form), form, deck.units.density_cm3))
+    pert = _resolve_perturbation(deck.perturbation, box, species)
     return dataclasses.replace(deck, species=species, box=box, time=time, output=output,
-                               drive=drive)
+                               drive=drive, perturbation=pert)
 
 
 # --------------------------------------------------------------------------------------------

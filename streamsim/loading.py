@@ -121,6 +121,69 @@ def displace(x: np.ndarray, length: float, modes, amplitude: float) -> np.ndarra
     return np.mod(x + xi, length)
 
 
+#: the phase stream of a seeded perturbation is its own generator, seeded from
+#: (random_seed, this tag), so that it never shifts the loading's own random stream
+_PHASE_STREAM = 0x5EED
+
+
+def seed_phases(deck) -> np.ndarray:
+    """The phase phi_m in [0, 2 pi) of each seeded mode of ``deck.perturbation.modes`` (in that
+    order): zero, or ``phases = "random"``: uniform, drawn from ``random_seed``."""
+    pert = deck.perturbation
+    n = len(pert.modes)
+    if pert.phases != "random":
+        return np.zeros(n)
+    rng = np.random.default_rng([int(deck.random_seed), _PHASE_STREAM])
+    return rng.random(n) * (2.0 * np.pi)
+
+
+def seeded_density(x, length: float, modes, amplitude: float, phases) -> np.ndarray:
+    """n(x)/n_0 = 1 - amplitude sum_m cos(k_m x + phi_m), k_m = 2 pi m / L: the density the
+    perturbation loads (the convention of :func:`displace` with phases)."""
+    x = np.asarray(x, float)
+    out = np.ones_like(x)
+    for m, ph in zip(modes, phases):
+        out -= amplitude * np.cos(2.0 * np.pi * m / length * x + ph)
+    return out
+
+
+def seed_positions(x: np.ndarray, length: float, modes, amplitude: float, phases,
+                   iterations: int = 8, chunk: int = 1 << 16) -> np.ndarray:
+    """Place particles so that they sample n(x) = n_0 (1 - A sum_m cos(k_m x + phi_m)) exactly:
+    the unperturbed positions x_0 (even or random) give the quantiles q = x_0 / L of the
+    uniform load, and each particle goes to the root of G(x) = q of the cumulative fraction
+
+        G(x) = x/L - (A/L) sum_m [sin(k_m x + phi_m) - sin(phi_m)] / k_m
+
+    (inverse-transform sampling, Devroye 1986, ch. 2), solved by Newton's method from the
+    linear displacement x_0 + sum_m (A/k_m) [sin(k_m x_0 + phi_m) - sin(phi_m)]. For evenly
+    spaced x_0 the form factor (1/N) sum_j exp(-i k x_j) is then the midpoint rule of the
+    periodic integral of exp(-i k x) n(x)/(n_0 L), exact to round-off for k far below the
+    particle spacing's 2 pi N / L; the linear displacement alone is exact only to O(A^2).
+    Needs A sum 1 < 1 (positive density)."""
+    if amplitude == 0 or not len(modes):
+        return x
+    ks = 2.0 * np.pi * np.asarray(modes, float) / length
+    ph = np.asarray(phases, float)
+    off = np.sum(np.sin(ph) / ks)
+    out = np.empty_like(x, dtype=np.float64)
+    for lo in range(0, x.size, chunk):
+        x0 = np.asarray(x[lo:lo + chunk], float)
+        q = x0 / length
+        arg = np.outer(x0, ks) + ph
+        y = x0 + amplitude * (np.sin(arg) @ (1.0 / ks) - off)
+        for _ in range(iterations):
+            arg = np.outer(y, ks) + ph
+            g = y / length - amplitude / length * (np.sin(arg) @ (1.0 / ks) - off) - q
+            dg = (1.0 - amplitude * np.cos(arg).sum(axis=1)) / length
+            step = g / dg
+            y -= step
+            if np.max(np.abs(step)) < 1e-15 * length:
+                break
+        out[lo:lo + chunk] = y
+    return np.mod(out, length)
+
+
 def load_species(species, deck, rng: np.random.Generator):
     """(x, u, weight) for one species: weight = density L / N (lab-frame number per macro)."""
     n = species.particles_per_cell * deck.box.cells
@@ -130,7 +193,7 @@ def load_species(species, deck, rng: np.random.Generator):
     pert = deck.perturbation
     targets = pert.species or tuple(s.name for s in deck.species if s.charge < 0)
     if species.name in targets:
-        x = displace(x, deck.box.length, pert.modes, pert.amplitude)
+        x = seed_positions(x, deck.box.length, pert.modes, pert.amplitude, seed_phases(deck))
     x = np.ascontiguousarray(x, dtype=np.float64)
     x[x >= deck.box.length] -= deck.box.length
     weight = species.density * deck.box.length / n

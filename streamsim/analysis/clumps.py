@@ -22,9 +22,52 @@ import numpy as np
 from scipy import ndimage
 
 __all__ = ["label_periodic", "find_clumps", "fwhm_periodic", "density_power_spectrum",
-           "size_histogram", "DEFAULT_THRESHOLD"]
+           "size_histogram", "deposit_cic", "refinement", "median_bootstrap",
+           "DEFAULT_THRESHOLD", "BOOTSTRAP"]
 
 DEFAULT_THRESHOLD = 0.5
+#: bootstrap resamples of the clumps for the error of the median size
+BOOTSTRAP = 400
+#: particles per cell of the deposition grid at least (common practice: the shot noise of a
+#: random load, 1/sqrt(64) = 0.125, stays well below the clump threshold 0.5)
+PARTICLES_PER_FINE_CELL = 64
+#: the deposition grid is at most this many times finer than the simulation grid
+MAX_REFINE = 8
+
+
+def deposit_cic(x, length: float, nodes: int, weight: float = 1.0) -> np.ndarray:
+    """Cloud-in-cell density of positions x on ``nodes`` periodic nodes x_i = i L / nodes
+    (Birdsall & Langdon 1991, sec. 8-2), in units of weight per length."""
+    x = np.asarray(x, float)
+    h = length / nodes
+    s = np.mod(x, length) / h
+    i = np.floor(s).astype(np.int64)
+    f = s - i
+    i %= nodes
+    n = np.bincount(i, weights=1.0 - f, minlength=nodes)
+    n += np.bincount((i + 1) % nodes, weights=f, minlength=nodes)
+    return n * (weight / h)
+
+
+def refinement(particles_per_cell: float) -> int:
+    """How many times finer than the simulation grid the clumps are measured: the largest power
+    of 2 <= MAX_REFINE that keeps PARTICLES_PER_FINE_CELL per fine cell (at least 1)."""
+    r = 1
+    while r * 2 <= MAX_REFINE and particles_per_cell / (r * 2) >= PARTICLES_PER_FINE_CELL:
+        r *= 2
+    return r
+
+
+def median_bootstrap(values, resamples: int = BOOTSTRAP, seed: int = 0) -> float | None:
+    """Standard error of the median by the bootstrap (Efron & Tibshirani 1993, An Introduction
+    to the Bootstrap, ch. 6): the standard deviation of the medians of ``resamples`` resamples
+    with replacement (seeded). None for fewer than 2 values."""
+    v = np.asarray(values, float)
+    if v.size < 2:
+        return None
+    rng = np.random.default_rng(seed)
+    idx = rng.integers(0, v.size, size=(int(resamples), v.size))
+    return float(np.std(np.median(v[idx], axis=1), ddof=1))
 
 
 def label_periodic(mask: np.ndarray) -> tuple[np.ndarray, int]:

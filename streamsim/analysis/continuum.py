@@ -13,7 +13,7 @@ import math
 
 import numpy as np
 
-from .coherence import coherence_cutoff, emission_cutoff_hz
+from .coherence import emission_cutoff_hz, envelope_cutoff
 
 __all__ = ["density_form_factor", "density_coherence"]
 
@@ -29,12 +29,16 @@ def density_form_factor(density, length: float, modes: int) -> tuple[np.ndarray,
 
 
 def density_coherence(density, length: float, modes: int, *, drop: float, density_cm3: float,
-                      bulk_gamma: float = 1.0) -> dict:
+                      bulk_gamma: float = 1.0, bins_per_decade: int = 8, seed: int = 0) -> dict:
     """What :func:`coherence.species_coherence` gives for particles, for a grid density: form
-    factor, noise floor (0), cutoff and emission cutoff frequency."""
+    factor, noise floor (0), the envelope cutoff with its error, and the emission cutoff."""
     k, P = density_form_factor(density, length, modes)
-    cut = coherence_cutoff(k, P, 0.0, drop)
+    cut = envelope_cutoff(k, P, 0.0, drop, bins_per_decade, seed=seed)
+    env = cut.pop("envelope")
     nu = emission_cutoff_hz(cut["k_cutoff"], bulk_gamma, density_cm3) \
         if cut["k_cutoff"] is not None else None
+    nu_err = emission_cutoff_hz(cut["k_cutoff_err"], bulk_gamma, density_cm3) \
+        if cut.get("k_cutoff_err") is not None else None
     return {"k": k, "power": P, "particles": None, "particles_used": None, "noise_floor": 0.0,
-            **cut, "frequency_cutoff_hz": nu, "source": "continuum density"}
+            **cut, "frequency_cutoff_hz": nu, "frequency_cutoff_hz_err": nu_err,
+            "envelope": env, "source": "continuum density"}

@@ -18,7 +18,19 @@ import numpy as np
 
 from .. import units
 
-__all__ = ["first_crossing", "contrast_block", "species_contrast"]
+__all__ = ["first_crossing", "contrast_block", "species_contrast", "exponential_phase",
+           "initial_level", "t_unity_for_level", "LINEAR_TOP", "FIT_RMS", "MIN_EFOLDS",
+           "NOISE_MARGIN"]
+
+#: the exponential phase is fitted below this max delta n/n (still linear: common practice)
+LINEAR_TOP = 0.3
+#: rms residual of ln(max delta n/n) about the fitted line that counts as exponential
+FIT_RMS = 0.15
+#: the fitted phase must span at least this many e-folds
+MIN_EFOLDS = 1.5
+#: a seed whose max delta n/n is this far below the loading's own level before the growth
+#: is "below the noise" (common practice)
+NOISE_MARGIN = 3.0
 
 
 def first_crossing(t, y, level: float = 1.0) -> float | None:
@@ -33,6 +45,54 @@ def first_crossing(t, y, level: float = 1.0) -> float | None:
         return float(t[i])
     f = (level - y[i - 1]) / (y[i] - y[i - 1])
     return float(t[i - 1] + f * (t[i] - t[i - 1]))
+
+
+def exponential_phase(t, y, top: float = LINEAR_TOP, rms: float = FIT_RMS,
+                      min_efolds: float = MIN_EFOLDS) -> dict | None:
+    """The exponential growth of y(t) (max delta n/n) before it first reaches ``top``:
+    least-squares line ln y = a + rate t over [t0, t1], t1 the last sample below ``top``, t0 the
+    earliest sample from which the residual rms stays <= ``rms`` and the line spans at least
+    ``min_efolds`` (the loading's transient and phase mixing come before t0).
+
+    Returns {"rate", "t0", "t1", "level_t0" (the line at t0), "intercept", "rms"} or None."""
+    t = np.asarray(t, float)
+    y = np.asarray(y, float)
+    ok = np.isfinite(y) & (y > 0)
+    hit = np.flatnonzero(ok & (y >= top))
+    i1 = int(hit[0]) - 1 if hit.size else t.size - 1
+    if i1 < 3:
+        return None
+    tt, ly = t[:i1 + 1], np.where(ok[:i1 + 1], np.log(np.where(ok[:i1 + 1], y[:i1 + 1], 1.0)),
+                                  np.nan)
+    good = np.isfinite(ly)
+    for i0 in range(0, i1 - 2):
+        sel = good[i0:]
+        x, z = tt[i0:][sel], ly[i0:][sel]
+        if x.size < 4:
+            break
+        A = np.vstack([np.ones_like(x), x]).T
+        coef, *_ = np.linalg.lstsq(A, z, rcond=None)
+        res = z - A @ coef
+        r = float(np.sqrt(np.mean(res * res)))
+        if coef[1] > 0 and coef[1] * (x[-1] - x[0]) >= min_efolds and r <= rms:
+            return {"rate": float(coef[1]), "t0": float(x[0]), "t1": float(x[-1]),
+                    "intercept": float(coef[0]),
+                    "level_t0": float(math.exp(coef[0] + coef[1] * x[0])), "rms": r}
+    return None
+
+
+def initial_level(t, cmax) -> dict | None:
+    """The level the growth started from: the fitted exponential phase of max delta n/n
+    (:func:`exponential_phase`) at its start t0, once the loading has phase-mixed."""
+    return exponential_phase(t, cmax)
+
+
+def t_unity_for_level(t_unity: float, level0: float, rate: float, level: float) -> float:
+    """Formation time from a starting level: t_unity + ln(level0 / level) / rate, i.e. the
+    measured formation time moved along the measured exponential growth e^{rate t} from the
+    measured starting level level0 to ``level`` (assumes the same linear growth below level0
+    and the same nonlinear phase above it)."""
+    return float(t_unity + math.log(level0 / level) / rate)
 
 
 def _finite(v):

@@ -18,6 +18,7 @@ COMMANDS = {
     "analyze": "streamsim.cli.analyze",
     "plot": "streamsim.cli.plot",
     "scan": "streamsim.cli.scan",
+    "converge": "streamsim.cli.converge",
     "validate": "streamsim.cli.validate",
     "bench": "streamsim.cli.bench",
     "compare": "streamsim.cli.compare",

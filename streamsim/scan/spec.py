@@ -530,8 +530,10 @@ def _expand(scan: Scan, base_raw: dict) -> list[Point]:
         raise ScanError("", f"every run's deck is invalid; the first: {points[0].error}")
     if scan.replicas > 1:
         decks = [pt.deck for pt in points if pt.deck is not None]
-        if decks and all(s.loading == "quiet" for d in decks for s in d.species):
+        if decks and all(s.loading == "quiet" for d in decks for s in d.species) and not any(
+                d.perturbation.phases == "random" and d.perturbation.modes for d in decks):
             scan.warnings.append(
                 "replicas differ only in random_seed, and every species has loading = \"quiet\", "
-                "so the replicas are the same run; use loading = \"random\" for error bars")
+                "and no perturbation has random phases, so the replicas are the same run; use "
+                "loading = \"random\" (or perturbation.phases = \"random\") for error bars")
     return points

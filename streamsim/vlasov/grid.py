@@ -114,19 +114,17 @@ def momentum_profile(species, grid: MomentumGrid) -> np.ndarray:
 
 
 def density_profile(deck, species) -> np.ndarray:
-    """n_s(x_j) on the nodes: the deck's density times 1 - A sum_m cos(k_m x_j) for a perturbed
-    species — the density the PIC displacement seeds (:func:`streamsim.loading.displace`),
-    exactly rather than to first order."""
+    """n_s(x_j) on the nodes: the deck's density times 1 - A sum_m cos(k_m x_j + phi_m) for a
+    perturbed species — the density the PIC loading samples (:func:`streamsim.loading.
+    seeded_density`, with the same phases :func:`streamsim.loading.seed_phases`)."""
+    from ..loading import seed_phases, seeded_density
     b = deck.box
     x = np.arange(b.cells) * b.dx
     n = np.full(b.cells, species.density)
     p = deck.perturbation
     targets = p.species or tuple(s.name for s in deck.species if s.charge < 0)
     if species.name in targets and p.amplitude and p.modes:
-        shape = np.zeros(b.cells)
-        for m in p.modes:
-            shape += np.cos(2.0 * math.pi * m * x / b.length)
-        n = n * (1.0 - p.amplitude * shape)
+        n = n * seeded_density(x, b.length, p.modes, p.amplitude, seed_phases(deck))
     return n
 
 

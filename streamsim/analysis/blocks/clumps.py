@@ -1,5 +1,6 @@
 """Clumps block: connected overdense regions (delta n/n above ``analysis.clump_threshold``) at
-the density snapshot of maximum contrast and at the end; their widths (FWHM), masses and
+the maximum contrast and at the end, from the particle positions kept at those instants
+(deposited CIC on a grid finer than the simulation grid, the same instant as the form factor); their widths (FWHM), masses and
 positions, the size spectrum and the density power spectrum P(k).
 
 Summary key: ``clumps``. Tables: ``clumps``, ``clump_sizes``, ``density_spectrum``.
@@ -18,6 +19,8 @@ NAME = "clumps"
 SCAN_COLUMNS = [
     ScanColumn("clump_count", "", "clumps at the analysed snapshot", ("clumps", "count")),
     ScanColumn("clump_size_median_cm", "cm", "median clump size", ("clumps", "size_median_cm")),
+    ScanColumn("clump_size_median_err_cm", "cm", "bootstrap error of the median clump size",
+               ("clumps", "size_median_err_cm")),
 ]
 
 _CLUMP_COLUMNS = ("position", "position_cm", "width", "width_cm", "extent", "peak", "mass",
@@ -37,22 +40,54 @@ def _snapshot_choice(density: np.ndarray) -> list[tuple[str, int]]:
     return [("peak", int(np.argmax(score))), ("end", dens.shape[0] - 1)]
 
 
+def _sources(data):
+    """(label, t, {species: density on the measuring grid}, nodes, how) for the maximum contrast
+    and the end: from the particle positions (deposited CIC on a grid ``refinement`` times finer
+    than the simulation grid) when the run kept them, else the field-cadence density snapshot
+    of maximum contrast."""
+    out = []
+    snaps = {"peak": data.peak, "end": data.end}
+    if data.peak is not None:
+        ppc = min((s.particles_per_cell for s in data.deck.species), default=1)
+        r = _cl.refinement(ppc)
+        nodes = data.cells * r
+        for label, snap in snaps.items():
+            if snap is None:
+                continue
+            dens = {}
+            for name in data.names:
+                x = snap.x.get(name)
+                if x is not None and len(x):
+                    dens[name] = _cl.deposit_cic(x, data.length, nodes,
+                                                 float(snap.weight.get(name, 1.0)))
+            out.append((label, float(snap.t), dens, nodes,
+                        f"particle positions deposited (CIC) on {nodes} nodes "
+                        f"({r} per simulation cell)"))
+        return out
+    sn = data.snapshots
+    for label, i in _snapshot_choice(sn.density):
+        dens = {name: np.asarray(sn.density[i][s], float) for s, name in enumerate(data.names)}
+        out.append((label, float(sn.t[i]), dens, data.cells,
+                    "field-cadence density snapshot nearest the maximum (no particle positions)"))
+    return out
+
+
 def compute(ctx: Context) -> BlockResult:
     data, n_cm3 = ctx.data, ctx.density_cm3
     threshold = ctx.options.clump_threshold
-    snaps = data.snapshots
+    grid_cells = ctx.options.clump_grid_cells
     dx = data.length / data.cells
     skin = units.skin_depth_cm(n_cm3)
     clump_rows, size_rows, spec_rows = [], [], []
     per = {}
-    for label, i in _snapshot_choice(snaps.density):
-        t = float(snaps.t[i])
-        dens = np.asarray(snaps.density[i], float)
-        entry = {"t": t, "t_ns": units.time_ns(t, n_cm3), "index": i, "by_species": {}}
+    for label, t, dens, nodes, how in _sources(data):
+        h = data.length / nodes
+        entry = {"t": t, "t_ns": units.time_ns(t, n_cm3), "measured_on": how, "nodes": nodes,
+                 "by_species": {}}
         widths_all = []
         spectra = {}
-        for s, name in enumerate(data.names):
-            cl = _cl.find_clumps(dens[s], data.length, threshold)
+        for name, n_s in dens.items():
+            cl = _cl.find_clumps(n_s, data.length, threshold)
             for j, c in enumerate(cl):
                 c["width_cm"] = units.length_cm(c["width"], n_cm3)
                 c["position_cm"] = units.length_cm(c["position"], n_cm3)
@@ -64,23 +99,47 @@ def compute(ctx: Context) -> BlockResult:
                 "count": len(cl), "size_median": med,
                 "size_median_cm": units.length_cm(med, n_cm3) if med is not None else None,
                 "peak_max": max((c["peak"] for c in cl), default=None)}
-            spectra[name] = _cl.density_power_spectrum(dens[s], data.length)[1]
-        k, spectra["total"] = _cl.density_power_spectrum(dens.sum(axis=0), data.length)
-        edges, counts = _cl.size_histogram(widths_all, dx, data.length)
+            spectra[name] = _cl.density_power_spectrum(n_s, data.length)[1]
+        if not dens:
+            continue
+        total = sum(dens.values())
+        k, spectra["total"] = _cl.density_power_spectrum(total, data.length)
+        for name in data.names:
+            spectra.setdefault(name, np.full(k.size, np.nan))
+        spectra = {n: spectra[n] for n in list(data.names) + ["total"]}
+        edges, counts = _cl.size_histogram(widths_all, h, data.length)
         for b, c in enumerate(counts):
             size_rows.append((label, t, edges[b], edges[b + 1], int(c)))
         for m in range(k.size):
             spec_rows.append((label, t, m, k[m], *(spectra[n][m] for n in spectra)))
         med = float(np.median(widths_all)) if widths_all else None
+        err = _cl.median_bootstrap(widths_all)
         entry.update({"count": len(widths_all), "size_median": med,
                       "size_median_cm": units.length_cm(med, n_cm3) if med is not None else None,
+                      "size_median_err": err,
+                      "size_median_err_cm": units.length_cm(err, n_cm3) if err is not None
+                      else None,
+                      "size_median_cells": med / dx if med is not None else None,
                       "histogram": {"edges": edges, "edges_cm": edges * skin, "counts": counts}})
         per[label] = entry
-    head = dict(per.get("peak") or {"count": 0, "size_median": None, "size_median_cm": None})
+    head = dict(per.get("peak") or {"count": 0, "size_median": None, "size_median_cm": None,
+                                    "size_median_err": None, "size_median_err_cm": None})
     head["threshold"] = threshold
     head["snapshot"] = "peak" if "peak" in per else None
-    head["definition"] = ("connected grid regions with delta n/n > threshold (periodic), any "
-                          "species, at the density snapshot of maximum contrast; size = FWHM")
+    head["definition"] = ("connected regions with delta n/n > threshold (periodic), any "
+                          "species, at the maximum contrast; size = FWHM")
+    head["error_estimator"] = (f"bootstrap over the clumps ({_cl.BOOTSTRAP} resamples): the "
+                               "standard deviation of the median FWHM")
+    med = head.get("size_median")
+    head["grid_cells_limit"] = grid_cells
+    head["grid_limited"] = bool(med is not None and med < grid_cells * dx)
+    head["grid_limit_test"] = (f"median FWHM < analysis.clump_grid_cells = {grid_cells:g} "
+                               f"simulation cells ({grid_cells * dx:.3g} c/omega_p)")
+    cold = [s.name for s in data.deck.species if s.is_cold]
+    head["cold_species"] = cold
+    head["cold_note"] = ("a cold beam has no intrinsic clump scale: its caustics are as thin as "
+                         "the grid allows, so clump widths and k_c of cold species are set by "
+                         "box.cells") if cold else None
     head["end"] = per.get("end")
     tables = {
         "clumps": Table("clumps", {
@@ -115,15 +174,29 @@ def compute(ctx: Context) -> BlockResult:
         units={"k": "omega_p/c", "k_per_cm": "1/cm"})
     return BlockResult(NAME, {"clumps": head}, tables,
                        [Figure("clumps.png", "clump size spectrum and density power spectrum "
-                               "P(k)", _draw)], [_line(head)])
+                               "P(k)", _draw)], _lines(head))
 
 
-def _line(cl: dict) -> str:
+def _lines(cl: dict) -> list[str]:
+    out = []
     if cl.get("count"):
-        return (f"clumps (dn/n > {fmt(cl.get('threshold'), 'g')}): {cl['count']} at "
+        err = cl.get("size_median_err_cm")
+        pm = f" +- {err:.2g}" if err is not None else ""
+        line = (f"clumps (dn/n > {fmt(cl.get('threshold'), 'g')}): {cl['count']} at "
                 f"t = {fmt(cl.get('t'))} /w_p, median FWHM {fmt(cl.get('size_median'), '.3g')} "
-                f"c/w_p = {fmt(cl.get('size_median_cm'), '.3g')} cm")
-    return f"no clump above dn/n > {fmt(cl.get('threshold'), 'g')}"
+                f"c/w_p = {fmt(cl.get('size_median_cm'), '.3g')}{pm} cm")
+        if cl.get("grid_limited"):
+            fix = ("give the beams a temperature or raise box.cells" if cl.get("cold_species")
+                   else "raise box.cells")
+            line += (f" -- grid-limited: {fmt(cl.get('size_median_cells'), '.2g')} cells wide "
+                     f"(< {fmt(cl.get('grid_cells_limit'), 'g')}), the size is set by the grid; "
+                     f"{fix}")
+        out.append(line)
+    else:
+        out.append(f"no clump above dn/n > {fmt(cl.get('threshold'), 'g')}")
+    if cl.get("cold_species"):
+        out.append(f"  cold species ({', '.join(cl['cold_species'])}): {cl['cold_note']}")
+    return out
 
 
 def _draw(res: BlockResult, data):

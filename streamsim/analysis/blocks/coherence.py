@@ -21,6 +21,13 @@ NAME = "coherence"
 SCAN_COLUMNS = [
     ScanColumn("nu_c_hz", "Hz", "coherence cutoff frequency nu_c (see summary.json coherence)",
                ("coherence", "frequency_cutoff_hz")),
+    ScanColumn("nu_c_hz_err", "Hz", "bootstrap error of nu_c (see summary.json coherence)",
+               ("coherence", "frequency_cutoff_hz_err")),
+    ScanColumn("nu_c_lower_bound_hz", "Hz", "nu_c when it is only a lower bound (grid-limited)",
+               ("coherence", "frequency_cutoff_hz_lower_bound")),
+    ScanColumn("k_c", "omega_p/c", "coherence cutoff k_c (value or lower bound)",
+               ("coherence", "k_cutoff")),
+    ScanColumn("k_c_err", "omega_p/c", "bootstrap error of k_c", ("coherence", "k_cutoff_err")),
     ScanColumn("bulk_gamma", "", "bulk Lorentz factor assumed for nu_c",
                ("coherence", "bulk_gamma")),
 ]
@@ -50,14 +57,18 @@ def compute(ctx: Context) -> BlockResult:
         for s, name in enumerate(data.names):
             if continuum:
                 r = _cn.density_coherence(snap.density[s], data.length, modes, drop=drop,
-                                          density_cm3=n_cm3, bulk_gamma=bulk)
+                                          density_cm3=n_cm3, bulk_gamma=bulk,
+                                          bins_per_decade=opt.coherence_bins_per_decade, seed=s)
             else:
                 x = snap.x.get(name)
                 if x is None or len(x) == 0:
                     continue
                 r = _co.species_coherence(x, data.length, modes, drop=drop, density_cm3=n_cm3,
-                                          bulk_gamma=bulk, max_particles=ctx.max_particles, seed=s)
+                                          bulk_gamma=bulk, max_particles=ctx.max_particles, seed=s,
+                                          bins_per_decade=opt.coherence_bins_per_decade)
             k = r.pop("k")
+            kb, Eb, nb = r.pop("envelope")
+            r["envelope"] = {"k": kb, "mean_F2": Eb, "modes": nb}
             power.setdefault(name, []).append(r.pop("power"))
             floors[f"noise_floor_{label}_{name}"] = r["noise_floor"]
             if r["k_cutoff"] is not None:
@@ -71,7 +82,9 @@ def compute(ctx: Context) -> BlockResult:
         best = [(n, r) for n, r in entry["by_species"].items() if r["k_cutoff"] is not None]
         if best:
             name, r = max(best, key=lambda nr: nr[1]["k_cutoff"])
-            entry.update({"k_cutoff": r["k_cutoff"], "frequency_cutoff_hz": r["frequency_cutoff_hz"],
+            entry.update({"k_cutoff": r["k_cutoff"], "k_cutoff_err": r["k_cutoff_err"],
+                          "frequency_cutoff_hz": r["frequency_cutoff_hz"],
+                          "frequency_cutoff_hz_err": r["frequency_cutoff_hz_err"],
                           "noise_floor": r["noise_floor"], "species": name,
                           "lower_bound": r["lower_bound"], "status": r["status"]})
         else:
@@ -82,18 +95,38 @@ def compute(ctx: Context) -> BlockResult:
                           if fl else "no particle positions"})
         per[label] = entry
     src = "peak" if "peak" in per else ("end" if "end" in per else None)
-    head = {"k_cutoff": None, "frequency_cutoff_hz": None, "bulk_gamma": bulk,
+    head = {"k_cutoff": None, "k_cutoff_err": None, "frequency_cutoff_hz": None,
+            "frequency_cutoff_hz_err": None, "bulk_gamma": bulk,
             "noise_floor": None, "status": "no particle snapshot"}
     if src:
         head.update(per[src])
+    head.update(_grid_limit(head, ctx))
     head.update({"bulk_gamma": bulk, "snapshot": src, "drop": drop,
                  "noise_safety": _co.NOISE_SAFETY, "k_max": 2 * math.pi * modes / data.length,
                  "kmax_factor": kmf, "assumption": _co.ASSUMPTION,
-                 "criterion": "largest k with |F|^2 >= drop x its peak; reported only if "
-                              "drop x peak >= noise_safety x noise_floor (1/N_macro)"})
+                 "bins_per_decade": opt.coherence_bins_per_decade,
+                 "criterion": "k where the log-binned envelope of |F|^2 (mean over the modes "
+                              "of each of bins_per_decade log bins per decade, at least "
+                              f"{_co.MIN_MODES} modes a bin) falls below drop x its peak for "
+                              "the last time; reported only if drop x peak >= noise_safety x "
+                              "noise_floor (1/N_macro)",
+                 "error_estimator": f"bootstrap over the modes of each bin ({_co.BOOTSTRAP} "
+                                    "resamples): the standard deviation of k_c",
+                 "grid_limit_test": f"k_c >= {_co.GRID_FRACTION:g} x the grid Nyquist k "
+                                    "(wavelength <= 4 cells), or k_c only a lower bound, or the "
+                                    "clumps grid-limited (clumps.grid_limited)"})
+    if head.get("grid_limited") and head.get("frequency_cutoff_hz") is not None:
+        # a bound, never a plain value
+        head["frequency_cutoff_hz_lower_bound"] = head.pop("frequency_cutoff_hz")
+        head["frequency_cutoff_hz"] = None
+        head["frequency_cutoff_bound"] = "lower"
+    else:
+        head["frequency_cutoff_hz_lower_bound"] = None
+        head["frequency_cutoff_bound"] = None
     if head.get("k_cutoff") is not None:
         head["k_cutoff_per_cm"] = units.wavenumber_per_cm(head["k_cutoff"], n_cm3)
-        head["frequency_cutoff_ghz"] = head["frequency_cutoff_hz"] / 1e9
+        nu = head["frequency_cutoff_hz"] or head["frequency_cutoff_hz_lower_bound"]
+        head["frequency_cutoff_ghz"] = nu / 1e9 if head["frequency_cutoff_hz"] else None
     if src == "peak" and "end" in per:
         head["end"] = {k: per["end"][k] for k in ("t", "k_cutoff", "frequency_cutoff_hz",
                                                   "noise_floor", "species", "status")}
@@ -110,17 +143,49 @@ def compute(ctx: Context) -> BlockResult:
                                "cutoff and the noise floor", _draw)], _lines(head))
 
 
+def _grid_limit(head: dict, ctx: Context) -> dict:
+    """coherence.grid_limited and why (see :func:`streamsim.analysis.coherence.grid_limited_cutoff`)."""
+    data = ctx.data
+    kc = head.get("k_cutoff")
+    by_k = _co.grid_limited_cutoff(kc, bool(head.get("lower_bound")), data.cells, data.length)
+    cl = (ctx.results.get("clumps").summary.get("clumps", {})
+          if ctx.results.get("clumps") is not None else {})
+    by_clumps = bool(cl.get("grid_limited")) and kc is not None
+    why = []
+    if kc is not None and head.get("lower_bound"):
+        why.append("the envelope is still high at the largest k computed")
+    elif by_k:
+        why.append(f"k_c is at {kc / (math.pi * data.cells / data.length):.2g} of the grid "
+                   "Nyquist k")
+    if by_clumps:
+        why.append("the clumps that set it are grid-limited")
+    cold = [s.name for s in data.deck.species if s.is_cold]
+    return {"grid_limited": bool(by_k or by_clumps), "grid_limited_why": "; ".join(why) or None,
+            "k_nyquist": math.pi * data.cells / data.length, "cold_species": cold}
+
+
 def _lines(co: dict) -> list[str]:
     G = co.get("bulk_gamma", 1.0)
+    if co.get("frequency_cutoff_hz_lower_bound") is not None:
+        cold = co.get("cold_species") or []
+        fix = ("give the beams a temperature (a cold beam has no intrinsic clump scale) or "
+               "raise box.cells" if cold else "raise box.cells")
+        return [f"coherent emission up to at least nu_c >= "
+                f"{co['frequency_cutoff_hz_lower_bound'] / 1e9:.3g} GHz: a lower bound, "
+                f"grid-limited ({co.get('grid_limited_why')}); {fix}",
+                "  assumes particles on the same trajectory emitting along the motion; "
+                "nu_c = Gamma c k_c / 2 pi (a bunching estimate, not a radiation calculation)"]
     if co.get("frequency_cutoff_hz") is not None:
         lb = (" (lower bound: the spectrum is still high at the largest k computed)"
               if co.get("lower_bound") else "")
-        return [f"coherent emission up to nu_c = {co['frequency_cutoff_hz'] / 1e9:.4g} GHz "
-                f"(k_c = {fmt(co.get('k_cutoff'))} w_p/c, {co.get('species')}, "
+        err = co.get("frequency_cutoff_hz_err")
+        pm = f" +- {err / 1e9:.2g}" if err is not None else " (no error estimate)"
+        return [f"coherent emission up to nu_c = {co['frequency_cutoff_hz'] / 1e9:.3g}{pm} GHz "
+                f"(k_c = {fmt(co.get('k_cutoff'), '.3g')} w_p/c, {co.get('species')}, "
                 f"bulk Gamma = {G:g}, noise floor 1/N = {fmt(co.get('noise_floor'), '.2g')})"
                 f"{lb}",
                 "  assumes particles on the same trajectory emitting along the motion; "
-                "nu_c = Gamma c k_c / 2 pi"]
+                "nu_c = Gamma c k_c / 2 pi (a bunching estimate, not a radiation calculation)"]
     if co.get("snapshot") is None:
         return ["coherence: no particle snapshot in this run"]
     return [f"coherence: no cutoff above the noise floor (1/N = "
@@ -159,7 +224,12 @@ def _draw(res: BlockResult, data):
     ax.set_xlabel("k [w_p/c]")
     ax.set_ylabel("|F(k)|^2")
     nu = co.get("frequency_cutoff_hz")
-    txt = (f"nu_c = {nu / 1e9:.4g} GHz (bulk Gamma = {co.get('bulk_gamma', 1):g})" if nu
+    lb = co.get("frequency_cutoff_hz_lower_bound")
+    env = (by.get(co.get("species")) or {}).get("envelope") if co.get("species") else None
+    if env is not None and len(env["k"]):
+        ax.loglog(env["k"], env["mean_F2"], "k.-", lw=1, ms=3, label="log-binned envelope")
+    txt = (f"nu_c = {nu / 1e9:.3g} GHz (bulk Gamma = {co.get('bulk_gamma', 1):g})" if nu
+           else f"nu_c >= {lb / 1e9:.3g} GHz (grid-limited)" if lb
            else "no cutoff above the noise floor")
     ax.set_title(f"form factor at t = {co.get('t', 0):.4g} /w_p; {txt}", fontsize=9)
     ax.legend(fontsize=7)

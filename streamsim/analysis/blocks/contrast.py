@@ -17,6 +17,10 @@ SCAN_COLUMNS = [
     ScanColumn("t_unity_ns", "ns", "first time max delta n/n reaches 1 (clump formation)",
                ("contrast", "t_unity_ns")),
     ScanColumn("contrast_max", "", "maximum delta n/n over the run", ("contrast", "max")),
+    ScanColumn("initial_level", "", "delta n/n the growth started from (fitted, at its start)",
+               ("contrast", "initial_level")),
+    ScanColumn("t_unity_ns_for_level", "ns", "formation time from analysis.initial_level",
+               ("contrast", "t_unity_ns_for_level")),
 ]
 
 
@@ -25,6 +29,7 @@ def compute(ctx: Context) -> BlockResult:
     s = data.series
     names = list(data.names)
     block = _ct.contrast_block(s, names, n_cm3)
+    warnings = _start(block, ctx)
     t = np.asarray(s.t, float)
     cmax = np.asarray(s.contrast_max, float)
     crms = np.asarray(s.contrast_rms, float)
@@ -37,18 +42,93 @@ def compute(ctx: Context) -> BlockResult:
                   attrs={"columns": ",".join(names + ["total"])})
     return BlockResult(NAME, {"contrast": block}, {"contrast": table},
                        [Figure("contrast.png", "max and rms delta n/n vs time per species and "
-                               "for the total", _draw)], [_line(block)])
+                               "for the total", _draw)], _lines(block), warnings)
 
 
-def _line(c: dict) -> str:
+def _seed_level(deck) -> float:
+    """max |delta n/n| over the box of the loaded perturbation (the seed), 0 without one."""
+    from ...loading import seed_phases, seeded_density
+    p = deck.perturbation
+    if not p.amplitude or not p.modes:
+        return 0.0
+    x = np.linspace(0.0, deck.box.length, 16 * deck.box.cells, endpoint=False)
+    return float(np.max(np.abs(seeded_density(x, deck.box.length, p.modes, p.amplitude,
+                                              seed_phases(deck)) - 1.0)))
+
+
+def _start(block: dict, ctx: Context) -> list[str]:
+    """contrast.initial_level, efolds_to_unity, t_unity_ns_for_level; the warning when the
+    seed lies below the loading's own noise."""
+    from ...loading import seed_phases
+    data, n_cm3 = ctx.data, ctx.density_cm3
+    deck = data.deck
+    s = data.series
+    S = len(data.names)
+    cmax = np.nanmax(np.asarray(s.contrast_max, float)[:, :S], axis=1)
+    fit = _ct.initial_level(s.t, cmax)
+    p = deck.perturbation
+    seed = _seed_level(deck)
+    block["seed"] = {"modes": list(p.modes), "amplitude": p.amplitude, "phases": p.phases,
+                     "phase_values": [float(v) for v in seed_phases(deck)],
+                     "band": bool(p.band), "max_delta": seed}
+    block.update({"initial_level": None, "initial_level_t": None, "growth_rate": None,
+                  "efolds_to_unity": None, "t_unity_for_level": None,
+                  "t_unity_ns_for_level": None, "level_asked": ctx.options.initial_level,
+                  "seed_below_noise": None})
+    block["initial_level_definition"] = (
+        f"max delta n/n of the fitted exponential phase (ln fit below {_ct.LINEAR_TOP:g}, rms "
+        f"<= {_ct.FIT_RMS:g}, >= {_ct.MIN_EFOLDS:g} e-folds) at its start, after the loading "
+        "has phase-mixed")
+    warnings = []
+    if fit is None:
+        return warnings
+    lvl, rate = fit["level_t0"], fit["rate"]
+    block.update({"initial_level": lvl, "initial_level_t": fit["t0"],
+                  "initial_level_t_ns": units.time_ns(fit["t0"], n_cm3), "growth_rate": rate,
+                  "efolds_to_unity": float(np.log(1.0 / lvl)) if lvl < 1 else 0.0})
+    asked = ctx.options.initial_level
+    tu = block.get("t_unity")
+    if asked is not None and tu is not None:
+        tl = _ct.t_unity_for_level(tu, lvl, rate, asked)
+        block["t_unity_for_level"] = tl
+        block["t_unity_ns_for_level"] = units.time_ns(tl, n_cm3)
+        block["extrapolation"] = (f"t_unity + ln(initial_level / {asked:g}) / rate, along the "
+                                  f"measured growth rate {rate:.4g} /omega_p of max delta n/n")
+    t = np.asarray(s.t, float)
+    early = (t > 0) & (t < fit["t0"])
+    if seed > 0 and early.sum() >= 3:
+        noise = float(np.nanmedian(cmax[early]))     # the loading's own level before growth
+        block["loading_noise"] = noise
+        below = bool(noise > _ct.NOISE_MARGIN * seed)
+        block["seed_below_noise"] = below
+        if below:
+            warnings.append(f"the seed (max dn/n = {seed:.2g}) lies below the loading's own "
+                            f"noise (median max dn/n = {noise:.2g} before the growth), so "
+                            "t_unity is set by the loading, not by perturbation.amplitude; "
+                            "raise the amplitude, or set analysis.initial_level to extrapolate "
+                            "from a level of your own")
+    return warnings
+
+
+def _lines(c: dict) -> list[str]:
     if c.get("max") is None:
-        return "density contrast: not recorded"
+        return ["density contrast: not recorded"]
     if c.get("t_unity") is not None:
-        return (f"clumps form (max dn/n >= 1) at t = {fmt(c['t_unity'])} /w_p = "
-                f"{fmt(c.get('t_unity_ns'))} ns; max dn/n = {fmt(c['max'], '.3g')} "
-                f"at t = {fmt(c.get('t_max'))} /w_p")
-    return (f"no clump formation: max dn/n = {fmt(c['max'], '.3g')} < 1 "
-            f"(at t = {fmt(c.get('t_max'))} /w_p)")
+        out = [f"clumps form (max dn/n >= 1) at t = {fmt(c['t_unity'])} /w_p = "
+               f"{fmt(c.get('t_unity_ns'))} ns; max dn/n = {fmt(c['max'], '.3g')} "
+               f"at t = {fmt(c.get('t_max'))} /w_p"]
+    else:
+        out = [f"no clump formation: max dn/n = {fmt(c['max'], '.3g')} < 1 "
+               f"(at t = {fmt(c.get('t_max'))} /w_p)"]
+    if c.get("initial_level") is not None:
+        line = (f"  grown from dn/n = {fmt(c['initial_level'], '.2g')} at t = "
+                f"{fmt(c.get('initial_level_t'), '.3g')} /w_p "
+                f"({fmt(c.get('efolds_to_unity'), '.3g')} e-folds to unity)")
+        if c.get("t_unity_ns_for_level") is not None:
+            line += (f"; from dn/n = {fmt(c.get('level_asked'), '.2g')}: t_unity = "
+                     f"{fmt(c['t_unity_ns_for_level'])} ns (extrapolated)")
+        out.append(line)
+    return out
 
 
 def _draw(res: BlockResult, data):

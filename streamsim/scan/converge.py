@@ -1,0 +1,281 @@
+"""Resolution study: one deck at L levels of resolution, on the scan machinery.
+
+Level l (l = 0..L-1) multiplies ``box.cells`` and every species' ``particles_per_cell`` by F^l
+(F = ``factor``); ``time.dt`` is kept unless the numerical-health rules
+(:func:`streamsim.health.auto_dt` at the level's cell size) ask for a shorter step
+(``dt = "auto"`` decks stay "auto"). Decks with random loading or random phases run R replicas
+per level (``random_seed`` + replica). The runs form a zip-mode :class:`streamsim.scan.Scan`, so a
+study runs on a process pool or Dask and resumes exactly like a scan.
+
+For each headline output, at each level: the mean over the replicas and its error (the larger of
+the replicas' standard error of the mean and the runs' own error bars combined, sqrt(sum e_i^2)/R);
+the change between the two finest levels; where the three finest levels are monotone, the observed
+order p = ln((f_1 - f_2)/(f_2 - f_3)) / ln F and the Richardson estimate
+f_3 + (f_3 - f_2)/(F^p - 1) (Richardson 1911; e.g. Roache 1998, Verification and Validation in
+Computational Science and Engineering, ch. 5); and a verdict:
+
+- ``grid-limited``: the run flags the output as set by the grid at the finest level;
+- ``converged``: |change| <= the combined error of the two finest levels, or <= ``tolerance``
+  x |finest value|;
+- ``not converged``: otherwise (also when a level has no value).
+"""
+from __future__ import annotations
+
+import json
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+from ..numbers import finite_or_none
+
+__all__ = ["OUTPUTS", "Output", "build_study", "assess_output", "collect_study",
+           "write_study", "study_levels", "richardson", "DEFAULT_TOLERANCE"]
+
+DEFAULT_TOLERANCE = 0.10
+
+
+@dataclass(frozen=True)
+class Output:
+    name: str
+    unit: str
+    value: tuple[str, ...]             # summary.json path of the value
+    err: tuple[str, ...] | None        # path of its error bar, if any
+    limited: tuple[str, ...] | None    # path of a grid-limit flag
+    bound: tuple[str, ...] | None = None   # path of the value when only a bound is reported
+
+
+OUTPUTS = (
+    Output("growth_rate", "omega_p", ("growth", "measured"), ("growth", "measured_err"), None),
+    Output("t_unity_ns", "ns", ("contrast", "t_unity_ns"), None, None),
+    Output("contrast_max", "", ("contrast", "max"), None, None),
+    Output("clump_size_median_cm", "cm", ("clumps", "size_median_cm"),
+           ("clumps", "size_median_err_cm"), ("clumps", "grid_limited")),
+    Output("k_c", "omega_p/c", ("coherence", "k_cutoff"), ("coherence", "k_cutoff_err"),
+           ("coherence", "grid_limited")),
+    Output("nu_c_hz", "Hz", ("coherence", "frequency_cutoff_hz"),
+           ("coherence", "frequency_cutoff_hz_err"), ("coherence", "grid_limited"),
+           ("coherence", "frequency_cutoff_hz_lower_bound")),
+)
+
+
+def _get(d, path):
+    for p in path:
+        if not isinstance(d, dict):
+            return None
+        d = d.get(p)
+    return d
+
+
+def study_levels(deck, factor: float, levels: int) -> list[dict]:
+    """[{"cells", "particles_per_cell": {species: n}, "dt" (number or "auto")}] per level."""
+    from ..health import auto_dt
+    out = []
+    for lev in range(levels):
+        f = factor ** lev
+        cells = int(round(deck.box.cells * f))
+        ppc = {s.name: int(round(s.particles_per_cell * f)) for s in deck.species}
+        if deck.time.dt_auto:
+            dt = "auto"
+        else:
+            import dataclasses
+            box = dataclasses.replace(deck.box, cells=cells)
+            dt = min(deck.time.dt, auto_dt(box, deck.species, deck.time.end))
+            if dt < deck.time.dt:
+                dt = deck.time.end / math.ceil(deck.time.end / dt * (1 - 1e-12))
+        out.append({"cells": cells, "particles_per_cell": ppc, "dt": dt})
+    return out
+
+
+def is_random(deck) -> bool:
+    """Replicas differ only for random loading or random phases."""
+    return any(s.loading == "random" for s in deck.species) or (
+        deck.perturbation.phases == "random" and bool(deck.perturbation.modes))
+
+
+def build_study(deck_path, *, factor: float = 2.0, levels: int = 3, replicas: int | None = None,
+                overrides: list[str] | None = None, title: str | None = None):
+    """The study as a zip-mode :class:`Scan` (axes box.cells, particles_per_cell per species,
+    time.dt) and its levels. Raises DeckError (the deck) or ScanError."""
+    from ..deck import load_deck
+    from .spec import ScanError, load_scan
+    if not factor > 1:
+        raise ScanError("--factor", "must be > 1", factor)
+    if not 2 <= levels <= 8:
+        raise ScanError("--levels", "must be an integer from 2 to 8", levels)
+    if replicas is not None and not 1 <= replicas <= 1000:
+        raise ScanError("--replicas", "must be an integer from 1 to 1000", replicas)
+    deck = load_deck(deck_path, overrides)
+    lev = study_levels(deck, factor, levels)
+    reps = replicas if replicas is not None else (3 if is_random(deck) else 1)
+    if not is_random(deck):
+        reps = 1
+    axes = [{"name": "cells", "key": "box.cells", "values": [v["cells"] for v in lev]}]
+    for s in deck.species:
+        axes.append({"name": f"ppc_{s.name}", "key": f"species.{s.name}.particles_per_cell",
+                     "values": [v["particles_per_cell"][s.name] for v in lev]})
+    if not deck.time.dt_auto:
+        axes.append({"name": "dt", "key": "time.dt", "values": [v["dt"] for v in lev]})
+    raw = {"title": title or f"resolution study of {deck.title}", "mode": "zip",
+           "replicas": max(reps, 1), "set": list(overrides or []), "axis": axes}
+    if reps < 2:
+        raw["replicas"] = 1
+    if deck_path is not None:
+        raw["base"] = str(Path(deck_path).resolve())
+    if len(axes) and reps == 1 and levels < 2:
+        raise ScanError("--levels", "must be >= 2", levels)
+    scan = load_scan(raw)
+    return scan, deck, lev, reps
+
+
+def richardson(f1: float, f2: float, f3: float, factor: float):
+    """(observed order p, extrapolated value) from three levels f1 (coarsest) .. f3 (finest)
+    refined by ``factor`` each, or (None, None) when they are not monotone (Richardson 1911;
+    Roache 1998, ch. 5)."""
+    d1, d2 = f1 - f2, f2 - f3
+    if d1 == 0 or d2 == 0 or (d1 > 0) != (d2 > 0):
+        return None, None
+    p = math.log(d1 / d2) / math.log(factor)
+    denom = factor ** p - 1.0
+    if not denom > 0:
+        return p, None
+    return p, f3 + (f3 - f2) / denom
+
+
+def assess_output(levels: list[dict], factor: float, tolerance: float = DEFAULT_TOLERANCE,
+                  limited: bool = False) -> dict:
+    """change, order, extrapolated and verdict of one output from its levels
+    [{"value", "err", ...}] (coarse to fine); ``limited``: grid-limited at the finest level."""
+    vals = [finite_or_none(lv.get("value")) for lv in levels]
+    errs = [finite_or_none(lv.get("err")) for lv in levels]
+    out = {"change": None, "relative_change": None, "combined_err": None, "order": None,
+           "extrapolated": None, "verdict": "not converged"}
+    if len(vals) >= 2 and vals[-1] is not None and vals[-2] is not None:
+        ch = vals[-1] - vals[-2]
+        out["change"] = ch
+        out["relative_change"] = ch / abs(vals[-1]) if vals[-1] else None
+        comb = math.sqrt((errs[-1] or 0.0) ** 2 + (errs[-2] or 0.0) ** 2)
+        out["combined_err"] = comb if (errs[-1] is not None or errs[-2] is not None) else None
+        if abs(ch) <= comb or abs(ch) <= tolerance * abs(vals[-1]):
+            out["verdict"] = "converged"
+    if len(vals) >= 3 and None not in vals[-3:]:
+        out["order"], out["extrapolated"] = richardson(*vals[-3:], factor)
+    if limited:
+        out["verdict"] = "grid-limited"
+    return out
+
+
+def collect_study(scan, out: Path, levels: list[dict], factor: float, replicas: int,
+                  tolerance: float = DEFAULT_TOLERANCE) -> dict:
+    """converge.json's content from the run folders of a finished (or partial) study."""
+    from .tables import run_folder
+    from .worker import _read_json, read_state
+    per_level: list[list[dict]] = [[] for _ in levels]
+    for p in scan.points:
+        folder = run_folder(out, p)
+        state, _ = read_state(folder)
+        if state != "completed":
+            continue
+        s = _read_json(folder / "summary.json") or {}
+        per_level[p.point].append(s)
+    outputs = {}
+    for o in OUTPUTS:
+        rows = []
+        lim_last = False
+        for li, lv in enumerate(levels):
+            runs = per_level[li]
+            vs, es, lims = [], [], []
+            for s in runs:
+                v = finite_or_none(_get(s, o.value))
+                if v is None and o.bound is not None:
+                    v = finite_or_none(_get(s, o.bound))
+                if v is not None:
+                    vs.append(v)
+                    e = finite_or_none(_get(s, o.err)) if o.err else None
+                    if e is not None:
+                        es.append(e)
+                lims.append(bool(_get(s, o.limited)) if o.limited else False)
+            value = sum(vs) / len(vs) if vs else None
+            err = None
+            if vs:
+                own = math.sqrt(sum(e * e for e in es)) / len(vs) if es else None
+                sem = None
+                if len(vs) >= 2:
+                    m = value
+                    sem = math.sqrt(sum((v - m) ** 2 for v in vs) / (len(vs) - 1) / len(vs))
+                cands = [c for c in (own, sem) if c is not None]
+                err = max(cands) if cands else None
+            limited = bool(lims) and any(lims)
+            rows.append({"cells": lv["cells"], "particles_per_cell": lv["particles_per_cell"],
+                         "dt": lv["dt"], "value": value, "err": err, "runs": len(runs),
+                         "grid_limited": limited})
+            lim_last = limited
+        res = assess_output(rows, factor, tolerance, limited=lim_last)
+        outputs[o.name] = {"unit": o.unit, "levels": rows, **res}
+    return {"deck": scan.title, "factor": factor, "levels": len(levels), "replicas": replicas,
+            "tolerance": tolerance, "outputs": outputs,
+            "verdict_rule": "grid-limited when the finest level flags the output as set by the "
+                            "grid; converged when |change between the two finest levels| <= "
+                            "their combined error or <= tolerance x |finest value|; else not "
+                            "converged",
+            "error_rule": "per level: the larger of the replicas' standard error of the mean and "
+                          "sqrt(sum of the runs' own errors^2)/R",
+            "extrapolation": "Richardson from the three finest levels when monotone: "
+                             "p = ln((f1-f2)/(f2-f3))/ln F, f3 + (f3-f2)/(F^p-1)"}
+
+
+def write_study(study: dict, out: Path, figure: bool = True) -> list[Path]:
+    """converge.json, converge.csv and converge.png in ``out``."""
+    from .. import io
+    out = Path(out)
+    paths = [out / "converge.json", out / "converge.csv"]
+    io.write_json(paths[0], study)
+    lines = ["output,unit,level,cells,particles_per_cell,dt,value,err,runs,grid_limited,"
+             "change,order,extrapolated,verdict"]
+
+    def f(v):
+        return "" if v is None else (f"{v:.10g}" if isinstance(v, float) else str(v))
+    for name, o in study["outputs"].items():
+        for i, lv in enumerate(o["levels"]):
+            ppc = "/".join(str(v) for v in lv["particles_per_cell"].values())
+            lines.append(",".join([name, o["unit"], str(i), str(lv["cells"]), ppc, f(lv["dt"]),
+                                   f(lv["value"]), f(lv["err"]), str(lv["runs"]),
+                                   str(lv["grid_limited"]).lower(), f(o["change"]),
+                                   f(o["order"]), f(o["extrapolated"]), o["verdict"]]))
+    tmp = paths[1].with_suffix(".csv.tmp")
+    tmp.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    tmp.replace(paths[1])
+    if figure:
+        paths.append(_figure(study, out / "converge.png"))
+    return paths
+
+
+def _figure(study: dict, path: Path) -> Path:
+    from .. import io
+    from ..plots import plt
+    outs = study["outputs"]
+    n = len(outs)
+    cols = 3
+    rows = (n + cols - 1) // cols
+    fig, axes = plt.subplots(rows, cols, figsize=(4.2 * cols, 3.3 * rows), squeeze=False)
+    for ax, (name, o) in zip(axes.flat, outs.items()):
+        cells = [lv["cells"] for lv in o["levels"]]
+        v = [lv["value"] if lv["value"] is not None else float("nan") for lv in o["levels"]]
+        e = [lv["err"] or 0.0 for lv in o["levels"]]
+        ax.errorbar(cells, v, yerr=e, marker="o", capsize=3)
+        if o.get("extrapolated") is not None:
+            ax.axhline(o["extrapolated"], color="0.5", ls="--", lw=0.8, label="Richardson")
+            ax.legend(fontsize=7)
+        ax.set_xscale("log", base=2)
+        ax.set_xlabel("box.cells")
+        ax.set_title(f"{name} [{o['unit']}]: {o['verdict']}", fontsize=9)
+    for ax in list(axes.flat)[n:]:
+        ax.axis("off")
+    fig.tight_layout()
+    return io.save_figure(fig, path)
+
+
+def read_manifest_scan(out: Path) -> dict | None:
+    try:
+        return json.loads((Path(out) / "manifest.json").read_text(encoding="utf-8")).get("scan")
+    except (OSError, ValueError, AttributeError):
+        return None
