@@ -43,8 +43,8 @@ def _snapshot_choice(density: np.ndarray) -> list[tuple[str, int]]:
 def _sources(data):
     """(label, t, {species: density on the measuring grid}, nodes, how) for the maximum contrast
     and the end: from the particle positions (deposited CIC on a grid ``refinement`` times finer
-    than the simulation grid) when the run kept them, else the field-cadence density snapshot
-    of maximum contrast."""
+    than the simulation grid) when the run kept them, the continuum density at the contrast
+    maximum for a Vlasov run, else the field-cadence density snapshot of maximum contrast."""
     out = []
     snaps = {"peak": data.peak, "end": data.end}
     if data.peak is not None:
@@ -63,6 +63,14 @@ def _sources(data):
             out.append((label, float(snap.t), dens, nodes,
                         f"particle positions deposited (CIC) on {nodes} nodes "
                         f"({r} per simulation cell)"))
+        return out
+    if getattr(data, "peak_density", None) is not None:   # a continuum run: its own density
+        for label, prof in (("peak", data.peak_density), ("end", data.end_density)):
+            if prof is None:
+                continue
+            dens = {name: np.asarray(prof.density[s], float) for s, name in enumerate(data.names)}
+            out.append((label, float(prof.t), dens, data.cells,
+                        "continuum density at the contrast maximum (grid nodes)"))
         return out
     sn = data.snapshots
     for label, i in _snapshot_choice(sn.density):
