@@ -62,11 +62,12 @@ multiplied by exp(2 (target - available)).
 from __future__ import annotations
 
 import math
+import warnings
 from dataclasses import dataclass
 
 import numpy as np
 from scipy.ndimage import median_filter
-from scipy.optimize import curve_fit
+from scipy.optimize import OptimizeWarning, curve_fit
 from scipy.special import exp1
 
 
@@ -206,7 +207,7 @@ def _log_power_var(ln_signal_power, ln_noise_power):
     """Var[ln |S + n|^2] interpolated between its limits pi^2/6 (S = 0: the log of an exponential
     variable) and 2N/|S|^2 (|S|^2 >> N: first order in n):
     (pi^2/6 N^2 + 2 N |S|^2) / (N + |S|^2)^2, with M = |S|^2 / N."""
-    m = np.exp(np.clip(ln_signal_power - ln_noise_power, -700.0, 700.0))
+    m = np.exp(np.clip(ln_signal_power - ln_noise_power, -300.0, 300.0))
     return (math.pi ** 2 / 6.0 + 2.0 * m) / (1.0 + m) ** 2
 
 
@@ -219,7 +220,9 @@ def _fit_window(t, y, t1, p0, passes=3):
     popt = pcov = None
     f = lambda tt, lnN, b, g: _model(tt, lnN, b, g, t1)  # noqa: E731
     for _ in range(passes):
-        popt, pcov = curve_fit(f, t, y, p0=p0, sigma=sigma, maxfev=4000)
+        with warnings.catch_warnings():       # an undetermined covariance is checked by the caller
+            warnings.simplefilter("ignore", OptimizeWarning)
+            popt, pcov = curve_fit(f, t, y, p0=p0, sigma=sigma, maxfev=4000)
         lnN, b, g = popt
         sigma = np.sqrt(_log_power_var(b + 2.0 * g * (t - t1), lnN) + SCATTER_FLOOR ** 2)
         p0 = popt
