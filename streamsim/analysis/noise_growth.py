@@ -52,8 +52,9 @@ derivatives by central differences (numpy.gradient, second order).
 
 Noise level and advice (:func:`levels`, :func:`particles_per_cell_needed`)
 -------------------------------------------------------------------------
-The noise level is estimated from the running median of P before its peak (for exponentially
-distributed noise power the median is N ln 2), the saturation level from the peak of the running
+The noise level is the median of P over the samples before the running median of ln P first
+rises one amplitude e-fold above its early level (for exponentially distributed noise power the
+median is N ln 2), the saturation level from the peak of the running
 median. A random start's noise amplitude scales as 1/sqrt(particles per cell) (shot noise, e.g.
 Birdsall & Langdon 1991, sec. 12-2; Hockney & Eastwood 1988, ch. 8), and the saturation level does
 not depend on it, so reaching ``target`` e-folds from ``available`` ones needs the particles per cell
@@ -142,7 +143,12 @@ def levels(t, power, t_max: float | None = None) -> Levels:
     ys = _running_median(y)
     ipk = int(np.argmax(ys))
     imin = int(np.argmin(ys[:ipk + 1]))
-    noise = math.sqrt(math.exp(ys[imin]) / math.log(2.0))
+    # the floor: the samples before the running median first rises two units (one amplitude
+    # e-fold) above the median of the pre-minimum part
+    base = float(np.median(ys[:imin + 1]))
+    up = np.flatnonzero(ys[imin:] >= base + 2.0)
+    i_rise = imin + (int(up[0]) if up.size else ys.size - imin)
+    noise = math.sqrt(float(np.median(np.exp(y[:max(i_rise, 1)]))) / math.log(2.0))
     sat = math.sqrt(math.exp(ys[ipk]))
     return Levels(noise, sat, float(tt[ipk]), max(0.0, math.log(sat / noise)))
 
