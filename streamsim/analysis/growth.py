@@ -251,6 +251,8 @@ def fit_modes_noise(t, mode_amplitude, length, theory_growth: dict[int, float] |
     of |E_g|^2 (``eigenmode+noise_floor``); then on E_k the noise-floor fit of |E_k|^2
     (``noise_floor``) or the straight window of ln|E_k| (``straight_window``, 3 clean e-folds).
     See :mod:`streamsim.analysis.noise_growth`.
+    A straight window's ``measured_err`` here adds its ``systematic`` (half the difference of the
+    half-window slopes) in quadrature to the statistical error (kept as ``statistical_err``).
     Each row carries ``method``; a row without a rate carries ``reason`` (in numbers) and
     ``particles_per_cell_needed`` (shot-noise law) for :data:`noise_growth.TARGET_EFOLDS`.
     """
@@ -299,6 +301,10 @@ def fit_modes_noise(t, mode_amplitude, length, theory_growth: dict[int, float] |
                 break
         if fit is not None:
             row.update(fit.as_dict())
+            if isinstance(fit, LinearFit):
+                # noise-seeded: the window choice is part of the error (as in the noise fit)
+                row["statistical_err"] = fit.rate_err
+                row["measured_err"] = math.hypot(fit.rate_err, fit.systematic)
             row["status"] = "fit"
             row["method"] = method
             if g_th is not None and g_th > 0:
