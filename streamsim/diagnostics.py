@@ -108,7 +108,9 @@ class _Arrays(Handler):
 
 
 class SeriesRecorder(_Arrays):
-    """Energies, momenta, complex E_k of modes 1..M and max/rms delta n/n at t_n, every
+    """Energies, momenta, complex E_k of modes 1..M, the complex density modes n_s,m of every
+    species (``density_modes`` (n, S, M), the growth analysis's eigenmode projection) and max/rms
+    delta n/n at t_n, every
     ``output.diagnostics_interval``; also the running energy error and momentum drift.
 
     Kinetic energy and momentum at t_n are the averages of the sums over u^{n-1/2} and
@@ -122,7 +124,8 @@ class SeriesRecorder(_Arrays):
         n = record_steps(sim.steps, every)
         self.arrays = {"t": np.zeros(n), "kinetic": np.zeros((n, S)), "field_energy": np.zeros(n),
                        "momentum": np.zeros((n, S)), "mode_amplitude": np.zeros((n, M), complex),
-                       "contrast_max": np.zeros((n, S + 1)), "contrast_rms": np.zeros((n, S + 1))}
+                       "contrast_max": np.zeros((n, S + 1)), "contrast_rms": np.zeros((n, S + 1)),
+                       "density_modes": np.zeros((n, S, M), complex)}
         self.w_m = np.array(sim.weights) * sim.masses
         self.modes = M
         self.dx = sim.deck.box.dx
@@ -148,7 +151,9 @@ class SeriesRecorder(_Arrays):
         we = fields.field_energy(efield, self.dx)
         self._put({"t": t, "kinetic": kinetic, "field_energy": we, "momentum": momentum,
                    "mode_amplitude": fields.mode_amplitudes(efield, self.modes),
-                   "contrast_max": cmax, "contrast_rms": crms})
+                   "contrast_max": cmax, "contrast_rms": crms,
+                   "density_modes": np.array([fields.mode_amplitudes(d, self.modes)
+                                              for d in density])})
         total = kinetic.sum() + we
         if self.energy0 is None:
             self.energy0 = float(total)

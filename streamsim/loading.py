@@ -15,7 +15,9 @@ Plasmas 22, 042116).
 Sampling is inverse-transform (Devroye 1986, ch. 2) of the tabulated lab-frame CDF. The quiet
 start (Birdsall & Langdon 1991, ch. 16) puts particles at evenly spaced positions and gives them
 momenta at evenly spaced quantiles taken in bit-reversed order, so position and momentum are
-not correlated; the random start draws both from the seeded generator.
+not correlated: by default one set spread along the box, optionally the same set in every cell
+(a phase-space lattice, :func:`lattice_quantiles`; :data:`QUIET_START`); the random
+start draws both from the seeded generator.
 """
 from __future__ import annotations
 
@@ -92,11 +94,34 @@ def bit_reversed_quantiles(n: int) -> np.ndarray:
     return (rank + 0.5) / n
 
 
+def lattice_quantiles(n: int, per_cell: int) -> np.ndarray:
+    """The same per_cell evenly spaced quantiles (i + 1/2)/per_cell in every cell: particle j of
+    the evenly spaced positions (cell j // per_cell) takes the bit-reversed quantile number
+    j % per_cell, so each velocity level is a uniform row of particles one cell apart (a lattice
+    in phase space; Birdsall & Langdon 1991, sec. 16-3 and 16-4) and within a cell position and
+    velocity are not correlated."""
+    return np.tile(bit_reversed_quantiles(per_cell), n // per_cell)
+
+
+#: the warm quiet start: "bit_reversed" (one set of n bit-reversed quantiles spread along the
+#: whole box, :func:`bit_reversed_quantiles`) or "lattice" (:func:`lattice_quantiles`). The
+#: lattice keeps the unstable band far quieter, but its per_cell discrete velocity beams
+#: recur (t = 2 pi / (k dv)) and spoil Landau damping (measured in README, "Growth"), so the
+#: bit-reversed start stays the default.
+QUIET_START = "bit_reversed"
+
+
 def momenta(species, n: int, quiet: bool, rng: np.random.Generator) -> np.ndarray:
-    """Lab-frame momenta u for n particles of a species."""
+    """Lab-frame momenta u for n particles of a species (quiet: see :data:`QUIET_START`)."""
     if species.is_cold:
         return np.full(n, species.drift_u)
-    q = bit_reversed_quantiles(n) if quiet else rng.random(n)
+    ppc = int(getattr(species, "particles_per_cell", 0) or 0)
+    if quiet and QUIET_START == "lattice" and ppc > 0 and n % ppc == 0:
+        q = lattice_quantiles(n, ppc)
+    elif quiet:
+        q = bit_reversed_quantiles(n)
+    else:
+        q = rng.random(n)
     if species.distribution == "waterbag":
         return waterbag_inverse_cdf(q, species.drift_u, species.spread_u)
     return juttner_inverse_cdf(q, species.drift_u, species.theta)

@@ -218,3 +218,162 @@ def fit_field_energy(t, field_energy, theory_growth: float | None = None, **kw) 
         if out["theory"]:
             out["ratio"] = fit.rate / out["theory"]
     return out
+
+
+# -- noise-seeded runs --------------------------------------------------------------------------
+#: method names reported as growth.method / modes[].method
+STRAIGHT = "straight_window"
+EIGENMODE = "eigenmode"     # prefix: "eigenmode+straight_window", "eigenmode+noise_floor"
+NOISE_FLOOR = "noise_floor"
+
+
+def is_seeded_quiet_start(deck) -> bool:
+    """True when every species has a quiet start and the deck seeds modes (perturbation amplitude
+    > 0): the growing mode then stands far above the noise from t = 0 and the straight-window fit
+    applies. Any random loading, or a quiet start without a seed, is noise-seeded."""
+    pert = getattr(deck, "perturbation", None)
+    amp = getattr(pert, "amplitude", 0.0) or 0.0
+    modes = getattr(pert, "modes", ()) or ()
+    return (all(getattr(s, "loading", "quiet") == "quiet" for s in deck.species)
+            and amp > 0 and len(modes) > 0)
+
+
+def fit_modes_noise(t, mode_amplitude, length, theory_growth: dict[int, float] | None = None,
+                    g_max: float | None = None, *, density_modes=None, charges=None,
+                    bases: dict | None = None, driven_factor: float = DRIVEN_FACTOR,
+                    particles_per_cell: int | None = None) -> list[dict]:
+    """One row per box mode, as :func:`fit_modes`, for a noise-seeded run.
+
+    Per mode, in this order, the first that gives a rate: on the growing eigenmode's amplitude
+    E_g (when the theory grows at that mode and the species' density modes were recorded:
+    ``bases[m]`` a :class:`streamsim.theory.ModeBasis`) the straight window of ln|E_g|
+    (``eigenmode+straight_window``: the projection often leaves no floor) or the noise-floor fit
+    of |E_g|^2 (``eigenmode+noise_floor``); then on E_k the noise-floor fit of |E_k|^2
+    (``noise_floor``) or the straight window of ln|E_k| (``straight_window``, 3 clean e-folds).
+    See :mod:`streamsim.analysis.noise_growth`.
+    A straight window's ``measured_err`` here adds its ``systematic`` (half the difference of the
+    half-window slopes) in quadrature to the statistical error (kept as ``statistical_err``).
+    Each row carries ``method``; a row without a rate carries ``reason`` (in numbers) and
+    ``particles_per_cell_needed`` (shot-noise law) for :data:`noise_growth.TARGET_EFOLDS`.
+    """
+    from . import noise_growth as ng
+    amp = np.asarray(mode_amplitude)
+    th = dict(theory_growth or {})
+    bases = bases or {}
+    rows = []
+    for m in range(1, amp.shape[1] + 1):
+        k = 2.0 * math.pi * m / length
+        g_th = finite_or_none(th.get(m))
+        row = {"mode": m, "k": k, "measured": None, "measured_err": None, "systematic": None,
+               "theory": g_th, "ratio": None, "window": None, "efolds": None,
+               "status": NO_PHASE, "method": None, "reason": None,
+               "particles_per_cell_needed": None, "noise_level": None}
+        signals = []
+        basis = bases.get(m)
+        if basis is not None and density_modes is not None:
+            eg = ng.eigenmode_signal(t, density_modes[:, :, m - 1], charges, basis)
+            signals.append((EIGENMODE, np.abs(eg) ** 2))
+        signals.append(("", np.abs(amp[:, m - 1]) ** 2))
+        fit = method = None
+        too_fast = lambda f: (g_max is not None and g_max > 0  # noqa: E731
+                              and f.rate > driven_factor * g_max)
+        for name, power in signals:
+            # the projected signal may have no floor left: a straight window first there
+            order = ((STRAIGHT, NOISE_FLOOR) if name == EIGENMODE else (NOISE_FLOOR, STRAIGHT))
+            for how in order:
+                t_max = None
+                for _ in range(4):
+                    if how == STRAIGHT:
+                        fit = find_linear_phase(t, np.sqrt(power), t_max=t_max)
+                        start = None if fit is None else fit.t0
+                    else:
+                        fit = ng.fit_noise_floor(t, power, t_max=t_max)
+                        # where the (driven) exponential left the noise
+                        start = None if fit is None else fit.t1 - fit.efolds / fit.rate
+                    if fit is None or not too_fast(fit):
+                        break
+                    row.setdefault("driven", {"rate": fit.rate, "window": [fit.t0, fit.t1]})
+                    t_max, fit = start, None
+                if fit is not None:
+                    method = f"{name}+{how}" if name else how
+                    break
+            if fit is not None:
+                break
+        if fit is not None:
+            row.update(fit.as_dict())
+            if isinstance(fit, LinearFit):
+                # noise-seeded: the window choice is part of the error (as in the noise fit)
+                row["statistical_err"] = fit.rate_err
+                row["measured_err"] = math.hypot(fit.rate_err, fit.systematic)
+            row["status"] = "fit"
+            row["method"] = method
+            if g_th is not None and g_th > 0:
+                row["ratio"] = fit.rate / g_th
+        else:
+            lv = ng.levels(t, signals[0][1])
+            row["reason"] = ng.reason_text(lv)
+            if "driven" in row:
+                row["reason"] += "; later growth is nonlinearly driven"
+                row["status"] = NO_PHASE + " (later growth is nonlinearly driven)"
+            row["noise_level"] = lv.noise
+            row["saturation_level"] = lv.saturation
+            row["efolds_available"] = lv.efolds
+            if particles_per_cell:
+                row["particles_per_cell_needed"] = ng.particles_per_cell_needed(
+                    particles_per_cell, lv.efolds)
+        rows.append(row)
+    return rows
+
+
+def fit_band_energy(t, mode_amplitude, length, band_modes, theory_growth: float | None = None,
+                    ) -> dict:
+    """Noise-floor fit of the field energy of the unstable band, W_band = L Sum_{m in band}
+    |E_m|^2 (the energy of the cosine waves 2|E_m| cos(k_m x + phase) per box of length L), so
+    that grid-scale noise outside the band does not flatten the slope; grows at 2 gamma."""
+    from . import noise_growth as ng
+    amp = np.abs(np.asarray(mode_amplitude))
+    cols = [m - 1 for m in band_modes if 0 < m <= amp.shape[1]]
+    out = {"measured": None, "measured_err": None, "window": None, "amplitude_rate": None,
+           "amplitude_rate_err": None, "theory": None, "ratio": None, "status": NO_PHASE,
+           "method": NOISE_FLOOR + " (unstable band)", "band_modes": [c + 1 for c in cols]}
+    if theory_growth is not None and theory_growth > 0:
+        out["theory"] = 2.0 * theory_growth
+    if not cols:
+        return out
+    w = length * np.sum(amp[:, cols] ** 2, axis=1)
+    fit = ng.fit_noise_floor(t, w)
+    if fit is None:                  # no floor left in the band: the straight window of ln W
+        straight = fit_field_energy(t, w, theory_growth)
+        straight["method"] = STRAIGHT + " (unstable band)"
+        straight["band_modes"] = out["band_modes"]
+        return straight
+    if fit is not None:
+        out.update({"measured": 2 * fit.rate, "measured_err": 2 * fit.rate_err,
+                    "window": [fit.t0, fit.t1], "amplitude_rate": fit.rate,
+                    "amplitude_rate_err": fit.rate_err, "efolds": 2 * fit.efolds,
+                    "status": "fit", "noise_level": fit.noise ** 2})
+        if out["theory"]:
+            out["ratio"] = out["measured"] / out["theory"]
+    return out
+
+
+#: the field-energy rate is flagged when it is further than this many of its standard errors
+#: from 2 gamma of the theory (two-sided 95 %)
+ENERGY_FLAG_SIGMA = 2.0
+
+
+def flag_field_energy(fe: dict) -> dict:
+    """Adds ``consistent_with_theory`` (bool, None without a fit or theory) and ``flag`` (one line
+    or None): a field-energy rate more than ENERGY_FLAG_SIGMA standard errors from 2 gamma."""
+    fe["consistent_with_theory"] = None
+    fe["flag"] = None
+    m, e, th = (finite_or_none(fe.get(k)) for k in ("measured", "measured_err", "theory"))
+    if m is None or th is None or e is None:
+        return fe
+    dev = (m - th) / e if e > 0 else math.inf
+    fe["deviation_sigma"] = dev
+    fe["consistent_with_theory"] = bool(abs(dev) <= ENERGY_FLAG_SIGMA)
+    if not fe["consistent_with_theory"]:
+        fe["flag"] = (f"field-energy rate {m:.4g} +- {e:.2g} disagrees with 2*gamma = {th:.4g} "
+                      f"by {dev:+.1f} sigma")
+    return fe

@@ -1,4 +1,5 @@
-"""`streamsim run [DECK] [--out DIR] [--set k=v ...] [--quiet] [--resume [RUN_DIR]]`."""
+"""`streamsim run [DECK] [--out DIR] [--set k=v ...] [--quiet] [--resume [RUN_DIR]]
+[--replicas R]`."""
 from __future__ import annotations
 
 import sys
@@ -27,6 +28,11 @@ def add_arguments(p) -> None:
                    help="run even when a numerical-health rule refuses the deck, or over a "
                         "finished run of a different deck in the same folder")
     p.add_argument("--no-figures", action="store_true", help="analyse, but draw no figures")
+    p.add_argument("--replicas", type=int, default=None, metavar="R",
+                   help="run R seeds (random_seed, +1, ...) on the scan machinery and report the "
+                        "mean +- standard error of the fastest growth rate and of t_unity_ns "
+                        "(every replica in replicas.csv; folder: --out, else the deck's folder "
+                        "+ '-replicas')")
 
 
 def main(args) -> int:
@@ -48,6 +54,8 @@ def main(args) -> int:
     except DeckError as ex:
         error("deck", str(ex))
         return 2
+    if args.replicas is not None:
+        return _replicas(args, deck, deck_src)
     if args.resume and folder is None:
         folder = deck.output.folder
     from streamsim.pipeline import Interrupted, NumericalError, run
@@ -71,6 +79,52 @@ def main(args) -> int:
     if not args.quiet:
         _print_summary(result)
     return 0
+
+
+def _replicas(args, deck, deck_src) -> int:
+    from streamsim import io
+    from streamsim.scan import ScanError, ScanSetupError
+    from streamsim.scan.replicas import run_replicas
+    if args.replicas < 2:
+        error("argument", f"--replicas must be >= 2 for an error bar, got {args.replicas}")
+        return 2
+    if isinstance(args.resume, str):
+        error("argument", "--replicas continues its folder with --resume (no RUN_DIR)")
+        return 2
+    out = args.out or f"{deck.output.folder}-replicas"
+    try:
+        res = run_replicas(deck_src, args.overrides, args.replicas, out, threads=args.threads,
+                           quiet=args.quiet, resume=bool(args.resume))
+    except ScanError as ex:
+        error("deck", str(ex))
+        return 2
+    except ScanSetupError as ex:
+        error("argument", str(ex))
+        return 2
+    except io.OutputError as ex:
+        error("output", str(ex))
+        return 4
+    for w in res.warnings:
+        warn(w)
+    if not args.quiet:
+        print(replica_lines(res))
+    return 0
+
+
+def replica_lines(res) -> str:
+    """The terminal report of a replica ensemble."""
+    def pm(st, f):
+        if st.mean is None:
+            return "none measured"
+        e = f" +- {st.standard_error:.2g}" if st.standard_error is not None else " (one value)"
+        return f"{st.mean:{f}}{e} (n = {st.n})"
+    done = sum(r["status"] == "completed" for r in res.rows)
+    th = f" (theory {res.theory_growth:.4g})" if res.theory_growth else ""
+    return "\n".join([
+        f"{done} of {len(res.rows)} replicas completed; mean +- standard error of the mean:",
+        f"  fastest growth rate: {pm(res.growth, '.4g')} w_p{th}",
+        f"  t_unity: {pm(res.t_unity_ns, '.4g')} ns",
+        f"  every replica in {res.out / 'replicas.csv'}"])
 
 
 def _print_summary(result) -> None:

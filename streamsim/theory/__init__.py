@@ -58,6 +58,7 @@ from .susceptibilities import (MODELS, THETA_COLD, eps_cold, eps_juttner, eps_ma
 from .roots import (GROWTH_TOL, _auto_kmax, auto_kmax, cold_roots, fastest_mode, growth_curve,
                     juttner_growing_root, maxwellian_roots, unstable_bands, waterbag_roots)
 from .dispersion import BoxMode, Dispersion, FastestMode, theory_for_deck
+from .eigenmodes import ModeBasis, charge_response, mode_basis, species_susceptibilities
 
 __all__ = [
     "MODELS", "GROWTH_TOL", "THETA_COLD",
@@ -68,4 +69,5 @@ __all__ = [
     "eps_maxwellian", "maxwellian_roots", "eps_juttner", "juttner_growing_root",
     "growth_curve", "fastest_mode", "unstable_bands", "auto_kmax", "theory_for_deck",
     "Dispersion", "FastestMode", "BoxMode",
+    "species_susceptibilities", "charge_response", "mode_basis", "ModeBasis",
 ]

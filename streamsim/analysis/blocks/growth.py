@@ -16,6 +16,7 @@ from .. import growth as _gr
 from ..base import BlockResult, Context, Figure, ScanColumn, Table, fmt
 
 NAME = "growth"
+from ..noise_growth import TARGET_EFOLDS as _TARGET  # noqa: E402
 
 SCAN_COLUMNS = [
     ScanColumn("growth_mode", "", "box mode of the headline growth fit (largest theoretical "
@@ -40,8 +41,14 @@ SCAN_COLUMNS = [
                ("theory", "fastest", "growth_time_ns")),
 ]
 
+#: the field-energy fit of a noise-seeded run sums the modes whose theory rate is at least this
+#: fraction of the headline mode's (the top of the unstable band, whose energy grows nearly at
+#: 2 gamma; slower band modes would hold the sum back) - common practice
+_BAND = 0.8
+
 _MODE_COLUMNS = ("mode", "k", "k_per_cm", "measured", "measured_err", "systematic", "theory",
                  "ratio")
+_TEXT_COLUMNS = ("status", "method")
 
 
 def _theory_rates(disp) -> tuple[dict[int, float], float | None, float | None]:
@@ -69,14 +76,55 @@ def _headline(modes: list[dict]) -> dict:
             "ratio": None, "window": None, "status": _gr.NO_PHASE}
 
 
+def _bases(disp, deck) -> dict:
+    """box mode -> normal-mode basis of the theory at its growing root (growing modes only)."""
+    if disp is None:
+        return {}
+    from ... import theory
+    out = {}
+    for b in disp.box_modes:
+        if b.growth and b.growth > 0 and b.omega_r is not None:
+            try:
+                basis = theory.mode_basis(b.k, complex(b.omega_r, b.growth), deck.species,
+                                          disp.model)
+            except (ValueError, ArithmeticError):
+                basis = None
+            if basis is not None:
+                out[b.mode] = basis
+    return out
+
+
 def compute(ctx: Context) -> BlockResult:
     data, n_cm3 = ctx.data, ctx.density_cm3
     s = data.series
+    deck = data.deck
     rates, g_max, g_fast = _theory_rates(ctx.theory)
-    modes = _gr.fit_modes(s.t, s.mode_amplitude, data.length, rates, g_max)
+    ppc = max((sp.particles_per_cell for sp in deck.species), default=None)
+    seeded = _gr.is_seeded_quiet_start(deck)
+    if seeded:
+        modes = _gr.fit_modes(s.t, s.mode_amplitude, data.length, rates, g_max)
+        for row in modes:
+            row["method"] = _gr.STRAIGHT if row["measured"] is not None else None
+            row["reason"] = None
+            row["particles_per_cell_needed"] = None
+    else:
+        dens = s.density_modes if "density_modes" in s else None
+        modes = _gr.fit_modes_noise(
+            s.t, s.mode_amplitude, data.length, rates, g_max, density_modes=dens,
+            charges=[sp.charge for sp in deck.species],
+            bases=_bases(ctx.theory, deck) if dens is not None else {},
+            particles_per_cell=ppc)
     for row in modes:
         row["k_per_cm"] = units.wavenumber_per_cm(row["k"], n_cm3)
     head = _headline(modes)
+    head.setdefault("method", None)
+    if head.get("mode") is not None and head.get("measured") is None and seeded:
+        from .. import noise_growth as ng
+        lv = ng.levels(s.t, np.abs(np.asarray(s.mode_amplitude)[:, head["mode"] - 1]) ** 2)
+        head["reason"] = ng.reason_text(lv, _gr.MIN_EFOLDS) + " (seeded quiet start)"
+    head.setdefault("reason", None)
+    head.setdefault("particles_per_cell_needed", None)
+    head["start"] = "seeded quiet start" if seeded else "noise-seeded"
     meas, err, th = (finite_or_none(head.get(k)) for k in ("measured", "measured_err", "theory"))
     head["growth_time_ns"] = units.growth_time_ns(meas, n_cm3) if meas and meas > 0 else None
     head["growth_time_err_ns"] = (head["growth_time_ns"] * err / meas
@@ -84,13 +132,21 @@ def compute(ctx: Context) -> BlockResult:
                                   else None)
     head["theory_growth_time_ns"] = units.growth_time_ns(th, n_cm3) if th and th > 0 else None
     head["theory_fastest"] = g_fast
-    fe = _gr.fit_field_energy(s.t, s.field_energy, head.get("theory") or None)
+    g_head = finite_or_none(head.get("theory"))
+    band = [m for m, g in rates.items() if g is not None and g_head and g >= _BAND * g_head]
+    if seeded or not band:
+        fe = _gr.fit_field_energy(s.t, s.field_energy, head.get("theory") or None)
+        fe["method"] = _gr.STRAIGHT + " (total field energy)"
+    else:
+        fe = _gr.fit_band_energy(s.t, s.mode_amplitude, data.length, band,
+                                 head.get("theory") or None)
+    _gr.flag_field_energy(fe)
     fe["mode"] = head.get("mode")
     table = Table("growth_modes", {
         **{c: _col([r.get(c) for r in modes]) for c in _MODE_COLUMNS},
         "t0": _col([(r["window"] or [None, None])[0] for r in modes]),
         "t1": _col([(r["window"] or [None, None])[1] for r in modes]),
-        "status": np.array([r["status"] for r in modes], dtype=object)},
+        **{c: np.array([r.get(c) or "" for r in modes], dtype=object) for c in _TEXT_COLUMNS}},
         units={"k": "omega_p/c", "k_per_cm": "1/cm", "measured": "omega_p",
                "measured_err": "omega_p", "systematic": "omega_p", "theory": "omega_p",
                "t0": "1/omega_p", "t1": "1/omega_p"})
@@ -115,17 +171,27 @@ def _lines(g: dict, modes: list[dict], fe: dict) -> list[str]:
         th = f" (theory {fmt(g.get('theory'))} w_p)" if g.get("theory") is not None else ""
         lines.append(f"growth, mode {g['mode']} (k = {fmt(g.get('k'))} w_p/c): "
                      f"{g.get('status') or _gr.NO_PHASE}{th}")
+        if g.get("reason"):
+            lines.append(f"  why: {g['reason']}")
+        if g.get("particles_per_cell_needed"):
+            lines.append(f"  advice: about {g['particles_per_cell_needed']} particles per cell "
+                         f"(noise amplitude ~ 1/sqrt(N)) would give "
+                         f"{fmt(_TARGET, '.0f')} e-folds from noise to saturation; or seed the "
+                         f"mode with a quiet start")
     else:
         w = g.get("window") or [None, None]
         th = (f" vs theory {fmt(g['theory'])} (ratio {fmt(g.get('ratio'), '.3f')})"
               if g.get("theory") is not None else " (no theory for this mode)")
         lines.append(f"growth, mode {g['mode']} (k = {fmt(g.get('k'))} w_p/c): measured "
                      f"{fmt(g['measured'])} +- {fmt(g.get('measured_err'), '.2g')} w_p{th}, "
-                     f"fitted over t = {fmt(w[0], '.3g')}..{fmt(w[1], '.3g')} /w_p")
+                     f"fitted over t = {fmt(w[0], '.3g')}..{fmt(w[1], '.3g')} /w_p "
+                     f"[{g.get('method')}]")
     if fe.get("measured") is not None:
         th = f" (theory 2*gamma = {fmt(fe['theory'])})" if fe.get("theory") else ""
         lines.append(f"field energy grows at {fmt(fe['measured'])} +- "
-                     f"{fmt(fe.get('measured_err'), '.2g')} w_p{th}")
+                     f"{fmt(fe.get('measured_err'), '.2g')} w_p{th} [{fe.get('method')}]")
+        if fe.get("flag"):
+            lines.append(f"  warning: {fe['flag']}")
     if modes:
         n_fit = sum(1 for r in modes if r.get("measured") is not None)
         lines.append(f"modes with a linear phase: {n_fit} of {len(modes)}")

@@ -1,0 +1,113 @@
+"""Replicas of one deck: R runs that differ only in ``random_seed`` (seed, seed + 1, ...), run on the
+scan machinery (a scan with no axes and ``replicas = R``), and the ensemble statistics of the
+fastest growth rate and of the clump-formation time.
+
+For each quantity the report gives the mean over the replicas that measured it and its standard
+error s / sqrt(n), s the sample standard deviation (ddof = 1) -- the error of a mean of n
+independent draws (e.g. Taylor, *An Introduction to Error Analysis* (1997), sec. 5.7). Noise-seeded
+replicas are independent because their seeds are; the spread then includes what a single fit's
+error bar cannot show (the noise realisation seeds the growing mode differently each time).
+
+Files (in the replicas folder, beside the scan's own manifest.json, scan.csv, runs/):
+``replicas.csv`` one row per replica; ``replicas.json`` the statistics.
+"""
+from __future__ import annotations
+
+import csv
+import json
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from .runner import run_scan
+from .spec import load_scan
+from .tables import run_folder
+
+__all__ = ["ReplicaStats", "ReplicaResult", "run_replicas", "mean_and_standard_error",
+           "REPLICA_COLUMNS"]
+
+#: replicas.csv columns, in order
+REPLICA_COLUMNS = ("replica", "random_seed", "status", "growth_mode", "growth_measured",
+                   "growth_measured_err", "growth_method", "t_unity_ns", "folder")
+
+
+@dataclass
+class ReplicaStats:
+    mean: float | None
+    standard_error: float | None
+    n: int
+
+    def as_dict(self) -> dict:
+        return {"mean": self.mean, "standard_error": self.standard_error, "n": self.n}
+
+
+@dataclass
+class ReplicaResult:
+    out: Path
+    rows: list[dict]
+    growth: ReplicaStats
+    t_unity_ns: ReplicaStats
+    theory_growth: float | None = None
+    warnings: list[str] = field(default_factory=list)
+
+
+def mean_and_standard_error(values) -> ReplicaStats:
+    """Mean and s/sqrt(n) (s with ddof = 1) of the finite values; no error for n < 2."""
+    v = [float(x) for x in values if x is not None and math.isfinite(float(x))]
+    n = len(v)
+    if n == 0:
+        return ReplicaStats(None, None, 0)
+    mean = sum(v) / n
+    if n < 2:
+        return ReplicaStats(mean, None, 1)
+    s = math.sqrt(sum((x - mean) ** 2 for x in v) / (n - 1))
+    return ReplicaStats(mean, s / math.sqrt(n), n)
+
+
+def _read(path: Path) -> dict:
+    try:
+        return json.loads(path.read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return {}
+
+
+def run_replicas(deck_src: str | None, overrides: list[str], replicas: int, out: str | Path, *,
+                 workers: int | None = None, threads: int | None = None, quiet: bool = True,
+                 resume: bool = False) -> ReplicaResult:
+    """Run ``replicas`` seeds of a deck (``deck_src`` None: the built-in default) into ``out``
+    and write replicas.csv / replicas.json. Raises ScanError / ScanSetupError like a scan."""
+    raw = {"replicas": int(replicas), "set": list(overrides or [])}
+    if deck_src is not None:
+        raw["base"] = str(Path(deck_src).resolve())
+    scan = load_scan(raw)
+    res = run_scan(scan, out, workers=workers, threads=threads, progress=None if not quiet
+                   else False, quiet=quiet, figures=False, resume=resume)
+    out = Path(out)
+    rows, theory = [], None
+    for p, r in zip(scan.points, res.rows):
+        s = _read(run_folder(out, p) / "summary.json")
+        g = s.get("growth") or {}
+        theory = theory if theory is not None else g.get("theory")
+        rows.append({"replica": p.replica, "random_seed": p.seed, "status": r.get("status"),
+                     "growth_mode": g.get("mode"), "growth_measured": r.get("growth_measured"),
+                     "growth_measured_err": r.get("growth_measured_err"),
+                     "growth_method": g.get("method"), "t_unity_ns": r.get("t_unity_ns"),
+                     "folder": r.get("folder")})
+    ok = [r for r in rows if r["status"] == "completed"]
+    result = ReplicaResult(out=out, rows=rows,
+                           growth=mean_and_standard_error(r["growth_measured"] for r in ok),
+                           t_unity_ns=mean_and_standard_error(r["t_unity_ns"] for r in ok),
+                           theory_growth=theory, warnings=list(res.warnings))
+    from .. import io
+    with io.atomic_path(out / "replicas.csv") as tmp, open(tmp, "w", newline="",
+                                                          encoding="utf-8") as f:
+        w = csv.writer(f)
+        w.writerow(REPLICA_COLUMNS)
+        for r in rows:
+            w.writerow(["" if r[c] is None else r[c] for c in REPLICA_COLUMNS])
+    io.write_json(out / "replicas.json", {
+        "replicas": int(replicas), "completed": len(ok),
+        "growth_measured": result.growth.as_dict(), "t_unity_ns": result.t_unity_ns.as_dict(),
+        "growth_theory": theory,
+        "error": "standard error of the mean, s / sqrt(n), s with ddof = 1"})
+    return result
