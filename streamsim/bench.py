@@ -3,14 +3,21 @@
 Everything is measured in one process and interleaved (engine batch, copy, engine batch, ...)
 so that ratios hold on a noisy shared machine; each figure is the best of its repeats.
 
-- engine: :class:`streamsim.engine.Simulation` built from the default deck (256 cells, two
-  species) with ``particles_per_cell`` chosen to reach N particles, stepped by ``advance()``
-  exactly as a run steps it (push, deposit, field solve, diagnostics at the deck's default
-  cadence), after warm-up steps. Reported in particle-steps/s.
-- roofline: copy bandwidth (parallel, same threads) on two arrays of the particle arrays'
-  size, converted at 32 bytes per particle-step (x and u as float64, read and written).
-- peer: :mod:`streamsim.numpy_peer`, the same step in plain vectorised numpy, on copies of the
-  same particles.
+- engine: :class:`streamsim.engine.Simulation` built from the default deck (two species) on
+  the production grid (CELLS = 4096 cells) with ``particles_per_cell`` chosen to reach N
+  particles, stepped by ``advance()`` exactly as a run steps it (push, deposit, field solve,
+  diagnostics at the deck's default cadence), after warm-up steps. Reported in
+  particle-steps/s, with the kernel alone, the rest of ``advance`` (field solve, sums, checks)
+  and the handlers (diagnostics, peak snapshots) as separate lines.
+- roofline: copy bandwidth (parallel, same threads, slice copies that compile to a memcpy-class
+  loop) on two arrays of the particle arrays' size, converted at 32 bytes per particle-step
+  (x and u as float64, read and written).
+- peer: :mod:`streamsim.numpy_peer`, the same step in plain vectorised numpy (np.bincount
+  deposit, rfft Poisson), on copies of the same particles.
+- whole run: two fresh ``streamsim run`` processes of the default physics at WHOLE_RUN_PARTICLES
+  (50 and 800 steps, analysis and figures included), differenced so that start-up, the fixed
+  checkpoints and the fixed part of the analysis cancel; the time outside the time loop
+  (start-up, io, analysis, figures) of each process is reported beside it.
 - memory: peak resident bytes per particle of a run, measured in a fresh subprocess.
 - cached start: wall time of a fresh ``python -c "import streamsim; streamsim.run(...)"``
   of a small deck with the numba cache warm.
@@ -24,14 +31,21 @@ import platform
 import subprocess
 import sys
 import time
+from pathlib import Path
 
 import numpy as np
 
 #: bytes moved per particle-step at the roofline: x and u, float64, read and written
 BYTES_PER_PARTICLE_STEP = 32
-#: cells of the benchmark deck (the default deck's grid)
-CELLS = 256
-DEFAULT_PARTICLES = (100_000, 1_000_000, 10_000_000)
+#: cells of the benchmark deck (the production grid)
+CELLS = 4096
+#: the scaling table; the headline is its largest N below 1e7 that is >= HEADLINE_MIN
+DEFAULT_PARTICLES = (100_000, 1_000_000, 2_097_152, 10_000_000)
+#: the headline's particle count must be at least this (production size, arrays beyond cache)
+HEADLINE_MIN = 2_000_000
+#: the whole-run processes: 4096 cells x 256 particles per cell per species, two species
+WHOLE_RUN_PARTICLES = 2_097_152
+WHOLE_RUN_STEPS = (50, 800)
 
 _SMALL_DECK = {"title": "bench start-up", "box": {"cells": 64, "length": 6.283185307179586},
                "time": {"dt": 0.05, "end": 1.0},
@@ -39,15 +53,15 @@ _SMALL_DECK = {"title": "bench start-up", "box": {"cells": 64, "length": 6.28318
                             "particles_per_cell": 16}]}
 
 
-def bench_deck(particles: int, threads: int = 0):
-    """The default deck (two counter-streaming species) with ppc set so that the total is
-    about ``particles`` (a multiple of 2 * CELLS)."""
+def bench_deck(particles: int, threads: int = 0, cells: int = CELLS):
+    """The default deck (two counter-streaming species) on ``cells`` cells with ppc set so that
+    the total is about ``particles`` (a multiple of 2 * cells)."""
     import tomllib
 
     from .deck import DEFAULT_DECK, load_deck
     raw = tomllib.loads(DEFAULT_DECK)
-    ppc = max(1, int(round(particles / (len(raw["species"]) * CELLS))))
-    raw["box"]["cells"] = CELLS
+    ppc = max(1, int(round(particles / (len(raw["species"]) * cells))))
+    raw["box"]["cells"] = cells
     for s in raw["species"]:
         s["particles_per_cell"] = ppc
     raw.setdefault("output", {})["threads"] = threads
@@ -57,15 +71,18 @@ def bench_deck(particles: int, threads: int = 0):
 def _copy_kernel():
     import numba as nb
 
+    # slice copies: numba lowers them to a vectorised memcpy-class loop (an element loop with
+    # a data-dependent bound was measured 3-5x slower, which understated the roofline)
     @nb.njit(parallel=True, boundscheck=False)
     def copy2(xs, us, xd, ud, nchunks, reps):
         n = xs.size
         chunk = (n + nchunks - 1) // nchunks
         for c in nb.prange(nchunks):
+            lo = min(n, c * chunk)
+            hi = min(n, lo + chunk)
             for _ in range(reps):
-                for j in range(c * chunk, min(n, c * chunk + chunk)):
-                    xd[j] = xs[j]
-                    ud[j] = us[j]
+                xd[lo:hi] = xs[lo:hi]
+                ud[lo:hi] = us[lo:hi]
     return copy2
 
 
@@ -132,9 +149,13 @@ def load_numpy_peer():
 
 def measure(particles: int, threads: int, *, steps: int = 10, repeats: int = 3,
             warmup: int = 3, peer: bool = True, peer_steps: int = 2) -> dict:
-    """Engine, kernel-only, roofline and peer rates for one N and thread count."""
-    from . import kernels
-    from .diagnostics import standard_handlers
+    """Engine, kernel-only, roofline and peer rates for one N and thread count, and the parts
+    of a step around the kernel (rest of ``advance``, handlers, one peak-snapshot copy, one
+    checkpoint write) as separate lines."""
+    import tempfile
+
+    from . import io, kernels
+    from .diagnostics import PeakSnapshot, standard_handlers
     from .engine import Simulation
     deck = bench_deck(particles, threads)
     t0 = time.perf_counter()
@@ -142,14 +163,21 @@ def measure(particles: int, threads: int, *, steps: int = 10, repeats: int = 3,
     handlers = standard_handlers(sim)   # the recording a run does, at the deck's cadences
     setup = time.perf_counter() - t0
     n = int(sum(x.size for x in sim.x))
+    clock = {"advance": 0.0, "handlers": 0.0}
 
     def step():
         k = sim.step % sim.steps    # the handlers' arrays hold one run: wrap the step count
+        t = time.perf_counter()
         for h in handlers:
             h.before(sim, k)
+        t1 = time.perf_counter()
         sim.advance()
+        t2 = time.perf_counter()
         for h in handlers:
             h.after(sim, k)
+        t3 = time.perf_counter()
+        clock["advance"] += t2 - t1
+        clock["handlers"] += (t1 - t) + (t3 - t2)
         if sim.step >= sim.steps:
             sim.step = 0
             for h in handlers:
@@ -164,12 +192,16 @@ def measure(particles: int, threads: int, *, steps: int = 10, repeats: int = 3,
     ud = np.empty_like(us)
     copy_seconds(xs, us, xd, ud, sim.threads)
     b = sim.deck.box
-    best_step = best_copy = best_kernel = np.inf
+    best_step = best_copy = best_kernel = best_adv = best_hand = np.inf
     for _ in range(repeats):
+        clock["advance"] = clock["handlers"] = 0.0
         t = time.perf_counter()
         for _ in range(steps):
             step()
-        best_step = min(best_step, (time.perf_counter() - t) / steps)
+        wall = (time.perf_counter() - t) / steps
+        if wall < best_step:
+            best_step = wall
+            best_adv, best_hand = clock["advance"] / steps, clock["handlers"] / steps
         for _ in range(3):
             best_copy = min(best_copy, copy_seconds(xs, us, xd, ud, sim.threads))
         # the kernel alone (no field solve, no diagnostics), on scratch copies of the particles
@@ -179,6 +211,22 @@ def measure(particles: int, threads: int, *, steps: int = 10, repeats: int = 3,
                                  sim.qm[s] * sim.dt, sim.dt, b.length, sim.shape, sim.nchunks,
                                  sim.partial, sim.sums[s])
         best_kernel = min(best_kernel, time.perf_counter() - t)
+    # one copy of every position, as PeakSnapshot takes at each new maximum above
+    # EXACT_ABOVE (about one diagnostics record in ten of a default run's growth phase)
+    peak = next(h for h in handlers if isinstance(h, PeakSnapshot))
+    best_peak = np.inf
+    for _ in range(3):
+        t = time.perf_counter()
+        for dst, src in zip(peak.x, sim.x):
+            np.copyto(dst, src)
+        best_peak = min(best_peak, time.perf_counter() - t)
+    # one checkpoint (a default run writes ten, at end/10, and one at the end)
+    with tempfile.TemporaryDirectory() as tmp:
+        st = sim.state()
+        t = time.perf_counter()
+        io.write_checkpoint(Path(tmp) / "checkpoint.h5", st,
+                            {h.name: h.state() for h in handlers}, {"bench": True})
+        ckpt = time.perf_counter() - t
     out = {
         "particles": n, "threads": sim.threads, "cells": b.cells, "shape": b.shape,
         "diagnostics_interval_steps": handlers[-1].every,
@@ -187,7 +235,12 @@ def measure(particles: int, threads: int, *, steps: int = 10, repeats: int = 3,
         "particle_steps_per_s": n / best_step,
         "ns_per_particle_step": best_step / n * 1e9,
         "kernel_particle_steps_per_s": n / best_kernel,
+        "kernel_step_s": best_kernel,
         "overhead_per_step_s": max(0.0, best_step - best_kernel),
+        "advance_outside_kernel_per_step_s": max(0.0, best_adv - best_kernel),
+        "handlers_per_step_s": best_hand,
+        "peak_snapshot_copy_s": best_peak,
+        "checkpoint_write_s": ckpt,
         "copy_bandwidth_gb_s": BYTES_PER_PARTICLE_STEP * n / best_copy / 1e9,
         "roofline_particle_steps_per_s": n / best_copy,
     }
@@ -207,6 +260,80 @@ def measure(particles: int, threads: int, *, steps: int = 10, repeats: int = 3,
             out["speedup_vs_numpy"] = out["particle_steps_per_s"] / out["numpy_particle_steps_per_s"]
     sim = handlers = xs = us = xd = ud = None  # noqa: F841 - free the arrays before the next size
     return out
+
+
+def _run_process(steps: int, particles: int, threads: int, folder) -> dict:
+    """Wall time of one fresh ``streamsim run`` process (analysis and figures included) of the
+    default physics on CELLS cells with ``steps`` steps, and its time loop (summary ``wall_s``)."""
+    deck = bench_deck(particles, threads)
+    ppc = deck.species[0].particles_per_cell
+    sets = [f"box.cells={CELLS}", f"time.end={steps * deck.time.dt!r}",
+            f"output.threads={threads}"]
+    sets += [f"species.{sp.name}.particles_per_cell={ppc}" for sp in deck.species]
+    cmd = [sys.executable, "-m", "streamsim.cli", "run", "--quiet", "--force", "--out",
+           str(folder)]
+    for v in sets:
+        cmd += ["--set", v]
+    t = time.perf_counter()
+    r = subprocess.run(cmd, capture_output=True, text=True, timeout=1800)
+    wall = time.perf_counter() - t
+    if r.returncode != 0:
+        raise RuntimeError(r.stderr.strip().splitlines()[-1] if r.stderr.strip() else "failed")
+    with open(Path(folder) / "summary.json") as f:
+        summary = json.load(f)
+    return {"steps": int(summary["steps"]), "particles": int(summary["particles"]),
+            "process_s": wall, "loop_s": float(summary["wall_s"]),
+            "outside_loop_s": wall - float(summary["wall_s"])}
+
+
+def analysis_seconds(folder) -> dict:
+    """The end-of-run analysis and its figures on a finished run folder, timed in-process
+    (read, compute, write tables and figures)."""
+    from . import analysis, io
+    t = time.perf_counter()
+    data = io.read_run(folder)
+    t1 = time.perf_counter()
+    results = analysis.compute(data)
+    t2 = time.perf_counter()
+    analysis.write_outputs(results, data, folder, figures=True)
+    t3 = time.perf_counter()
+    return {"read_s": t1 - t, "compute_s": t2 - t1, "write_and_figures_s": t3 - t2,
+            "samples": int(data.series.t.size)}
+
+
+def whole_run(particles: int = WHOLE_RUN_PARTICLES, threads: int = 0,
+              steps=WHOLE_RUN_STEPS, repeats: int = 1) -> dict:
+    """whole_run_particle_steps_per_s from two real ``streamsim run`` processes (``steps``,
+    short and long) differenced, best of ``repeats`` pairs; a warm-up process fills the numba
+    cache first. Also the analysis of each, timed in-process on its folder."""
+    import tempfile
+    lo, hi = sorted(steps)
+    best = None
+    with tempfile.TemporaryDirectory() as tmp:
+        _run_process(2, 2 * CELLS, threads, Path(tmp) / "warm")
+        for r in range(repeats):
+            a = _run_process(lo, particles, threads, Path(tmp) / f"short{r}")
+            b = _run_process(hi, particles, threads, Path(tmp) / f"long{r}")
+            dt = b["process_s"] - a["process_s"]
+            rate = (b["steps"] - a["steps"]) * b["particles"] / dt if dt > 0 else None
+            if rate is not None and (best is None or rate > best["rate"]):
+                best = {"rate": rate, "short": a, "long": b,
+                        "analysis_short": analysis_seconds(Path(tmp) / f"short{r}"),
+                        "analysis_long": analysis_seconds(Path(tmp) / f"long{r}")}
+    if best is None:
+        return {"whole_run_particle_steps_per_s": None}
+    return {"whole_run_particle_steps_per_s": best["rate"], "particles": best["long"]["particles"],
+            "steps": [best["short"]["steps"], best["long"]["steps"]],
+            "short": best["short"], "long": best["long"],
+            "analysis_short": best["analysis_short"], "analysis_long": best["analysis_long"]}
+
+
+def load_average() -> list[float] | None:
+    """The 1, 5 and 15 minute load averages (how busy the shared machine was)."""
+    try:
+        return [round(v, 2) for v in os.getloadavg()]
+    except OSError:
+        return None
 
 
 _MEMORY_CHILD = r"""
@@ -284,41 +411,62 @@ def machine() -> dict:
 
 
 def run(particles=DEFAULT_PARTICLES, threads=None, *, steps: int = 10, repeats: int = 3,
-        memory: bool = True, start: bool = True, progress=None) -> dict:
-    """The whole benchmark. Headline figures are those of the largest N with all threads."""
+        memory: bool = True, start: bool = True, whole: bool = True, whole_repeats: int = 1,
+        progress=None) -> dict:
+    """The whole benchmark. Headline figures are those of the N nearest WHOLE_RUN_PARTICLES
+    among those >= HEADLINE_MIN (else the largest N), with all threads."""
     import numba
     if threads is None:
         threads = list(range(1, numba.config.NUMBA_NUM_THREADS + 1))
     particles = sorted(int(p) for p in particles)
     threads = sorted(int(t) for t in threads)
     scaling = []
+    load_before = load_average()
     capacity_before = core_capacity(threads[-1])
     for n in particles:
         for t in threads:
             # fewer steps at large N keeps the whole run within its budget
             k = max(3, min(steps, int(steps * 2e6 / max(n, 1))))
             row = measure(n, t, steps=k, repeats=repeats, peer=(t == threads[-1]))
+            row["load_average"] = load_average()
             scaling.append(row)
             if progress:
                 progress(row)
-    head = [r for r in scaling if r["particles"] == scaling[-1]["particles"]
-            and r["threads"] == threads[-1]][-1]
-    ns = [r["ns_per_particle_step"] for r in scaling if r["threads"] == threads[-1]]
+    top = [r for r in scaling if r["threads"] == threads[-1]]
+    big = [r for r in top if r["particles"] >= HEADLINE_MIN]
+    head = (min(big, key=lambda r: abs(math.log(r["particles"] / WHOLE_RUN_PARTICLES)))
+            if big else top[-1])
+    ns = [r["ns_per_particle_step"] for r in top]
     result = {
         "particle_steps_per_s": head["particle_steps_per_s"],
         "roofline_particle_steps_per_s": head["roofline_particle_steps_per_s"],
         "roofline_fraction": head["roofline_fraction"],
         "numpy_particle_steps_per_s": head["numpy_particle_steps_per_s"],
         "speedup_vs_numpy": head.get("speedup_vs_numpy"),
+        "whole_run_particle_steps_per_s": None,
+        "whole_run_roofline_fraction": None,
+        "whole_run_speedup_vs_numpy": None,
         "bytes_per_particle_peak": None,
         "cached_start_s": None,
         "scaling": scaling,
-        "headline": {"particles": head["particles"], "threads": head["threads"]},
+        "headline": {"particles": head["particles"], "threads": head["threads"],
+                     "cells": head["cells"]},
         "cost_spread_over_n": (max(ns) / min(ns) - 1.0) if ns else None,
         "machine": machine(),
-        "core_capacity": {"threads": threads[-1], "before": capacity_before,
-                          "after": core_capacity(threads[-1])},
+        "load_average": {"before": load_before},
+        "core_capacity": {"threads": threads[-1], "before": capacity_before},
     }
+    if whole:
+        w = whole_run(threads=threads[-1], repeats=whole_repeats)
+        result["whole_run"] = w
+        rate = w.get("whole_run_particle_steps_per_s")
+        result["whole_run_particle_steps_per_s"] = rate
+        if rate:
+            result["whole_run_roofline_fraction"] = rate / head["roofline_particle_steps_per_s"]
+            if head["numpy_particle_steps_per_s"]:
+                result["whole_run_speedup_vs_numpy"] = rate / head["numpy_particle_steps_per_s"]
+    result["core_capacity"]["after"] = core_capacity(threads[-1])
+    result["load_average"]["after"] = load_average()
     if memory:
         mem = memory_per_particle(min(4_000_000, max(particles)), threads[-1])
         result["memory"] = mem
@@ -326,6 +474,14 @@ def run(particles=DEFAULT_PARTICLES, threads=None, *, steps: int = 10, repeats: 
     if start:
         result["cached_start_s"] = cached_start()
     return result
+
+
+def head_row(result: dict) -> dict | None:
+    """The scaling row of the headline."""
+    h = result["headline"]
+    rows = [r for r in result["scaling"] if r["particles"] == h["particles"]
+            and r["threads"] == h["threads"]]
+    return rows[-1] if rows else None
 
 
 def format_table(result: dict) -> str:
@@ -349,6 +505,36 @@ def format_table(result: dict) -> str:
                  f"{result['roofline_fraction']:.2f} of the copy roofline, "
                  + (f"{result['speedup_vs_numpy']:.1f}x the numpy peer"
                     if result.get("speedup_vs_numpy") else "no numpy peer"))
+    r = head_row(result)
+    if r is not None:
+        step = r["step_s"]
+        lines.append(
+            f"one step at N = {r['particles']} ({r['cells']} cells): {step * 1e3:.2f} ms = kernel "
+            f"{r['kernel_step_s'] * 1e3:.2f} ms + rest of advance (solve, sums, checks) "
+            f"{r['advance_outside_kernel_per_step_s'] * 1e3:.2f} ms + handlers (diagnostics, "
+            f"peak snapshot) {r['handlers_per_step_s'] * 1e3:.2f} ms")
+        lines.append(f"one peak-snapshot copy of all positions: {r['peak_snapshot_copy_s'] * 1e3:.2f}"
+                     f" ms ({r['peak_snapshot_copy_s'] / step:.2f} step); one checkpoint write: "
+                     f"{r['checkpoint_write_s'] * 1e3:.0f} ms ({r['checkpoint_write_s'] / step:.1f}"
+                     f" steps; a run writes 11)")
+    w = result.get("whole_run")
+    if w and w.get("whole_run_particle_steps_per_s"):
+        lines.append(
+            f"whole run (two `streamsim run` processes, N = {w['particles']}, {w['steps'][0]} and "
+            f"{w['steps'][1]} steps, differenced): {w['whole_run_particle_steps_per_s']:.3g} "
+            f"particle-steps/s = {result['whole_run_roofline_fraction']:.2f} of the copy roofline, "
+            + (f"{result['whole_run_speedup_vs_numpy']:.1f}x the numpy peer"
+               if result.get("whole_run_speedup_vs_numpy") else "no numpy peer"))
+        for key in ("short", "long"):
+            p, a = w[key], w[f"analysis_{key}"]
+            lines.append(
+                f"  {p['steps']:>4d} steps: process {p['process_s']:.2f} s, time loop "
+                f"{p['loop_s']:.2f} s, outside the loop {p['outside_loop_s']:.2f} s; analysis of "
+                f"its {a['samples']} samples: compute {a['compute_s']:.2f} s, tables and figures "
+                f"{a['write_and_figures_s']:.2f} s")
+    la = result.get("load_average")
+    if la:
+        lines.append(f"load average (1/5/15 min) before: {la.get('before')}, after: {la.get('after')}")
     cap = result.get("core_capacity")
     if cap:
         lines.append(f"cores' worth of compute that {cap['threads']} threads got (burn test, "

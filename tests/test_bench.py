@@ -13,14 +13,14 @@ from reference_impl import reference_step
 
 CONTRACT = ("particle_steps_per_s", "roofline_particle_steps_per_s", "roofline_fraction",
             "numpy_particle_steps_per_s", "speedup_vs_numpy", "bytes_per_particle_peak",
-            "cached_start_s", "scaling")
+            "cached_start_s", "scaling", "whole_run_particle_steps_per_s")
 
 
 @pytest.mark.parametrize("shape", ["ngp", "cic", "tsc"])
 def test_numpy_peer_step_matches_reference_kernel(shape):
     Peer = bench.load_numpy_peer()
     assert Peer is not None
-    deck = bench.bench_deck(2 * 256 * 8)
+    deck = bench.bench_deck(2 * 256 * 8, cells=256)
     from streamsim import load_deck
     deck = load_deck(deck, [f'box.shape="{shape}"'])
     sim = Simulation(deck, threads=1)
@@ -63,13 +63,14 @@ def test_bench_deck_hits_the_particle_count(n):
 
 def test_cli_json_contract(capsys):
     status = cli_main(["bench", "--particles", "6e3", "--threads", "1", "--steps", "2",
-                       "--repeats", "1", "--no-memory", "--no-start", "--json"])
+                       "--repeats", "1", "--no-memory", "--no-start", "--no-whole-run",
+                       "--json"])
     assert status == 0
     out = json.loads(capsys.readouterr().out)
     for key in CONTRACT:
         assert key in out
     row = out["scaling"][0]
-    assert row["particles"] == 2 * 256 * 12
+    assert row["particles"] == 2 * bench.CELLS * 1         # 6e3 / (2 x 4096) rounds to 1
     assert row["threads"] == 1
     assert out["roofline_fraction"] == pytest.approx(
         out["particle_steps_per_s"] / out["roofline_particle_steps_per_s"])
@@ -80,3 +81,22 @@ def test_cli_json_contract(capsys):
 def test_cli_rejects_bad_thread_count(capsys):
     assert cli_main(["bench", "--threads", "0", "--no-memory", "--no-start"]) == 2
     assert "threads" in capsys.readouterr().err
+
+
+def test_whole_run_differences_two_processes(monkeypatch, tmp_path):
+    """whole_run_particle_steps_per_s = (long - short steps) N / (long - short process time):
+    start-up and the fixed costs cancel (checked on stand-in process timings)."""
+    calls = []
+
+    def fake(steps, particles, threads, folder):
+        calls.append(steps)
+        # 3 s of start-up, analysis and checkpoints, plus 1e-8 s per particle-step
+        return {"steps": steps, "particles": 1000, "process_s": 3.0 + steps * 1000 * 1e-8,
+                "loop_s": steps * 1000 * 1e-8, "outside_loop_s": 3.0}
+
+    monkeypatch.setattr(bench, "_run_process", fake)
+    monkeypatch.setattr(bench, "analysis_seconds", lambda folder: {"samples": 0})
+    w = bench.whole_run(particles=1000, threads=1, steps=(50, 800))
+    assert calls == [2, 50, 800]            # a warm-up process, then the pair
+    assert w["whole_run_particle_steps_per_s"] == pytest.approx(1e8, rel=1e-9)
+    assert w["steps"] == [50, 800]

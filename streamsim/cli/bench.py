@@ -1,4 +1,4 @@
-"""`streamsim bench [--particles N ...] [--threads T ...] [--steps S] [--json]`."""
+"""`streamsim bench [--particles N ...] [--threads T ...] [--steps S] [--no-whole-run] [--json]`."""
 from __future__ import annotations
 
 import json
@@ -16,7 +16,7 @@ def _count(text: str) -> int:
 
 def add_arguments(p) -> None:
     p.add_argument("--particles", type=_count, nargs="+", default=None, metavar="N",
-                   help="total particle counts (default: 1e5 1e6 1e7; 1e6 style accepted)")
+                   help="total particle counts (default: 1e5 1e6 2097152 1e7; 1e6 style accepted)")
     p.add_argument("--threads", type=int, nargs="+", default=None, metavar="T",
                    help="thread counts (default: 1 .. all cores)")
     p.add_argument("--steps", type=int, default=10, metavar="S",
@@ -25,6 +25,10 @@ def add_arguments(p) -> None:
                    help="timed batches per configuration, best kept (default 5)")
     p.add_argument("--no-memory", action="store_true", help="skip the peak-memory subprocess")
     p.add_argument("--no-start", action="store_true", help="skip the cached start-up timing")
+    p.add_argument("--no-whole-run", action="store_true",
+                   help="skip the two whole `streamsim run` processes (50 and 800 steps)")
+    p.add_argument("--whole-run-repeats", type=int, default=1, metavar="R",
+                   help="pairs of whole-run processes, best kept (default 1)")
     p.add_argument("--json", action="store_true", help="print the figures as one JSON object")
 
 
@@ -37,8 +41,8 @@ def main(args) -> int:
     if threads is not None and any(t < 1 or t > numba.config.NUMBA_NUM_THREADS for t in threads):
         error("arguments", f"--threads must be between 1 and {numba.config.NUMBA_NUM_THREADS}")
         return 2
-    if args.steps < 1 or args.repeats < 1:
-        error("arguments", "--steps and --repeats must be >= 1")
+    if args.steps < 1 or args.repeats < 1 or args.whole_run_repeats < 1:
+        error("arguments", "--steps, --repeats and --whole-run-repeats must be >= 1")
         return 2
 
     def progress(row):
@@ -47,7 +51,9 @@ def main(args) -> int:
                   f"{row['particle_steps_per_s']:.3g} particle-steps/s", file=sys.stderr)
 
     result = bench.run(particles, threads, steps=args.steps, repeats=args.repeats,
-                       memory=not args.no_memory, start=not args.no_start, progress=progress)
+                       memory=not args.no_memory, start=not args.no_start,
+                       whole=not args.no_whole_run, whole_repeats=args.whole_run_repeats,
+                       progress=progress)
     if args.json:
         print(json.dumps(result, indent=1))
     else:
