@@ -109,7 +109,8 @@ def test_terminal_lines_say_plainly_what_is_missing():
     results = analysis.compute(data)
     blocks = analysis.summary_entries(results)
     text = analysis.terminal_lines(results)
-    assert "no linear phase found" in text
+    # prescribed: every mode decays, so the theory has no growing mode to fit
+    assert "no box mode grows in the linear theory" in text
     assert "no clump" in text
     assert "no cutoff above the noise floor" in text
     assert blocks["contrast"]["t_unity"] is None and blocks["coherence"]["k_cutoff"] is None
@@ -150,3 +151,22 @@ def test_a_new_block_is_one_module_and_one_registry_line(tmp_path, monkeypatch):
     assert back.units == {"x": "c/omega_p"} and list(back.col("y")) == [0, 1, 4, 9, 16]
     assert (tmp_path / "figures" / "toy.png").stat().st_size > 1000
     assert "toy_sum" in [c.name for c in analysis.scan_columns()]
+
+
+def test_terminal_lines_give_times_in_ns_lengths_in_cm_frequencies_in_ghz():
+    """Every rate beside its e-folding time in ns, lengths in cm, frequencies in GHz; the ns
+    value printed is 1/(rate omega_pe) with omega_pe = 5.64e4 n^1/2 rad/s (NRL Plasma
+    Formulary), at the synthetic run's n = 1e10 cm^-3."""
+    import re
+    data = synthetic_run(seed=3)
+    results = analysis.compute(data)
+    lines = analysis.terminal_lines(results).splitlines()
+    g = results["growth"].summary["growth"]
+    growth = next(line for line in lines if line.startswith("growth, mode"))
+    tau = float(re.search(r"e-folding time ([0-9.e+-]+) \+-", growth).group(1))
+    assert tau == pytest.approx(1e9 / (g["measured"] * 5.64e4 * math.sqrt(1e10)), rel=5e-3)
+    assert re.search(r"theory [0-9.]+ ns", growth)
+    assert "ns" in next(line for line in lines if line.startswith("field energy grows"))
+    clumps = next(line for line in lines if line.startswith("clumps ("))
+    assert " cm" in clumps and " ns" in clumps
+    assert " GHz" in next(line for line in lines if "nu_c" in line)

@@ -102,6 +102,24 @@ class Context:
         return self.data.theory
 
 
+def at_ns(t, density_cm3: float, spec: str = ".4g") -> str:
+    """A time for a terminal line in both units: "t /w_p = t_ns ns" ('n/a' for None)."""
+    from ..units import time_ns
+    v = finite_or_none(t)
+    if v is None:
+        return "n/a"
+    return f"{format(v, spec)} /w_p = {format(time_ns(v, density_cm3), '.3g')} ns"
+
+
+def rate_ns(rate, density_cm3: float) -> str:
+    """The e-folding time 1/rate of a positive rate (omega_p) in ns, for a terminal line."""
+    from ..units import time_ns
+    v = finite_or_none(rate)
+    if v is None or v <= 0:
+        return "n/a"
+    return f"{time_ns(1.0 / v, density_cm3):.3g} ns"
+
+
 def fmt(value, spec: str = ".4g") -> str:
     """A number for a terminal line; 'n/a' for None/NaN."""
     v = finite_or_none(value)

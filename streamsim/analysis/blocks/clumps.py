@@ -12,7 +12,7 @@ import numpy as np
 
 from ... import units
 from .. import clumps as _cl
-from ..base import BlockResult, Context, Figure, ScanColumn, Table, fmt
+from ..base import BlockResult, Context, Figure, ScanColumn, Table, at_ns, fmt
 
 NAME = "clumps"
 
@@ -182,16 +182,16 @@ def compute(ctx: Context) -> BlockResult:
         units={"k": "omega_p/c", "k_per_cm": "1/cm"})
     return BlockResult(NAME, {"clumps": head}, tables,
                        [Figure("clumps.png", "clump size spectrum and density power spectrum "
-                               "P(k)", _draw)], _lines(head))
+                               "P(k)", _draw)], _lines(head, n_cm3))
 
 
-def _lines(cl: dict) -> list[str]:
+def _lines(cl: dict, n_cm3: float) -> list[str]:
     out = []
     if cl.get("count"):
         err = cl.get("size_median_err_cm")
         pm = f" +- {err:.2g}" if err is not None else ""
         line = (f"clumps (dn/n > {fmt(cl.get('threshold'), 'g')}): {cl['count']} at "
-                f"t = {fmt(cl.get('t'))} /w_p, median FWHM {fmt(cl.get('size_median'), '.3g')} "
+                f"t = {at_ns(cl.get('t'), n_cm3)}, median FWHM {fmt(cl.get('size_median'), '.3g')} "
                 f"c/w_p = {fmt(cl.get('size_median_cm'), '.3g')}{pm} cm")
         if cl.get("grid_limited"):
             fix = ("give the beams a temperature or raise box.cells" if cl.get("cold_species")

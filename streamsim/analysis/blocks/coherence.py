@@ -181,7 +181,8 @@ def _lines(co: dict) -> list[str]:
         err = co.get("frequency_cutoff_hz_err")
         pm = f" +- {err / 1e9:.2g}" if err is not None else " (no error estimate)"
         return [f"coherent emission up to nu_c = {co['frequency_cutoff_hz'] / 1e9:.3g}{pm} GHz "
-                f"(k_c = {fmt(co.get('k_cutoff'), '.3g')} w_p/c, {co.get('species')}, "
+                f"(k_c = {fmt(co.get('k_cutoff'), '.3g')} w_p/c = "
+                f"{fmt(co.get('k_cutoff_per_cm'), '.3g')} /cm, {co.get('species')}, "
                 f"bulk Gamma = {G:g}, noise floor 1/N = {fmt(co.get('noise_floor'), '.2g')})"
                 f"{lb}",
                 "  assumes particles on the same trajectory emitting along the motion; "

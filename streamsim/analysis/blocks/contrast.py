@@ -9,7 +9,7 @@ import numpy as np
 
 from ... import units
 from .. import contrast as _ct
-from ..base import BlockResult, Context, Figure, ScanColumn, Table, fmt
+from ..base import BlockResult, Context, Figure, ScanColumn, Table, at_ns, fmt
 
 NAME = "contrast"
 
@@ -42,7 +42,7 @@ def compute(ctx: Context) -> BlockResult:
                   attrs={"columns": ",".join(names + ["total"])})
     return BlockResult(NAME, {"contrast": block}, {"contrast": table},
                        [Figure("contrast.png", "max and rms delta n/n vs time per species and "
-                               "for the total", _draw)], _lines(block), warnings)
+                               "for the total", _draw)], _lines(block, n_cm3), warnings)
 
 
 def _seed_level(deck) -> float:
@@ -110,19 +110,19 @@ def _start(block: dict, ctx: Context) -> list[str]:
     return warnings
 
 
-def _lines(c: dict) -> list[str]:
+def _lines(c: dict, n_cm3: float) -> list[str]:
     if c.get("max") is None:
         return ["density contrast: not recorded"]
     if c.get("t_unity") is not None:
         out = [f"clumps form (max dn/n >= 1) at t = {fmt(c['t_unity'])} /w_p = "
                f"{fmt(c.get('t_unity_ns'))} ns; max dn/n = {fmt(c['max'], '.3g')} "
-               f"at t = {fmt(c.get('t_max'))} /w_p"]
+               f"at t = {at_ns(c.get('t_max'), n_cm3)}"]
     else:
         out = [f"no clump formation: max dn/n = {fmt(c['max'], '.3g')} < 1 "
-               f"(at t = {fmt(c.get('t_max'))} /w_p)"]
+               f"(at t = {at_ns(c.get('t_max'), n_cm3)})"]
     if c.get("initial_level") is not None:
         line = (f"  grown from dn/n = {fmt(c['initial_level'], '.2g')} at t = "
-                f"{fmt(c.get('initial_level_t'), '.3g')} /w_p "
+                f"{at_ns(c.get('initial_level_t'), n_cm3, '.3g')} "
                 f"({fmt(c.get('efolds_to_unity'), '.3g')} e-folds to unity)")
         if c.get("t_unity_ns_for_level") is not None:
             line += (f"; from dn/n = {fmt(c.get('level_asked'), '.2g')}: t_unity = "

@@ -13,7 +13,7 @@ import numpy as np
 from ... import units
 from ...numbers import finite_or_none
 from .. import growth as _gr
-from ..base import BlockResult, Context, Figure, ScanColumn, Table, fmt
+from ..base import BlockResult, Context, Figure, ScanColumn, Table, fmt, rate_ns
 
 NAME = "growth"
 from ..noise_growth import TARGET_EFOLDS as _TARGET  # noqa: E402
@@ -156,19 +156,25 @@ def compute(ctx: Context) -> BlockResult:
                                "and theoretical slopes", _draw_field_energy),
                         Figure("growth_rates.png", "measured growth rate per box mode with "
                                "error bars, on the theory curve", _draw_growth_rates)],
-                       _lines(head, modes, fe))
+                       _lines(head, modes, fe, n_cm3))
 
 
 def _col(values) -> np.ndarray:
     return np.array([np.nan if finite_or_none(v) is None else float(v) for v in values], float)
 
 
-def _lines(g: dict, modes: list[dict], fe: dict) -> list[str]:
+def _lines(g: dict, modes: list[dict], fe: dict, n_cm3: float) -> list[str]:
     lines = []
+    stable = g.get("measured") is None and g.get("theory") is not None and g["theory"] <= 0
     if g.get("mode") is None:
         lines.append("growth: no box mode recorded")
+    elif stable:
+        lines.append("growth: no box mode grows in the linear theory of this deck (a stable "
+                     "plasma): nothing grows to fit; seeded stable modes, if any, are fitted as "
+                     "oscillations")
     elif g.get("measured") is None:
-        th = f" (theory {fmt(g.get('theory'))} w_p)" if g.get("theory") is not None else ""
+        th = (f" (theory {fmt(g.get('theory'))} w_p, e-folding time "
+              f"{rate_ns(g.get('theory'), n_cm3)})" if g.get("theory") is not None else "")
         lines.append(f"growth, mode {g['mode']} (k = {fmt(g.get('k'))} w_p/c): "
                      f"{g.get('status') or _gr.NO_PHASE}{th}")
         if g.get("reason"):
@@ -182,14 +188,19 @@ def _lines(g: dict, modes: list[dict], fe: dict) -> list[str]:
         w = g.get("window") or [None, None]
         th = (f" vs theory {fmt(g['theory'])} (ratio {fmt(g.get('ratio'), '.3f')})"
               if g.get("theory") is not None else " (no theory for this mode)")
+        tau = (f"; e-folding time {fmt(g.get('growth_time_ns'), '.3g')} +- "
+               f"{fmt(g.get('growth_time_err_ns'), '.1g')} ns (theory "
+               f"{rate_ns(g.get('theory'), n_cm3)})")
         lines.append(f"growth, mode {g['mode']} (k = {fmt(g.get('k'))} w_p/c): measured "
-                     f"{fmt(g['measured'])} +- {fmt(g.get('measured_err'), '.2g')} w_p{th}, "
+                     f"{fmt(g['measured'])} +- {fmt(g.get('measured_err'), '.2g')} w_p{th}{tau}, "
                      f"fitted over t = {fmt(w[0], '.3g')}..{fmt(w[1], '.3g')} /w_p "
                      f"[{g.get('method')}]")
     if fe.get("measured") is not None:
-        th = f" (theory 2*gamma = {fmt(fe['theory'])})" if fe.get("theory") else ""
+        th = (f" (theory 2*gamma = {fmt(fe['theory'])}, {rate_ns(fe['theory'], n_cm3)})"
+              if fe.get("theory") else "")
         lines.append(f"field energy grows at {fmt(fe['measured'])} +- "
-                     f"{fmt(fe.get('measured_err'), '.2g')} w_p{th} [{fe.get('method')}]")
+                     f"{fmt(fe.get('measured_err'), '.2g')} w_p, e-folding time "
+                     f"{rate_ns(fe['measured'], n_cm3)}{th} [{fe.get('method')}]")
         if fe.get("flag"):
             lines.append(f"  warning: {fe['flag']}")
     if modes:
