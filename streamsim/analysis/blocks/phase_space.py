@@ -19,6 +19,9 @@ def compute(ctx: Context) -> BlockResult:
 
 def _draw(res: BlockResult, data):
     from ...plots import message_figure, plt
+    dist = (data.extra or {}).get("distribution")
+    if dist is not None and len(dist["t"]):
+        return _draw_continuum(dist, data)
     ps = data.phase_space
     t = np.asarray(ps.t, float) if ps is not None else np.array([])
     n_t = min(4, t.size)
@@ -39,4 +42,34 @@ def _draw(res: BlockResult, data):
     axes[-1, 0].set_xlabel("x [c/w_p]")
     axes[-1, 0].set_xlim(0, data.length)
     fig.suptitle("phase space")
+    return fig
+
+
+def _draw_continuum(dist, data):
+    """f_s(x, u) of a Vlasov run at up to four of its field-cadence times, one column per
+    species (log colour scale over four decades below each panel's maximum)."""
+    from matplotlib.colors import LogNorm
+
+    from ...plots import plt
+    t = np.asarray(dist["t"], float)
+    pick = np.unique(np.linspace(0, t.size - 1, min(4, t.size)).round().astype(int))
+    S = len(dist["f"])
+    fig, axes = plt.subplots(len(pick), S, figsize=(5 * S, 2.2 * len(pick)), sharex=True,
+                             squeeze=False)
+    for r, i in enumerate(pick):
+        for s in range(S):
+            ax = axes[r, s]
+            f = np.asarray(dist["f"][s][i], float)
+            g = dist["grids"][s]
+            top = float(f.max()) if f.size and f.max() > 0 else 1.0
+            ax.imshow(np.clip(f, top * 1e-4, None), origin="lower", aspect="auto",
+                      extent=(0.0, data.length, g.u_min, g.u_max),
+                      norm=LogNorm(vmin=top * 1e-4, vmax=top), cmap="viridis")
+            ax.text(0.01, 0.88, f"{data.names[s]}, t = {t[i]:.4g} /w_p", transform=ax.transAxes,
+                    fontsize=8, color="w")
+            if s == 0:
+                ax.set_ylabel("u = gamma beta")
+    for s in range(S):
+        axes[-1, s].set_xlabel("x [c/w_p]")
+    fig.suptitle("phase space: f(x, u) of the continuum run")
     return fig
