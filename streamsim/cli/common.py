@@ -22,6 +22,18 @@ def add_deck_arguments(parser, deck_help: str = "deck file (TOML); none = the bu
                              "(e.g. --set species.electrons.theta=1e-3); repeatable")
 
 
+def add_executor_arguments(parser) -> None:
+    """Where the runs of a scan-like command go: --workers, and --scheduler | --local-cluster."""
+    parser.add_argument("--workers", type=int, default=None, metavar="N",
+                        help="runs at once: local processes or LocalCluster workers (default: "
+                             "one per core)")
+    where = parser.add_mutually_exclusive_group()
+    where.add_argument("--scheduler", metavar="ADDRESS",
+                       help="send the runs to a running Dask scheduler, e.g. tcp://HOST:8786")
+    where.add_argument("--local-cluster", action="store_true",
+                       help="run on a dask.distributed LocalCluster on 127.0.0.1")
+
+
 def deck_from_args(args) -> Deck | None:
     """The validated deck, or None after printing the one-line deck error."""
     try:

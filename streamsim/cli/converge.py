@@ -6,7 +6,7 @@ import json
 import sys
 from pathlib import Path
 
-from streamsim.cli.common import error, warn
+from streamsim.cli.common import add_executor_arguments, error, warn
 
 HELP = ("resolution study: the deck at several levels of cells and particles per cell, with the "
         "change, observed order, Richardson estimate and a verdict for each headline output")
@@ -25,13 +25,7 @@ def add_arguments(p) -> None:
                    help="relative change between the two finest levels that counts as "
                         "converged (default 0.1)")
     p.add_argument("--out", metavar="DIR", help="study folder (default: runs/out/converge-<deck>)")
-    p.add_argument("--workers", type=int, default=None, metavar="N",
-                   help="runs at once (local processes or LocalCluster workers)")
-    where = p.add_mutually_exclusive_group()
-    where.add_argument("--scheduler", metavar="ADDRESS",
-                       help="send the runs to a running Dask scheduler, e.g. tcp://HOST:8786")
-    where.add_argument("--local-cluster", action="store_true",
-                       help="run on a dask.distributed LocalCluster on 127.0.0.1")
+    add_executor_arguments(p)
     p.add_argument("--set", dest="overrides", action="append", default=[], metavar="KEY=VALUE",
                    help="override a deck key for every level (TOML literal); repeatable")
     p.add_argument("--json", action="store_true", help="print converge.json on stdout")

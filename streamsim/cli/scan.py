@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import sys
 
-from streamsim.cli.common import error, warn
+from streamsim.cli.common import add_executor_arguments, error, warn
 
 HELP = "run a parameter scan (a base deck over axes of deck keys) locally or on Dask"
 
@@ -13,17 +13,10 @@ def add_arguments(p) -> None:
     p.add_argument("scan", metavar="SCAN", help="scan file (TOML): base deck, mode, replicas, "
                    "[[axis]] tables")
     p.add_argument("--out", metavar="DIR", help="scan folder (default: runs/out/<scan file name>)")
-    p.add_argument("--workers", type=int, default=None, metavar="N",
-                   help="runs at once: local processes or LocalCluster workers (default: one per "
-                        "core)")
+    add_executor_arguments(p)
     p.add_argument("--threads", type=int, default=None, metavar="T",
                    help="numba threads per run (default: cores // workers; on Dask: cores of the "
                         "node // worker processes on it, T caps it)")
-    where = p.add_mutually_exclusive_group()
-    where.add_argument("--scheduler", metavar="ADDRESS",
-                       help="send the runs to a running Dask scheduler, e.g. tcp://HOST:8786")
-    where.add_argument("--local-cluster", action="store_true",
-                       help="run on a dask.distributed LocalCluster on 127.0.0.1")
     p.add_argument("--resume", action="store_true",
                    help="continue the scan in DIR: completed runs are kept, interrupted ones "
                         "continue from their checkpoints")
