@@ -23,7 +23,7 @@ import numpy as np
 from . import fields
 from .rundata import DensitySnapshots, ParticleSnapshot, PhaseSpace, TimeSeries
 
-__all__ = ["Handler", "SeriesRecorder", "FieldSnapshots", "PhaseSpaceSampler", "PeakSnapshot",
+__all__ = ["Handler", "Sampler", "SeriesRecorder", "FieldSnapshots", "PhaseSpaceSampler", "PeakSnapshot",
            "stride", "record_steps", "contrast", "standard_handlers"]
 
 
@@ -107,6 +107,23 @@ class _Arrays(Handler):
         return self.arrays[key][:self.count].copy()
 
 
+class Sampler(_Arrays):
+    """An array handler that takes one sample of the state at the top of every ``every``-th
+    step and, when the last step was not on the cadence, one more at the end. Subclasses give
+    ``_take(sim, t)``."""
+
+    def _take(self, sim, t) -> None:
+        raise NotImplementedError
+
+    def before(self, sim, n):
+        if self.due(n):
+            self._take(sim, n * sim.dt)
+
+    def finish(self, sim):
+        if self.arrays["t"].size > self.count:
+            self._take(sim, sim.step * sim.dt)
+
+
 class SeriesRecorder(_Arrays):
     """Energies, momenta, complex E_k of modes 1..M, the complex density modes n_s,m of every
     species (``density_modes`` (n, S, M), the growth analysis's eigenmode projection) and max/rms
@@ -179,7 +196,7 @@ class SeriesRecorder(_Arrays):
             setattr(self, k, v)
 
 
-class FieldSnapshots(_Arrays):
+class FieldSnapshots(Sampler):
     """Densities per species and E on the grid every ``output.fields_interval``."""
     name = "fields"
 
@@ -190,20 +207,15 @@ class FieldSnapshots(_Arrays):
         n = record_steps(sim.steps, every)
         self.arrays = {"t": np.zeros(n), "density": np.zeros((n, S, N)), "efield": np.zeros((n, N))}
 
-    def before(self, sim, n):
-        if self.due(n):
-            self._put({"t": n * sim.dt, "density": sim.density, "efield": sim.efield})
-
-    def finish(self, sim):
-        if self.arrays["t"].size > self.count:
-            self._put({"t": sim.step * sim.dt, "density": sim.density, "efield": sim.efield})
+    def _take(self, sim, t):
+        self._put({"t": t, "density": sim.density, "efield": sim.efield})
 
     def snapshots(self) -> DensitySnapshots:
         return DensitySnapshots(t=self._view("t"), density=self._view("density"),
                                 efield=self._view("efield"))
 
 
-class PhaseSpaceSampler(_Arrays):
+class PhaseSpaceSampler(Sampler):
     """(x, u) of a fixed random subsample of each species every ``output.phase_space_interval``."""
     name = "phase"
 
@@ -224,14 +236,6 @@ class PhaseSpaceSampler(_Arrays):
             row[f"x/{name}"] = x[idx]
             row[f"u/{name}"] = u[idx]
         self._put(row)
-
-    def before(self, sim, n):
-        if self.due(n):
-            self._take(sim, n * sim.dt)
-
-    def finish(self, sim):
-        if self.arrays["t"].size > self.count:
-            self._take(sim, sim.step * sim.dt)
 
     def phase_space(self) -> PhaseSpace:
         return PhaseSpace(t=self._view("t"), x={s: self._view(f"x/{s}") for s in self.names},

@@ -134,7 +134,8 @@ def test_error_bar_of_nu_c_agrees_with_the_replica_scatter():
             errs.append(co["frequency_cutoff_hz_err"])
     assert len(nus) >= 8
     scatter = float(np.std(nus, ddof=1))
-    # the honesty check: scatter and typical reported error within a factor of 2
+    # an honest error bar: the replica scatter and the typical reported error agree within a
+    # factor of 2 (common practice for checking a standard error against replicas)
     assert 0.5 <= scatter / float(np.median(errs)) <= 2.0
 
 

@@ -34,6 +34,24 @@ def add_executor_arguments(parser) -> None:
                        help="run on a dask.distributed LocalCluster on 127.0.0.1")
 
 
+def run_scan_or_exit(**kwargs):
+    """(result, None) of :func:`streamsim.scan.run_scan`, or (None, exit status) after one
+    line: bad arguments 2, scheduler or output failures 4."""
+    from streamsim.io import OutputError
+    from streamsim.scan import ScanSetupError, SchedulerError, run_scan
+    try:
+        return run_scan(**kwargs), None
+    except ScanSetupError as ex:
+        error("argument", str(ex))
+        return None, 2
+    except SchedulerError as ex:
+        error("dask", str(ex))
+        return None, 4
+    except OutputError as ex:
+        error("output", str(ex))
+        return None, 4
+
+
 def deck_from_args(args) -> Deck | None:
     """The validated deck, or None after printing the one-line deck error."""
     try:

@@ -6,7 +6,7 @@ import json
 import sys
 from pathlib import Path
 
-from streamsim.cli.common import add_executor_arguments, error, warn
+from streamsim.cli.common import add_executor_arguments, error, run_scan_or_exit, warn
 
 HELP = ("resolution study: the deck at several levels of cells and particles per cell, with the "
         "change, observed order, Richardson estimate and a verdict for each headline output")
@@ -35,7 +35,7 @@ def add_arguments(p) -> None:
 def main(args) -> int:
     from streamsim import io
     from streamsim.deck import DeckError
-    from streamsim.scan import ScanError, ScanSetupError, SchedulerError, run_scan
+    from streamsim.scan import ScanError
     from streamsim.scan import converge as cv
     if not 0 < args.tolerance < 1:
         error("argument", f"--tolerance {args.tolerance:g}: must be in (0, 1)")
@@ -59,20 +59,12 @@ def main(args) -> int:
     if old is not None and old != scan.to_dict():
         error("argument", f"{out} holds another study or scan; choose another --out")
         return 2
-    try:
-        res = run_scan(scan, out, workers=args.workers, scheduler=args.scheduler,
-                       local_cluster=args.local_cluster, resume=True,
-                       progress=None if not args.quiet else False, quiet=args.quiet,
-                       figures=False)
-    except ScanSetupError as ex:
-        error("argument", str(ex))
-        return 2
-    except SchedulerError as ex:
-        error("dask", str(ex))
-        return 4
-    except io.OutputError as ex:
-        error("output", str(ex))
-        return 4
+    res, rc = run_scan_or_exit(scan=scan, out=out, workers=args.workers,
+                               scheduler=args.scheduler, local_cluster=args.local_cluster,
+                               resume=True, progress=None if not args.quiet else False,
+                               quiet=args.quiet, figures=False)
+    if res is None:
+        return rc
     for w in res.warnings:
         warn(w)
     study = cv.collect_study(scan, out, levels, args.factor, reps, args.tolerance)

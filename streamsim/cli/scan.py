@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import sys
 
-from streamsim.cli.common import add_executor_arguments, error, warn
+from streamsim.cli.common import add_executor_arguments, error, run_scan_or_exit, warn
 
 HELP = "run a parameter scan (a base deck over axes of deck keys) locally or on Dask"
 
@@ -29,9 +29,7 @@ def add_arguments(p) -> None:
 
 
 def main(args) -> int:
-    from streamsim import io
-    from streamsim.scan import (ScanError, ScanSetupError, SchedulerError, default_out,
-                                load_scan, run_scan)
+    from streamsim.scan import ScanError, default_out, load_scan
     if args.retry_failed and not args.resume:
         error("argument", "--retry-failed needs --resume")
         return 2
@@ -43,21 +41,13 @@ def main(args) -> int:
     for w in scan.warnings:
         warn(w)
     out = args.out or str(default_out(scan))
-    try:
-        res = run_scan(scan, out, workers=args.workers, threads=args.threads,
-                       scheduler=args.scheduler, local_cluster=args.local_cluster,
-                       resume=args.resume, retry_failed=args.retry_failed,
-                       progress=None if not args.quiet else False, quiet=args.quiet,
-                       figures=not args.no_figures)
-    except ScanSetupError as ex:
-        error("argument", str(ex))
-        return 2
-    except SchedulerError as ex:
-        error("dask", str(ex))
-        return 4
-    except io.OutputError as ex:
-        error("output", str(ex))
-        return 4
+    res, rc = run_scan_or_exit(scan=scan, out=out, workers=args.workers, threads=args.threads,
+                               scheduler=args.scheduler, local_cluster=args.local_cluster,
+                               resume=args.resume, retry_failed=args.retry_failed,
+                               progress=None if not args.quiet else False, quiet=args.quiet,
+                               figures=not args.no_figures)
+    if res is None:
+        return rc
     for w in res.warnings[len(scan.warnings):]:
         warn(w)
     if not args.quiet:

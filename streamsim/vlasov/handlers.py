@@ -12,7 +12,7 @@ import math
 
 import numpy as np
 
-from ..diagnostics import FieldSnapshots, Handler, SeriesRecorder, _Arrays, contrast, \
+from ..diagnostics import FieldSnapshots, Handler, Sampler, SeriesRecorder, _Arrays, contrast, \
     record_steps, stride
 from ..rundata import DensityProfile
 
@@ -71,7 +71,7 @@ class PeakDensity(Handler):
         self.value = -math.inf if v is None else float(v)
 
 
-class DistributionSnapshots(_Arrays):
+class DistributionSnapshots(Sampler):
     """f_s(x, u) of every species every ``output.fields_interval`` (the times of the field
     snapshots)."""
     name = "distribution"
@@ -87,14 +87,6 @@ class DistributionSnapshots(_Arrays):
 
     def _take(self, sim, t):
         self._put({"t": t, **{f"f/{s}": f for s, f in enumerate(sim.f)}})
-
-    def before(self, sim, n):
-        if self.due(n):
-            self._take(sim, n * sim.dt)
-
-    def finish(self, sim):
-        if self.arrays["t"].size > self.count:
-            self._take(sim, sim.step * sim.dt)
 
     def snapshots(self) -> dict:
         """{"t": (n_f,), "f": [per species (n_f, momentum_cells, cells)], "grids": [MomentumGrid]}"""
