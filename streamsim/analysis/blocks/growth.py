@@ -188,6 +188,9 @@ def _lines(g: dict, modes: list[dict], fe: dict, n_cm3: float) -> list[str]:
         w = g.get("window") or [None, None]
         th = (f" vs theory {fmt(g['theory'])} (ratio {fmt(g.get('ratio'), '.3f')})"
               if g.get("theory") is not None else " (no theory for this mode)")
+        if str(g.get("selected_by", "")).startswith("largest measured"):
+            th += (" -- no box mode grows in the deck's linear theory, so this is the fastest "
+                   "measured mode, not a linear rate")
         tau = (f"; e-folding time {fmt(g.get('growth_time_ns'), '.3g')} +- "
                f"{fmt(g.get('growth_time_err_ns'), '.1g')} ns (theory "
                f"{rate_ns(g.get('theory'), n_cm3)})")
