@@ -20,14 +20,26 @@ Parallelism: particles are split into ``nchunks`` fixed contiguous chunks, each 
 serially by one thread into its own row of ``partial`` (chunks x N). Rows are summed in a fixed
 order afterwards, so results are bit-identical run to run for a fixed chunk count.
 
-The push + deposit works through each chunk in blocks of BLOCK particles held in a small
-per-chunk scratch: a scalar gather of E (an indirect load the compiler will not vectorise), a
-branch-free vectorised pass for the push, the periodic wrap, the energy terms and the deposit
-weights, a scalar scatter into SUBROWS interleaved copies of the row (consecutive particles in
-one cell no longer wait on each other), and per-block sums. Ghost nodes -1, N, N+1 on the field
+The push + deposit works through each chunk in blocks of BLOCK particles, in two passes:
+
+1. one vectorised, branch-free pass gathers E (an AVX-512/AVX2 gather where the CPU has one),
+   pushes, wraps, stores x and u, and leaves three values per particle in a small per-chunk
+   scratch (gamma - 1, the node index and the shape coordinate at x^{n+1}), with the lowest
+   and highest node of the block;
+2. the deposit: when the block's particles land on fewer than WINDOW neighbouring nodes (cold
+   or cell-ordered particles at >= BLOCK / WINDOW per cell, the usual case for beams), one
+   vectorised masked sum per node; otherwise a scalar scatter into SUBROWS interleaved copies
+   of the row (consecutive particles in one cell no longer wait on each other).
+
+The energy and momentum sums are per-block vectorised sums. Ghost nodes -1, N, N+1 on the field
 and the row copies remove every index wrap from the loops. All arithmetic is strict IEEE except
-the per-block sums (reassociated, fixed by the compiled code), so the chunking alone fixes the
-result, whichever thread runs a chunk.
+the per-block and per-node sums (reassociated, fixed by the compiled code), so the data and the
+chunking alone fix the result, whichever thread runs a chunk.
+
+Cost per particle-step on one core of the benchmark machine (2.1 M particles, 4096 cells, the
+default beams; ``streamsim bench`` measures the whole step): the push arithmetic including the
+square root and the division is about a fifth of it; the rest is the gather, the scratch and
+the deposit, which no longer has a scalar read-modify-write per weight in the common case.
 """
 from __future__ import annotations
 
@@ -81,20 +93,23 @@ def _weights(xg, n, shape):
         return im, ic, ip, 0.5 * a * a, 0.75 - d * d, 0.5 * b * b
 
 
-#: particles per block of the fused push: a block's scratch (~40 KB) stays in L1/L2
+#: particles per block of the fused push: a block's scratch (~10 KB) stays in L1
 BLOCK = 512
-#: interleaved copies of the deposit row per chunk: consecutive particles in one cell (sorted
-#: particles, cold beams) would otherwise wait on each other's store-to-load forwarding
+#: a block whose particles end in fewer than this many neighbouring nodes deposits by masked
+#: sums, one vectorised pass per node (sorted or cold particles, >= BLOCK / WINDOW per cell);
+#: wider blocks (warm, mixed or sparse particles) deposit by a scalar scatter
+WINDOW = 8
+#: interleaved copies of the deposit row per chunk for the scalar scatter: consecutive particles
+#: in one cell would otherwise wait on each other's store-to-load forwarding
 SUBROWS = 4
 #: grids above this many cells deposit into a single copy (four would no longer fit in cache)
 SUBROW_MAX_CELLS = 1 << 14
 #: below this many particles the call runs on the calling thread alone: waking the pool costs
 #: more than it saves (the chunking, hence every bit of the result, is the same either way)
 SERIAL_BELOW = 1 << 16
-
-# rows of the per-chunk float64 scratch (row r holds BLOCK values)
-_R_E, _R_KO, _R_KN, _R_UO, _R_UN, _R_BAD, _R_W0, _R_W1, _R_W2 = range(9)
-_NREG = 9
+#: extra slots past the ghost nodes of each row copy: a particle whose position is not finite
+#: is deposited there, and those slots are never folded into the density
+_DUMP = 3
 
 
 @nb.njit(inline="always")
@@ -105,14 +120,21 @@ def _ix(i):
 
 
 @nb.njit(inline="always")
-def _push_block(x, u, ee, qm_dt, dt, length, inv_len, inv_dx, fng, shape, b0, m, c, scr, ib):
-    """Gather E(x^n), push, wrap, energy terms and deposit weights at x^{n+1} for particles
-    b0 .. b0+m-1, branch-free. ``shape`` is a literal where this is inlined. Node t of the grid
-    is ee[t + 1] (ghost nodes -1, N, N+1), so no index is wrapped here. A position not inside
-    [0, L) (NaN/Inf) is gathered and deposited at x = 0 with weight 0, and flagged."""
+def _push_block(x, u, ee, qm_dt, dt, length, inv_len, inv_dx, fng, dump, shape, b0, m, c,
+                ke, fw, ib):
+    """One vectorised pass over particles b0 .. b0+m-1: gather E(x^n), push, wrap, store x, u,
+    and leave in the chunk's scratch the kinetic term gamma - 1 (``ke``), the node index
+    (``ib``) and the shape coordinate (``fw``: f = x/dx - i for CIC, d = x/dx - i for NGP/TSC)
+    of x^{n+1}; a non-finite x^{n+1} shows as a non-finite block sum of ``fw``, and only then a second pass counts such particles and sends them to the dump node. ``shape`` is a literal where this is inlined. Node t of the grid is ee[t + 1]
+    (ghost nodes -1, N, N+1), so no index is wrapped here. A position not inside [0, L)
+    (NaN/Inf) is gathered at x = 0 and, after the push, sent to the dump node; returns
+    (lowest node, highest node, number of such particles)."""
     cc = _ix(c)
     one = _ix(1)
     two = _ix(2)
+    jmin = dump
+    jmax = -1
+    nbad = 0
     for k in range(m):
         j = _ix(b0 + k)
         kk = _ix(k)
@@ -134,13 +156,7 @@ def _push_block(x, u, ee, qm_dt, dt, length, inv_len, inv_dx, fng, shape, b0, m,
             b = 0.5 + d
             ii = _ix(i)
             ej = 0.5 * a * a * ee[ii] + (0.75 - d * d) * ee[ii + one] + 0.5 * b * b * ee[ii + two]
-        scr[cc, _R_E, kk] = ej
-    for k in range(m):
-        j = _ix(b0 + k)
-        kk = _ix(k)
-        xj = x[j]
-        uo = u[j]
-        un = uo + qm_dt * scr[cc, _R_E, kk]
+        un = u[j] + qm_dt * ej
         gn = math.sqrt(1.0 + un * un)
         r = 1.0 / (gn * (gn + 1.0))
         v = un * (gn + 1.0) * r                     # u / gamma
@@ -150,61 +166,115 @@ def _push_block(x, u, ee, qm_dt, dt, length, inv_len, inv_dx, fng, shape, b0, m,
         xn = xn - length if xn >= length else xn
         u[j] = un
         x[j] = xn
-        scr[cc, _R_KN, kk] = un * un * gn * r       # gamma - 1 without cancellation
-        scr[cc, _R_UN, kk] = un
+        ke[cc, kk] = un * un * gn * r               # gamma - 1 without cancellation
         ok = (xn >= 0.0) & (xn < length)            # False for NaN
-        s = 1.0 if ok else 0.0
-        scr[cc, _R_BAD, kk] = 1.0 - s
-        xg = (xn if ok else 0.0) * inv_dx
+        xg = (xn if ok else 0.0) * inv_dx           # a safe index for every particle
         if shape == 1:
-            xg = min(xg, fng)
-            i = int(xg)
-            f = xg - i
-            ib[cc, kk] = _ix(i)
-            scr[cc, _R_W0, kk] = s * (1.0 - f)
-            scr[cc, _R_W1, kk] = s * f
-        elif shape == 0:
-            ib[cc, kk] = _ix(int(min(xg + 0.5, fng)))
-            scr[cc, _R_W0, kk] = s
+            i = int(min(xg, fng))
         else:
             i = int(min(xg + 0.5, fng))
-            d = xg - i
-            a = 0.5 - d
-            b = 0.5 + d
-            ib[cc, kk] = _ix(i)
-            scr[cc, _R_W0, kk] = s * 0.5 * a * a
-            scr[cc, _R_W1, kk] = s * (0.75 - d * d)
-            scr[cc, _R_W2, kk] = s * 0.5 * b * b
+        fw[cc, kk] = xn * inv_dx - i                # not finite for a bad particle
+        ib[cc, kk] = i
+        jmin = min(jmin, i)
+        jmax = max(jmax, i)
+    t = _block_sum(fw, c, m)
+    if not t - t == 0.0:                        # some x^{n+1} is not finite: a rare second pass
+        for k in range(m):
+            kk = _ix(k)
+            d = fw[cc, kk]
+            if not d - d == 0.0:
+                nbad += 1
+                ib[cc, kk] = dump
+                fw[cc, kk] = 0.0
+                jmax = dump
+    return jmin, jmax, nbad
 
 
 @nb.njit(fastmath={"reassoc"}, boundscheck=False, error_model="numpy")
-def _block_sum(scr, c, r, m):
-    """Sum of scr[c, r, :m]. Reassociation lets the compiler vectorise it: the order of the
+def _node_sums(ib, fw, c, m, t, shape):
+    """The block's shape weights that fall on the three nodes t - 1, t, t + 1 from particles
+    whose node index is t (CIC: on t, t + 1 from the particles in cell t), by masked sums that
+    vectorise; reassociation fixes the order of the additions in the compiled code, the same
+    on every call and run."""
+    s0 = 0.0
+    s1 = 0.0
+    s2 = 0.0
+    cc = _ix(c)
+    for k in range(m):
+        kk = _ix(k)
+        hit = ib[cc, kk] == t
+        d = fw[cc, kk]
+        if shape == 1:
+            s0 += (1.0 - d) if hit else 0.0
+            s1 += d if hit else 0.0
+        elif shape == 0:
+            s1 += 1.0 if hit else 0.0
+        else:
+            a = 0.5 - d
+            b = 0.5 + d
+            s0 += 0.5 * a * a if hit else 0.0
+            s1 += (0.75 - d * d) if hit else 0.0
+            s2 += 0.5 * b * b if hit else 0.0
+    return s0, s1, s2
+
+
+@nb.njit(fastmath={"reassoc"}, boundscheck=False, error_model="numpy")
+def _block_sum(a, c, m):
+    """Sum of a[c, :m]. Reassociation lets the compiler vectorise it: the order of the
     additions is then fixed by the compiled code, the same on every call and run."""
     t = 0.0
     for k in range(m):
-        t += scr[_ix(c), _ix(r), _ix(k)]
+        t += a[_ix(c), _ix(k)]
+    return t
+
+
+@nb.njit(fastmath={"reassoc"}, boundscheck=False, error_model="numpy")
+def _range_sum(a, lo, m):
+    """Sum of a[lo:lo + m], vectorised as :func:`_block_sum`."""
+    t = 0.0
+    for k in range(m):
+        t += a[_ix(lo + k)]
     return t
 
 
 @nb.njit(inline="always")
-def _scatter_block(m, c, scr, ib, acc, nsub, stride, shape):
-    """Add the block's weights into the chunk's row copies; copy k & (nsub - 1) takes particle k."""
+def _deposit_block(m, c, fw, ib, acc, nsub, stride, jmin, jmax, shape):
+    """Add the block's weights at x^{n+1} into the chunk's row copies: by masked sums over the
+    nodes jmin .. jmax when they are fewer than WINDOW, else by a scalar scatter in which copy
+    k & (nsub - 1) takes particle k. Row slot t + 1 is node t (CIC: cell t deposits on slots
+    t + 1, t + 2; NGP/TSC: node t on slots t, t + 1, t + 2)."""
     cc = _ix(c)
     one = _ix(1)
     two = _ix(2)
+    if jmax - jmin < WINDOW:
+        for t in range(jmin, jmax + 1):
+            s0, s1, s2 = _node_sums(ib, fw, c, m, t, shape)
+            tt = _ix(t)
+            if shape == 1:
+                acc[cc, tt + one] += s0
+                acc[cc, tt + two] += s1
+            elif shape == 0:
+                acc[cc, tt + one] += s1
+            else:
+                acc[cc, tt] += s0
+                acc[cc, tt + one] += s1
+                acc[cc, tt + two] += s2
+        return
     for k in range(m):
         kk = _ix(k)
-        base = _ix((k & (nsub - 1)) * stride) + ib[cc, kk]
+        base = _ix((k & (nsub - 1)) * stride) + _ix(ib[cc, kk])
+        d = fw[cc, kk]
         if shape == 1:
-            acc[cc, base + one] += scr[cc, _R_W0, kk]
-            acc[cc, base + two] += scr[cc, _R_W1, kk]
+            acc[cc, base + one] += 1.0 - d
+            acc[cc, base + two] += d
         elif shape == 0:
-            acc[cc, base + one] += scr[cc, _R_W0, kk]
+            acc[cc, base + one] += 1.0
         else:
-            acc[cc, base] += scr[cc, _R_W0, kk]
-            acc[cc, base + one] += scr[cc, _R_W1, kk]
-            acc[cc, base + two] += scr[cc, _R_W2, kk]
+            a = 0.5 - d
+            b = 0.5 + d
+            acc[cc, base] += 0.5 * a * a
+            acc[cc, base + one] += 0.75 - d * d
+            acc[cc, base + two] += 0.5 * b * b
 
 
 @nb.njit(parallel=True, cache=True, boundscheck=False, error_model="numpy")
@@ -222,12 +292,14 @@ def _push_deposit(x, u, efield, qm_dt, dt, length, shape, nchunks, partial, sums
     ee[ng + 1] = efield[0]
     ee[ng + 2] = efield[1 % ng]
     nsub = SUBROWS if ng <= SUBROW_MAX_CELLS else 1
-    stride = ng + 3
+    stride = ng + 3 + _DUMP
+    dump = ng + 3                           # row slots ng + 3 .. ng + 5: never folded
     # per-chunk scratch, allocated here (not in the parallel body) so that the body holds no
-    # array views: numba then marks the body's arrays as not aliasing, which lets the gather
+    # array views: numba then marks the body's arrays as not aliasing, which lets the loops
     # vectorise
-    scr = np.zeros((nchunks, _NREG, BLOCK))
-    ib = np.zeros((nchunks, BLOCK), np.uint64)
+    ke = np.zeros((nchunks, BLOCK))
+    fw = np.zeros((nchunks, BLOCK))
+    ib = np.zeros((nchunks, BLOCK), np.int32)
     acc = np.zeros((nchunks, nsub * stride + 16))
     # per-chunk running sums of the SUM_* columns; rows padded to 128 bytes and the row copies
     # by 16 values, so that no cache line is written by two threads
@@ -238,16 +310,21 @@ def _push_deposit(x, u, efield, qm_dt, dt, length, shape, nchunks, partial, sums
         for b0 in range(lo, hi, BLOCK):
             m = min(BLOCK, hi - b0)
             if shape == 1:
-                _push_block(x, u, ee, qm_dt, dt, length, inv_len, inv_dx, fng, 1, b0, m, c, scr, ib)
-                _scatter_block(m, c, scr, ib, acc, nsub, stride, 1)
+                jmin, jmax, nbad = _push_block(x, u, ee, qm_dt, dt, length, inv_len, inv_dx,
+                                               fng, dump, 1, b0, m, c, ke, fw, ib)
+                _deposit_block(m, c, fw, ib, acc, nsub, stride, jmin, jmax, 1)
             elif shape == 0:
-                _push_block(x, u, ee, qm_dt, dt, length, inv_len, inv_dx, fng, 0, b0, m, c, scr, ib)
-                _scatter_block(m, c, scr, ib, acc, nsub, stride, 0)
+                jmin, jmax, nbad = _push_block(x, u, ee, qm_dt, dt, length, inv_len, inv_dx,
+                                               fng, dump, 0, b0, m, c, ke, fw, ib)
+                _deposit_block(m, c, fw, ib, acc, nsub, stride, jmin, jmax, 0)
             else:
-                _push_block(x, u, ee, qm_dt, dt, length, inv_len, inv_dx, fng, 2, b0, m, c, scr, ib)
-                _scatter_block(m, c, scr, ib, acc, nsub, stride, 2)
-            for q in (SUM_KE_NEW, SUM_U_NEW, SUM_BAD):   # the n-1/2 side is the caller's
-                lanes[c, q] += _block_sum(scr, c, q + 1, m)
+                jmin, jmax, nbad = _push_block(x, u, ee, qm_dt, dt, length, inv_len, inv_dx,
+                                               fng, dump, 2, b0, m, c, ke, fw, ib)
+                _deposit_block(m, c, fw, ib, acc, nsub, stride, jmin, jmax, 2)
+            # the n-1/2 side is the caller's
+            lanes[c, SUM_KE_NEW] += _block_sum(ke, c, m)
+            lanes[c, SUM_U_NEW] += _range_sum(u, b0, m)
+            lanes[c, SUM_BAD] += nbad
         # fold the row copies and the ghost nodes into the chunk's row of ``partial``
         for t in range(ng):
             partial[c, t] = 0.0
