@@ -12,6 +12,9 @@ so that ratios hold on a noisy shared machine; each figure is the best of its re
 - roofline: copy bandwidth (parallel, same threads, slice copies that compile to a memcpy-class
   loop) on two arrays of the particle arrays' size, converted at 32 bytes per particle-step
   (x and u as float64, read and written).
+- ladder: what limits the speed. Three partial loops on the same particles (the in-place stream
+  of x and u alone; + the relativistic push and wrap; + the CIC gather), then the full kernel
+  (+ deposit and sums), then the whole step, each in particle-steps/s beside the roofline.
 - peer: :mod:`streamsim.numpy_peer`, the same step in plain vectorised numpy (np.bincount
   deposit, rfft Poisson), on copies of the same particles.
 - whole run: two fresh ``streamsim run`` processes of the default physics at WHOLE_RUN_PARTICLES
@@ -100,6 +103,122 @@ def copy_seconds(xs, us, xd, ud, threads: int) -> float:
     t = time.perf_counter()
     _COPY(xs, us, xd, ud, threads, reps)
     return (time.perf_counter() - t) / reps
+
+
+def _ladder_kernels():
+    """Three loops that do a growing part of the push + deposit's work on the particle arrays,
+    each with the kernel's chunking and indexing, compiled once: (1) the in-place stream of x
+    and u with no arithmetic worth the name, (2) the relativistic push and periodic wrap in a
+    uniform field (the square root and the division), (3) the push with the CIC gather of E.
+    The full kernel adds the deposit and the energy and momentum sums."""
+    import numba as nb
+
+    from .kernels import _ix
+
+    @nb.njit(parallel=True, boundscheck=False, error_model="numpy")
+    def stream(x, u, e, qm_dt, dt, length, nchunks):
+        n = x.size
+        chunk = (n + nchunks - 1) // nchunks
+        for c in nb.prange(nchunks):
+            lo = min(n, c * chunk)
+            hi = min(n, lo + chunk)
+            for k in range(hi - lo):
+                j = _ix(lo + k)
+                un = u[j] + qm_dt * e[0]
+                u[j] = un
+                x[j] = x[j] + 0.0 * un * dt         # positions unchanged, still read and written
+
+    @nb.njit(parallel=True, boundscheck=False, error_model="numpy")
+    def push(x, u, e, qm_dt, dt, length, nchunks):
+        n = x.size
+        inv_len = 1.0 / length
+        chunk = (n + nchunks - 1) // nchunks
+        for c in nb.prange(nchunks):
+            lo = min(n, c * chunk)
+            hi = min(n, lo + chunk)
+            for k in range(hi - lo):
+                j = _ix(lo + k)
+                un = u[j] + qm_dt * e[0]
+                gn = math.sqrt(1.0 + un * un)
+                r = 1.0 / (gn * (gn + 1.0))
+                xn = x[j] + un * (gn + 1.0) * r * dt
+                xn = xn - length * math.floor(xn * inv_len)
+                xn = xn + length if xn < 0.0 else xn
+                xn = xn - length if xn >= length else xn
+                u[j] = un
+                x[j] = xn
+
+    @nb.njit(parallel=True, boundscheck=False, error_model="numpy")
+    def push_gather(x, u, e, qm_dt, dt, length, nchunks):
+        n = x.size
+        ng = e.size
+        inv_dx = ng / length
+        inv_len = 1.0 / length
+        fng = float(ng)
+        ee = np.empty(ng + 2)
+        ee[:ng] = e
+        ee[ng] = e[0]
+        ee[ng + 1] = e[1 % ng]
+        chunk = (n + nchunks - 1) // nchunks
+        for c in nb.prange(nchunks):
+            lo = min(n, c * chunk)
+            hi = min(n, lo + chunk)
+            for k in range(hi - lo):
+                j = _ix(lo + k)
+                xj = x[j]
+                xg = min(xj * inv_dx, fng)
+                i = int(xg)
+                f = xg - i
+                ii = _ix(i)
+                un = u[j] + qm_dt * ((1.0 - f) * ee[ii] + f * ee[ii + _ix(1)])
+                gn = math.sqrt(1.0 + un * un)
+                r = 1.0 / (gn * (gn + 1.0))
+                xn = xj + un * (gn + 1.0) * r * dt
+                xn = xn - length * math.floor(xn * inv_len)
+                xn = xn + length if xn < 0.0 else xn
+                xn = xn - length if xn >= length else xn
+                u[j] = un
+                x[j] = xn
+
+    return {"stream": stream, "push": push, "push_gather": push_gather}
+
+
+_LADDER = None
+
+
+def ladder(sim, xd, ud, repeats: int = 5) -> dict:
+    """particle-steps/s of the three partial loops of :func:`_ladder_kernels` and of the full
+    kernel, on scratch copies (xd, ud) of the run's particles with its field, all threads,
+    interleaved and best of ``repeats``: where the time of a step goes, beside the roofline."""
+    global _LADDER
+    from . import kernels
+    if _LADDER is None:
+        _LADDER = _ladder_kernels()
+        for k in _LADDER.values():
+            k(xd[:8].copy(), ud[:8].copy(), sim.efield, 0.0, 0.0, sim.deck.box.length, 1)
+    b = sim.deck.box
+    sizes = [x.size for x in sim.x]
+    parts = [(sum(sizes[:s]), sum(sizes[:s + 1])) for s in range(len(sizes))]
+
+    def full():
+        for s, (lo, hi) in enumerate(parts):
+            kernels.push_deposit(xd[lo:hi], ud[lo:hi], sim.efield, sim.qm[s] * sim.dt, sim.dt,
+                                 b.length, sim.shape, sim.nchunks, sim.partial, sim.sums[s])
+
+    def partial(k):
+        def f():
+            for s, (lo, hi) in enumerate(parts):
+                k(xd[lo:hi], ud[lo:hi], sim.efield, sim.qm[s] * sim.dt, sim.dt, b.length,
+                  sim.nchunks)
+        return f
+    runs = {name: partial(k) for name, k in _LADDER.items()}
+    runs["kernel"] = full
+    best = {name: np.inf for name in runs}
+    for _ in range(repeats):
+        for name, f in runs.items():
+            best[name] = min(best[name], _timed(f))
+    n = xd.size
+    return {f"{name}_particle_steps_per_s": n / t for name, t in best.items()}
 
 
 def _burn_kernel():
@@ -206,11 +325,17 @@ def measure(particles: int, threads: int, *, steps: int = 10, repeats: int = 3,
             best_copy = min(best_copy, copy_seconds(xs, us, xd, ud, sim.threads))
         # the kernel alone (no field solve, no diagnostics), on scratch copies of the particles
         t = time.perf_counter()
+        lo = 0
         for s in range(len(sim.x)):
-            kernels.push_deposit(xd[:sim.x[s].size], ud[:sim.u[s].size], sim.efield,
-                                 sim.qm[s] * sim.dt, sim.dt, b.length, sim.shape, sim.nchunks,
-                                 sim.partial, sim.sums[s])
+            hi = lo + sim.x[s].size
+            kernels.push_deposit(xd[lo:hi], ud[lo:hi], sim.efield, sim.qm[s] * sim.dt, sim.dt,
+                                 b.length, sim.shape, sim.nchunks, sim.partial, sim.sums[s])
+            lo = hi
         best_kernel = min(best_kernel, time.perf_counter() - t)
+    # where the kernel's time goes: partial loops on the same particles, same sitting
+    np.copyto(xd, xs)
+    np.copyto(ud, us)
+    steps_ladder = ladder(sim, xd, ud)
     # one copy of every position, as PeakSnapshot takes at each new maximum above
     # EXACT_ABOVE (about one diagnostics record in ten of a default run's growth phase)
     peak = next(h for h in handlers if isinstance(h, PeakSnapshot))
@@ -245,6 +370,7 @@ def measure(particles: int, threads: int, *, steps: int = 10, repeats: int = 3,
         "roofline_particle_steps_per_s": n / best_copy,
     }
     out["roofline_fraction"] = out["particle_steps_per_s"] / out["roofline_particle_steps_per_s"]
+    out["ladder"] = steps_ladder
     out["numpy_particle_steps_per_s"] = None
     if peer:
         Peer = load_numpy_peer()
@@ -513,6 +639,20 @@ def format_table(result: dict) -> str:
             f"{r['kernel_step_s'] * 1e3:.2f} ms + rest of advance (solve, sums, checks) "
             f"{r['advance_outside_kernel_per_step_s'] * 1e3:.2f} ms + handlers (diagnostics, "
             f"peak snapshot) {r['handlers_per_step_s'] * 1e3:.2f} ms")
+        lad = r.get("ladder")
+        if lad:
+            roof = r["roofline_particle_steps_per_s"]
+            parts = [("in-place stream of x, u", "stream"),
+                     ("+ relativistic push and wrap (square root, division)", "push"),
+                     ("+ CIC gather of E", "push_gather"),
+                     ("+ deposit and sums = the kernel", "kernel")]
+            lines.append(f"what limits the speed (N = {r['particles']}, {r['threads']} threads, "
+                         f"same sitting; particle-steps/s and fraction of the copy roofline):")
+            for label, key in parts:
+                v = lad[f"{key}_particle_steps_per_s"]
+                lines.append(f"  {label:<55} {v:>10.3g}  {v / roof:>5.2f}")
+            lines.append(f"  {'+ field solve, sums, checks, diagnostics = one step':<55} "
+                         f"{r['particle_steps_per_s']:>10.3g}  {r['roofline_fraction']:>5.2f}")
         lines.append(f"one peak-snapshot copy of all positions: {r['peak_snapshot_copy_s'] * 1e3:.2f}"
                      f" ms ({r['peak_snapshot_copy_s'] / step:.2f} step); one checkpoint write: "
                      f"{r['checkpoint_write_s'] * 1e3:.0f} ms ({r['checkpoint_write_s'] / step:.1f}"

@@ -100,3 +100,32 @@ def test_whole_run_differences_two_processes(monkeypatch, tmp_path):
     assert calls == [2, 50, 800]            # a warm-up process, then the pair
     assert w["whole_run_particle_steps_per_s"] == pytest.approx(1e8, rel=1e-9)
     assert w["steps"] == [50, 800]
+
+
+def test_ladder_loops_do_the_push_they_name():
+    """The partial loops of the 'what limits the speed' ladder do the work they are named for:
+    the push and the push with the CIC gather give the x and u of the plain numpy reference step
+    (tests/reference_impl.py: leapfrog with v = u / sqrt(1 + u^2)), the stream only kicks u. A
+    rung that skipped work would time less than it claims."""
+    from reference_impl import reference_step
+    rng = np.random.default_rng(8)
+    n, ng, length, dt = 3001, 32, 2.5, 0.05
+    x = rng.random(n) * length
+    u = rng.normal(0, 0.4, n)
+    e = rng.normal(0, 1.0, ng)
+    k = bench._ladder_kernels()
+    xg, ug = x.copy(), u.copy()
+    k["push_gather"](xg, ug, e, -0.3 * dt, dt, length, 2)
+    xr, ur, _ = reference_step(x.copy(), u.copy(), e, -0.3 * dt, dt, length, 1)
+    np.testing.assert_allclose(ug, ur, rtol=0, atol=1e-13)
+    np.testing.assert_allclose(xg, xr, rtol=0, atol=1e-12)
+    flat = np.full(ng, e[0])           # the push alone sees the uniform field e[0]
+    xp, up = x.copy(), u.copy()
+    k["push"](xp, up, flat, -0.3 * dt, dt, length, 2)
+    xr, ur, _ = reference_step(x.copy(), u.copy(), flat, -0.3 * dt, dt, length, 1)
+    np.testing.assert_allclose(up, ur, rtol=0, atol=1e-13)
+    np.testing.assert_allclose(xp, xr, rtol=0, atol=1e-12)
+    xs, us = x.copy(), u.copy()
+    k["stream"](xs, us, flat, -0.3 * dt, dt, length, 2)
+    np.testing.assert_array_equal(xs, x)
+    np.testing.assert_allclose(us, u - 0.3 * dt * e[0], rtol=0, atol=1e-15)
