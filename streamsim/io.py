@@ -540,10 +540,19 @@ def read_run(folder) -> RunData:
         if isinstance(raw, dict) and "error" not in raw:
             theory = Dispersion.from_dict(raw)
     profiles = read_profiles(folder / CONTINUUM_FILE)
+    extra = {}
+    if deck.method == "vlasov" and (folder / FILES["fields"]).exists():
+        dist = read_distributions(folder / FILES["fields"], names)
+        if dist is not None:
+            from .vlasov.grid import MomentumGrid
+            dist["grids"] = [MomentumGrid(u_min=lo, u_max=lo + du * f.shape[1],
+                                          cells=int(f.shape[1]), automatic=False)
+                             for lo, du, f in zip(dist["u_min"], dist["du"], dist["f"])]
+            extra["distribution"] = dist
     return RunData(deck=deck, names=names, length=deck.box.length, cells=cells,
                    dt=deck.time.dt, series=series, snapshots=snaps, phase_space=phase,
                    peak=parts["peak"], end=parts["end"], theory=theory,
-                   peak_density=profiles["peak"], end_density=profiles["end"])
+                   peak_density=profiles["peak"], end_density=profiles["end"], extra=extra)
 
 
 def update_summary(folder, entries: dict) -> None:

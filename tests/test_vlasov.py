@@ -283,6 +283,22 @@ def test_read_back_analysis_uses_the_continuum_density(small_run):
     assert again["coherence"]["k_cutoff"] == res.summary["coherence"]["k_cutoff"]
 
 
+def test_read_back_holds_f_for_the_phase_space_figure(small_run):
+    """A Vlasov folder read back (as `streamsim plot` and `analyze` read it) holds the f(x, u)
+    snapshots and momentum grids the run kept in memory, so the redrawn phase-space figure is
+    the continuum one, not an empty PIC scatter."""
+    from streamsim import io
+    out, res, _ = small_run
+    mem = res.data.extra["distribution"]
+    back = io.read_run(out).extra["distribution"]
+    np.testing.assert_array_equal(back["t"], mem["t"])
+    for s in range(2):
+        np.testing.assert_array_equal(back["f"][s], mem["f"][s])
+        assert back["grids"][s].cells == mem["grids"][s].cells
+        assert back["grids"][s].u_min == pytest.approx(mem["grids"][s].u_min, rel=1e-12)
+        assert back["grids"][s].u_max == pytest.approx(mem["grids"][s].u_max, rel=1e-12)
+
+
 def test_resume_is_bit_identical(tmp_path):
     full = run("runs/warm-pair-beams-vlasov.toml", out=tmp_path / "a", overrides=SMALL,
                analyze=False, threads=1)
