@@ -115,6 +115,18 @@ def _ladder_kernels():
 
     from .kernels import _ix
 
+    @nb.njit(inline="always")
+    def step(xj, uj, ej, qm_dt, dt, length, inv_len):
+        """The kernel's relativistic kick, drift and periodic wrap of one particle."""
+        un = uj + qm_dt * ej
+        gn = math.sqrt(1.0 + un * un)
+        r = 1.0 / (gn * (gn + 1.0))
+        xn = xj + un * (gn + 1.0) * r * dt
+        xn = xn - length * math.floor(xn * inv_len)
+        xn = xn + length if xn < 0.0 else xn
+        xn = xn - length if xn >= length else xn
+        return xn, un
+
     @nb.njit(parallel=True, boundscheck=False, error_model="numpy")
     def stream(x, u, e, qm_dt, dt, length, nchunks):
         n = x.size
@@ -138,15 +150,7 @@ def _ladder_kernels():
             hi = min(n, lo + chunk)
             for k in range(hi - lo):
                 j = _ix(lo + k)
-                un = u[j] + qm_dt * e[0]
-                gn = math.sqrt(1.0 + un * un)
-                r = 1.0 / (gn * (gn + 1.0))
-                xn = x[j] + un * (gn + 1.0) * r * dt
-                xn = xn - length * math.floor(xn * inv_len)
-                xn = xn + length if xn < 0.0 else xn
-                xn = xn - length if xn >= length else xn
-                u[j] = un
-                x[j] = xn
+                x[j], u[j] = step(x[j], u[j], e[0], qm_dt, dt, length, inv_len)
 
     @nb.njit(parallel=True, boundscheck=False, error_model="numpy")
     def push_gather(x, u, e, qm_dt, dt, length, nchunks):
@@ -170,15 +174,8 @@ def _ladder_kernels():
                 i = int(xg)
                 f = xg - i
                 ii = _ix(i)
-                un = u[j] + qm_dt * ((1.0 - f) * ee[ii] + f * ee[ii + _ix(1)])
-                gn = math.sqrt(1.0 + un * un)
-                r = 1.0 / (gn * (gn + 1.0))
-                xn = xj + un * (gn + 1.0) * r * dt
-                xn = xn - length * math.floor(xn * inv_len)
-                xn = xn + length if xn < 0.0 else xn
-                xn = xn - length if xn >= length else xn
-                u[j] = un
-                x[j] = xn
+                ej = (1.0 - f) * ee[ii] + f * ee[ii + _ix(1)]
+                x[j], u[j] = step(xj, u[j], ej, qm_dt, dt, length, inv_len)
 
     return {"stream": stream, "push": push, "push_gather": push_gather}
 
