@@ -172,12 +172,14 @@ def test_metrics_from_a_summary_follow_the_block_paths_and_tolerate_nulls():
     s = {"normalization": {"density_cm3": n}, "wall_s": 1.5,
          "energy": {"relative_error_max": 2e-4},
          "growth": {"mode": 8, "measured": 0.5, "measured_err": 0.01, "theory": 0.4, "ratio": 1.25,
-                    "growth_time_ns": 0.35, "growth_time_err_ns": None},
+                    "growth_time_ns": 0.35, "growth_time_err_ns": None, "method": "eigenmode"},
          "contrast": {"max": 3.0, "t_unity": 10.0, "t_unity_ns": float("nan")},
          "clumps": None, "coherence": {"frequency_cutoff_hz": 2.0e9}}
     m = metrics_from_summary(s)
     assert m["growth_mode"] == 8 and m["growth_measured"] == 0.5 and m["growth_ratio"] == 1.25
     assert m["growth_time_ns"] == 0.35 and m["growth_time_err_ns"] is None
+    assert m["growth_method"] == "eigenmode"          # a word, kept as it is
+    assert metrics_from_summary({"growth": {"method": 3.0}})["growth_method"] is None
     assert m["t_unity_ns"] is None and m["contrast_max"] == 3.0     # NaN is no number
     assert m["clump_size_median_cm"] is None and m["clump_count"] is None
     assert m["nu_c_hz"] == 2.0e9 and m["energy_error_max"] == 2e-4 and m["density_cm3"] == n
@@ -222,6 +224,12 @@ def test_an_invalid_point_is_recorded_and_the_rest_finish(tmp_path):
             ["failed", "completed"]
         assert np.isnan(f["runs/growth_measured"][0]) and f["runs/growth_measured"][1] > 0
         assert f["grid/growth_measured"].shape == (2, 1)
+        # the word saying which fit gave the rate rides along, in the table and on the grid
+        summary = json.loads((out / rows[1]["folder"] / "summary.json").read_text())
+        method = summary["growth"]["method"]
+        assert method and rows[1]["growth_method"] == method and rows[0]["growth_method"] == ""
+        grid = [v.decode() if isinstance(v, bytes) else v for v in f["grid/growth_method"][:, 0]]
+        assert grid == ["", method]
 
 
 def _completed(out: Path) -> list[Path]:

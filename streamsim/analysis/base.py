@@ -77,11 +77,13 @@ class BlockResult:
 
 @dataclass
 class ScanColumn:
-    """A scan-table column read from summary.json: ``path`` is the key path into it."""
+    """A scan-table column read from summary.json: ``path`` is the key path into it. A ``text``
+    column holds a word (a method's name), not a number."""
     name: str
     unit: str
     meaning: str
     path: tuple[str, ...]
+    text: bool = False
 
 
 @dataclass

@@ -47,7 +47,7 @@ from ..deck import (Deck, DeckError, InputError, apply_overrides, check_key_path
 
 __all__ = ["ScanError", "Axis", "Point", "Scan", "load_scan", "deck_hash", "normalised_hash",
            "FORBIDDEN_KEYS",
-           "RUN_COLUMNS", "METRICS", "METRIC_PATHS", "RESERVED_COLUMNS"]
+           "RUN_COLUMNS", "METRICS", "METRIC_PATHS", "RESERVED_COLUMNS", "TEXT_METRICS"]
 
 #: deck keys a scan sets itself and that an axis may not vary
 FORBIDDEN_KEYS = {"output.folder": "the scan gives every run its own folder",
@@ -83,6 +83,15 @@ def _metric_paths() -> dict[str, tuple[str, str, tuple]]:
 
 #: column -> (unit, meaning, summary.json path)
 METRIC_PATHS = _metric_paths()
+
+
+def _text_metrics() -> frozenset[str]:
+    from ..analysis import scan_columns
+    return frozenset(c.name for c in scan_columns() if c.text)
+
+
+#: the columns that hold a word (a method's name), not a number
+TEXT_METRICS = _text_metrics()
 #: column -> (unit, meaning); every number the summary offers that a scan is asked about
 METRICS = {k: (unit, meaning) for k, (unit, meaning, _) in METRIC_PATHS.items()}
 

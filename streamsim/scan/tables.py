@@ -14,7 +14,7 @@ import numpy as np
 
 from ..numbers import finite_or_none
 from .spec import METRIC_PATHS as _PATHS
-from .spec import METRICS, RUN_COLUMNS, Scan
+from .spec import METRICS, RUN_COLUMNS, TEXT_METRICS, Scan
 from .worker import ERROR_FILE, _read_json, read_state
 
 __all__ = ["METRICS", "RUN_COLUMNS", "collect_rows", "write_tables", "run_folder"]
@@ -34,7 +34,11 @@ def _get(d: Any, *path):
 
 def metrics_from_summary(s: dict) -> dict:
     """The METRICS of one summary.json (missing or null entries give None)."""
-    out = {k: finite_or_none(_get(s, *path)) for k, (_, _, path) in _PATHS.items()}
+    out = {k: finite_or_none(_get(s, *path)) for k, (_, _, path) in _PATHS.items()
+           if k not in TEXT_METRICS}
+    for k in TEXT_METRICS:
+        v = _get(s, *_PATHS[k][2])
+        out[k] = v if isinstance(v, str) else None
     mode = _get(s, "growth", "mode")
     out["growth_mode"] = int(mode) if isinstance(mode, int) and not isinstance(mode, bool) \
         else None
@@ -158,7 +162,8 @@ def _write_h5(scan: Scan, path: Path, rows: list[dict], cols: list[str]) -> None
             grid = f.create_group("grid")
             grid.attrs["dims"] = json.dumps([a.name for a in scan.axes] + ["replica"])
             for c in list(METRICS) + ["status"]:
-                if c == "status":
+                text = c == "status" or c in TEXT_METRICS
+                if text:
                     arr = np.full(shape, "", dtype=object)
                 else:
                     arr = np.full(shape, np.nan)
@@ -169,10 +174,11 @@ def _write_h5(scan: Scan, path: Path, rows: list[dict], cols: list[str]) -> None
                         arr[idx] = v
                     elif v is not None:
                         arr[idx] = v
-                if c == "status":
+                if text:
                     import h5py
-                    grid.create_dataset(c, data=arr.astype(str).astype(object),
-                                        dtype=h5py.string_dtype("utf-8"))
+                    d = grid.create_dataset(c, data=arr.astype(str).astype(object),
+                                            dtype=h5py.string_dtype("utf-8"))
                 else:
                     d = grid.create_dataset(c, data=arr)
+                if c in METRICS:
                     d.attrs["unit"] = METRICS[c][0]

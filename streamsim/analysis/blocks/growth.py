@@ -21,6 +21,8 @@ from ..noise_growth import TARGET_EFOLDS as _TARGET  # noqa: E402
 SCAN_COLUMNS = [
     ScanColumn("growth_mode", "", "box mode of the headline growth fit (largest theoretical "
                "growth)", ("growth", "mode")),
+    ScanColumn("growth_method", "", "which fit gave growth_measured (growth.method)",
+               ("growth", "method"), text=True),
     ScanColumn("growth_k", "omega_p/c", "its wavenumber", ("growth", "k")),
     ScanColumn("growth_measured", "omega_p", "measured field-amplitude growth rate",
                ("growth", "measured")),
