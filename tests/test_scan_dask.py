@@ -126,3 +126,27 @@ values = [1, 2, 3, 4, 5, 6]
     point = json.loads((out / row["folder"] / "point.json").read_text())
     assert point["status"] == "completed" and point["pid"] != killed
     assert all(float(r["growth_measured"]) > 0 for r in rows)
+
+
+def test_replicas_on_a_local_cluster_match_the_local_pool(tmp_path):
+    """`run --replicas` sends its seeds to Dask as a scan does; the runs are deterministic, so
+    the ensemble is the same number for number as on the local process pool."""
+    common = ["run", "--replicas", "2", "--quiet", "--threads", "1", "--set", "box.cells=64",
+              "--set", "time.end=6.0"]
+    local = cli(*common, "--out", str(tmp_path / "pool"), "--workers", "1")
+    assert local.returncode == 0, local.stderr
+    dask = cli(*common, "--out", str(tmp_path / "dask"), "--local-cluster", "--workers", "2")
+    assert dask.returncode == 0, dask.stderr
+    a = read_csv(tmp_path / "pool" / "replicas.csv")
+    b = read_csv(tmp_path / "dask" / "replicas.csv")
+    assert [r["random_seed"] for r in b] == ["1", "2"]
+    for ra, rb in zip(a, b):
+        assert rb["status"] == "completed"
+        for key in ("growth_measured", "growth_measured_err", "growth_method", "t_unity_ns"):
+            assert ra[key] == rb[key], key
+
+
+def test_executor_flags_without_replicas_are_refused(tmp_path):
+    proc = cli("run", "--local-cluster", "--out", str(tmp_path / "x"))
+    assert proc.returncode == 2
+    assert "--replicas" in proc.stderr and len(proc.stderr.strip().splitlines()) == 1

@@ -1,11 +1,11 @@
 """`streamsim run [DECK] [--out DIR] [--set k=v ...] [--quiet] [--resume [RUN_DIR]]
-[--replicas R]`."""
+[--replicas R [--workers N] [--scheduler ADDRESS | --local-cluster]]`."""
 from __future__ import annotations
 
 import sys
 from pathlib import Path
 
-from streamsim.cli.common import add_deck_arguments, error, warn
+from streamsim.cli.common import add_deck_arguments, add_executor_arguments, error, warn
 from streamsim.deck import DeckError, load_deck
 
 HELP = "run a deck (none: the built-in symmetric pair-beam demo) and analyse it"
@@ -33,6 +33,8 @@ def add_arguments(p) -> None:
                         "mean +- standard error of the fastest growth rate and of t_unity_ns "
                         "(every replica in replicas.csv; folder: --out, else the deck's folder "
                         "+ '-replicas')")
+    # where the replicas run (as for a scan; only with --replicas)
+    add_executor_arguments(p)
 
 
 def main(args) -> int:
@@ -56,6 +58,12 @@ def main(args) -> int:
         return 2
     if args.replicas is not None:
         return _replicas(args, deck, deck_src)
+    for flag, given in (("--workers", args.workers is not None), ("--scheduler", args.scheduler),
+                        ("--local-cluster", args.local_cluster)):
+        if given:
+            error("argument", f"{flag} places the runs of --replicas R; a single run uses "
+                              "--threads")
+            return 2
     if args.resume and folder is None:
         folder = deck.output.folder
     from streamsim.pipeline import Interrupted, NumericalError, run
@@ -83,7 +91,7 @@ def main(args) -> int:
 
 def _replicas(args, deck, deck_src) -> int:
     from streamsim import io
-    from streamsim.scan import ScanError, ScanSetupError
+    from streamsim.scan import ScanError, ScanSetupError, SchedulerError
     from streamsim.scan.replicas import run_replicas
     if args.replicas < 2:
         error("argument", f"--replicas must be >= 2 for an error bar, got {args.replicas}")
@@ -94,13 +102,17 @@ def _replicas(args, deck, deck_src) -> int:
     out = args.out or f"{deck.output.folder}-replicas"
     try:
         res = run_replicas(deck_src, args.overrides, args.replicas, out, threads=args.threads,
-                           quiet=args.quiet, resume=bool(args.resume))
+                           quiet=args.quiet, resume=bool(args.resume), workers=args.workers,
+                           scheduler=args.scheduler, local_cluster=args.local_cluster)
     except ScanError as ex:
         error("deck", str(ex))
         return 2
     except ScanSetupError as ex:
         error("argument", str(ex))
         return 2
+    except SchedulerError as ex:
+        error("dask", str(ex))
+        return 4
     except io.OutputError as ex:
         error("output", str(ex))
         return 4

@@ -73,15 +73,19 @@ def _read(path: Path) -> dict:
 
 def run_replicas(deck_src: str | None, overrides: list[str], replicas: int, out: str | Path, *,
                  workers: int | None = None, threads: int | None = None, quiet: bool = True,
-                 resume: bool = False) -> ReplicaResult:
+                 resume: bool = False, scheduler: str | None = None,
+                 local_cluster: bool = False) -> ReplicaResult:
     """Run ``replicas`` seeds of a deck (``deck_src`` None: the built-in default) into ``out``
-    and write replicas.csv / replicas.json. Raises ScanError / ScanSetupError like a scan."""
+    and write replicas.csv / replicas.json, on the local pool or, as a scan does, on a Dask
+    ``scheduler`` or a ``local_cluster``. Raises ScanError / ScanSetupError / SchedulerError
+    like a scan."""
     raw = {"replicas": int(replicas), "set": list(overrides or [])}
     if deck_src is not None:
         raw["base"] = str(Path(deck_src).resolve())
     scan = load_scan(raw)
     res = run_scan(scan, out, workers=workers, threads=threads, progress=None if not quiet
-                   else False, quiet=quiet, figures=False, resume=resume)
+                   else False, quiet=quiet, figures=False, resume=resume, scheduler=scheduler,
+                   local_cluster=local_cluster)
     out = Path(out)
     rows, theory = [], None
     for p, r in zip(scan.points, res.rows):
