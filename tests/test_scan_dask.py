@@ -131,8 +131,9 @@ values = [1, 2, 3, 4, 5, 6]
 def test_replicas_on_a_local_cluster_match_the_local_pool(tmp_path):
     """`run --replicas` sends its seeds to Dask as a scan does; the runs are deterministic, so
     the ensemble is the same number for number as on the local process pool."""
-    common = ["run", "--replicas", "2", "--quiet", "--threads", "1", "--set", "box.cells=64",
-              "--set", "time.end=6.0"]
+    sets = TINY + ['species.electrons.loading="random"', 'species.positrons.loading="random"']
+    common = ["run", "--replicas", "2", "--quiet", "--threads", "1",
+              *sum((["--set", o] for o in sets), [])]
     local = cli(*common, "--out", str(tmp_path / "pool"), "--workers", "1")
     assert local.returncode == 0, local.stderr
     dask = cli(*common, "--out", str(tmp_path / "dask"), "--local-cluster", "--workers", "2")
@@ -140,6 +141,7 @@ def test_replicas_on_a_local_cluster_match_the_local_pool(tmp_path):
     a = read_csv(tmp_path / "pool" / "replicas.csv")
     b = read_csv(tmp_path / "dask" / "replicas.csv")
     assert [r["random_seed"] for r in b] == ["1", "2"]
+    assert a[0]["t_unity_ns"] != a[1]["t_unity_ns"]       # random loading: two different runs
     for ra, rb in zip(a, b):
         assert rb["status"] == "completed"
         for key in ("growth_measured", "growth_measured_err", "growth_method", "t_unity_ns"):
