@@ -280,6 +280,22 @@ def test_resume_after_an_interrupt_runs_only_the_missing_points(tmp_path):
     assert len({r["hash"] for r in rows}) == 5 and len(_completed(out)) == 5
 
 
+def test_an_interrupt_swallowed_by_a_finalizer_is_not_lost():
+    """Python cannot raise KeyboardInterrupt out of a finalizer ("Exception ignored in ..."): a
+    Ctrl-C that lands there would be lost and the scan would run on. The scan remembers it and
+    raises it again at its next check; the default handler is back afterwards."""
+    from streamsim.scan.runner import _Interrupts
+    with _Interrupts() as interrupts:
+        try:                                    # what a finalizer does with the exception
+            os.kill(os.getpid(), signal.SIGINT)
+            time.sleep(1.0)
+        except KeyboardInterrupt:
+            pass
+        with pytest.raises(KeyboardInterrupt):
+            interrupts.check()
+    assert signal.getsignal(signal.SIGINT) is signal.default_int_handler
+
+
 def test_rerun_without_resume_is_refused_and_resume_skips_everything(tmp_path):
     path = write_scan(tmp_path, '[[axis]]\nkey = "units.density_cm3"\nvalues = [1.0e9]\n')
     out = tmp_path / "out"

@@ -31,6 +31,36 @@ from .worker import cores_available, init_pool_worker, read_state, run_point, wr
 
 __all__ = ["ScanResult", "run_scan", "default_out", "ScanSetupError", "SchedulerError"]
 
+class _Interrupts:
+    """SIGINT while a scan runs: KeyboardInterrupt as Python raises it, and remembered, so that
+    an interrupt swallowed by a finalizer that happened to run at that moment ("Exception
+    ignored in ...: KeyboardInterrupt") is raised again at the next :meth:`check` instead of
+    being lost. Only the main thread installs it, and only over Python's default handler."""
+
+    def __init__(self):
+        self.caught = False
+        self._old = None
+
+    def __enter__(self):
+        if threading.current_thread() is threading.main_thread() and \
+                signal.getsignal(signal.SIGINT) is signal.default_int_handler:
+            self._old = signal.signal(signal.SIGINT, self._handle)
+        return self
+
+    def _handle(self, signum, frame):
+        self.caught = True
+        raise KeyboardInterrupt
+
+    def check(self) -> None:
+        if self.caught:
+            raise KeyboardInterrupt
+
+    def __exit__(self, *exc):
+        if self._old is not None:
+            signal.signal(signal.SIGINT, self._old)
+        return False
+
+
 MANIFEST = "manifest.json"
 #: a pool whose worker processes die is rebuilt at most this many times
 POOL_REBUILDS = 3
@@ -152,13 +182,16 @@ def run_scan(scan: Scan | str | Path, out: str | Path | None = None, *, workers:
 
     tracker = _Tracker(scan, out, len(todo), progress, quiet)
     try:
-        if todo:
-            if scheduler or local_cluster:
-                result.executor = _run_dask(todo, out, scan, tracker, scheduler=scheduler,
-                                            n_workers=n_local, threads=threads)
-            else:
-                per_run = threads or max(1, cores // n_local)
-                result.executor = _run_pool(todo, out, scan, tracker, n_local, per_run)
+        with _Interrupts() as interrupts:
+            if todo:
+                if scheduler or local_cluster:
+                    result.executor = _run_dask(todo, out, scan, tracker, interrupts,
+                                                scheduler=scheduler, n_workers=n_local,
+                                                threads=threads)
+                else:
+                    per_run = threads or max(1, cores // n_local)
+                    result.executor = _run_pool(todo, out, scan, tracker, interrupts, n_local,
+                                                per_run)
     except KeyboardInterrupt:
         result.interrupted = True
     finally:
@@ -238,9 +271,9 @@ def _pool_worker_setup(threads: int, parent: int) -> None:
     threading.Thread(target=watch, daemon=True, name="streamsim-parent-watch").start()
 
 
-def _run_pool(todo, out, scan, tracker, n_workers, threads) -> str:
+def _run_pool(todo, out, scan, tracker, interrupts, n_workers, threads) -> str:
     import multiprocessing as mp
-    from concurrent.futures import ProcessPoolExecutor, as_completed
+    from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
     from concurrent.futures.process import BrokenProcessPool
 
     ctx = mp.get_context("spawn")
@@ -255,16 +288,21 @@ def _run_pool(todo, out, scan, tracker, n_workers, threads) -> str:
         try:
             futs = {ex.submit(run_point, t): run for run, t in left.items()}
             try:
-                for fut in as_completed(futs):
-                    run = futs[fut]
-                    try:
-                        rec = fut.result()
-                    except BrokenProcessPool:
-                        broken = True
-                        continue
-                    if rec.get("status") != "interrupted":
-                        left.pop(run, None)
-                    tracker.record(rec)
+                pending = set(futs)
+                while pending:
+                    # short waits, so that a remembered interrupt is acted on within 0.25 s
+                    done, pending = wait(pending, timeout=0.25, return_when=FIRST_COMPLETED)
+                    for fut in done:
+                        run = futs[fut]
+                        try:
+                            rec = fut.result()
+                        except BrokenProcessPool:
+                            broken = True
+                            continue
+                        if rec.get("status") != "interrupted":
+                            left.pop(run, None)
+                        tracker.record(rec)
+                    interrupts.check()
             except KeyboardInterrupt:
                 for pid in list(getattr(ex, "_processes", {}) or {}):
                     try:
@@ -300,7 +338,7 @@ def _worker_version():
     return streamsim.__version__
 
 
-def _run_dask(todo, out, scan, tracker, *, scheduler, n_workers, threads) -> str:
+def _run_dask(todo, out, scan, tracker, interrupts, *, scheduler, n_workers, threads) -> str:
     try:
         import distributed
         from distributed import Client, LocalCluster
@@ -354,6 +392,7 @@ def _run_dask(todo, out, scan, tracker, *, scheduler, n_workers, threads) -> str
                     write_failure(Path(t["folder"]), t["hash"], t["run"], "worker", msg)
                     rec = {"status": "failed", "error": msg}
                 tracker.record(rec)
+                interrupts.check()
         except KeyboardInterrupt:
             client.cancel(list(futs))
             raise
