@@ -31,6 +31,7 @@ from .worker import cores_available, init_pool_worker, read_state, run_point, wr
 
 __all__ = ["ScanResult", "run_scan", "default_out", "ScanSetupError", "SchedulerError"]
 
+
 class _Interrupts:
     """SIGINT while a scan runs: KeyboardInterrupt as Python raises it, and remembered, so that
     an interrupt swallowed by a finalizer that happened to run at that moment ("Exception
