@@ -34,13 +34,17 @@ def add_executor_arguments(parser) -> None:
                        help="run on a dask.distributed LocalCluster on 127.0.0.1")
 
 
-def run_scan_or_exit(**kwargs):
-    """(result, None) of :func:`streamsim.scan.run_scan`, or (None, exit status) after one
-    line: bad arguments 2, scheduler or output failures 4."""
+def run_scan_or_exit(call=None, **kwargs):
+    """(result, None) of ``call(**kwargs)`` (default :func:`streamsim.scan.run_scan`; anything
+    built on it, such as :func:`streamsim.scan.replicas.run_replicas`), or (None, exit status)
+    after one line: a bad deck or bad arguments 2, scheduler or output failures 4."""
     from streamsim.io import OutputError
-    from streamsim.scan import ScanSetupError, SchedulerError, run_scan
+    from streamsim.scan import ScanError, ScanSetupError, SchedulerError, run_scan
     try:
-        return run_scan(**kwargs), None
+        return (call or run_scan)(**kwargs), None
+    except ScanError as ex:
+        error("deck", str(ex))
+        return None, 2
     except ScanSetupError as ex:
         error("argument", str(ex))
         return None, 2

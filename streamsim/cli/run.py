@@ -5,7 +5,8 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from streamsim.cli.common import add_deck_arguments, add_executor_arguments, error, warn
+from streamsim.cli.common import (add_deck_arguments, add_executor_arguments, error,
+                                  run_scan_or_exit, warn)
 from streamsim.deck import DeckError, load_deck
 
 HELP = "run a deck (none: the built-in symmetric pair-beam demo) and analyse it"
@@ -90,8 +91,6 @@ def main(args) -> int:
 
 
 def _replicas(args, deck, deck_src) -> int:
-    from streamsim import io
-    from streamsim.scan import ScanError, ScanSetupError, SchedulerError
     from streamsim.scan.replicas import run_replicas
     if args.replicas < 2:
         error("argument", f"--replicas must be >= 2 for an error bar, got {args.replicas}")
@@ -100,22 +99,12 @@ def _replicas(args, deck, deck_src) -> int:
         error("argument", "--replicas continues its folder with --resume (no RUN_DIR)")
         return 2
     out = args.out or f"{deck.output.folder}-replicas"
-    try:
-        res = run_replicas(deck_src, args.overrides, args.replicas, out, threads=args.threads,
-                           quiet=args.quiet, resume=bool(args.resume), workers=args.workers,
-                           scheduler=args.scheduler, local_cluster=args.local_cluster)
-    except ScanError as ex:
-        error("deck", str(ex))
-        return 2
-    except ScanSetupError as ex:
-        error("argument", str(ex))
-        return 2
-    except SchedulerError as ex:
-        error("dask", str(ex))
-        return 4
-    except io.OutputError as ex:
-        error("output", str(ex))
-        return 4
+    res, rc = run_scan_or_exit(run_replicas, deck_src=deck_src, overrides=args.overrides,
+                               replicas=args.replicas, out=out, threads=args.threads,
+                               quiet=args.quiet, resume=bool(args.resume), workers=args.workers,
+                               scheduler=args.scheduler, local_cluster=args.local_cluster)
+    if res is None:
+        return rc
     for w in res.warnings:
         warn(w)
     if not args.quiet:
