@@ -352,8 +352,10 @@ def _write_distributions(meshes, dist: dict, i: int, names, dx: float, si: dict)
 
 
 def read_distributions(path, names: list[str]) -> dict | None:
-    """{"t", "f": [per species (n_f, momentum_cells, cells)], "u_min": [..], "du": [..]} from the
-    ``f_<species>`` meshes of a fields.h5, or None when it has none (a PIC run)."""
+    """{"t", "f": [per species (n_f, momentum_cells, cells)], "u_min": [..], "du": [..],
+    "grids": [MomentumGrid]} from the ``f_<species>`` meshes of a fields.h5 (the shape the run's
+    own f snapshots have), or None when it has none (a PIC run)."""
+    from .vlasov.grid import MomentumGrid
     with h5py.File(path, "r") as f:
         its = sorted(f["data"], key=int)
         t, fs, lo, du = [], {n: [] for n in names}, {}, {}
@@ -369,8 +371,11 @@ def read_distributions(path, names: list[str]) -> dict | None:
                 du[n] = float(d.attrs["gridSpacing"][0])
     if not t:
         return None
-    return {"t": np.array(t), "f": [np.array(fs[n]) for n in names],
-            "u_min": [lo[n] for n in names], "du": [du[n] for n in names]}
+    f = [np.array(fs[n]) for n in names]
+    grids = [MomentumGrid(u_min=lo[n], u_max=lo[n] + du[n] * fn.shape[1], cells=int(fn.shape[1]),
+                          automatic=False) for n, fn in zip(names, f)]
+    return {"t": np.array(t), "f": f, "u_min": [lo[n] for n in names],
+            "du": [du[n] for n in names], "grids": grids}
 
 
 def write_profiles(path, profiles: dict[str, DensityProfile | None]) -> None:
@@ -544,10 +549,6 @@ def read_run(folder) -> RunData:
     if deck.method == "vlasov" and (folder / FILES["fields"]).exists():
         dist = read_distributions(folder / FILES["fields"], names)
         if dist is not None:
-            from .vlasov.grid import MomentumGrid
-            dist["grids"] = [MomentumGrid(u_min=lo, u_max=lo + du * f.shape[1],
-                                          cells=int(f.shape[1]), automatic=False)
-                             for lo, du, f in zip(dist["u_min"], dist["du"], dist["f"])]
             extra["distribution"] = dist
     return RunData(deck=deck, names=names, length=deck.box.length, cells=cells,
                    dt=deck.time.dt, series=series, snapshots=snaps, phase_space=phase,
