@@ -307,4 +307,9 @@ def standard_handlers(sim) -> list[Handler]:
     diag = stride(o.diagnostics_interval, dt)
     return [PeakSnapshot(sim, diag), FieldSnapshots(sim, stride(o.fields_interval, dt)),
             PhaseSpaceSampler(sim, stride(o.phase_space_interval, dt)),
-            SeriesRecorder(sim, diag)]
+            SeriesRecorder(sim, diag), _emission(sim, stride(o.fields_interval, dt))]
+
+
+def _emission(sim, every: int) -> Handler:
+    from .emission_snapshots import EmissionSnapshots   # its own module (one handler)
+    return EmissionSnapshots(sim, every)

@@ -58,9 +58,14 @@ def estimate(deck: Deck) -> dict[str, int]:
     sub = sum(min(o.phase_space_particles, n) for n in counts)
     phase = _records(deck, o.phase_space_interval) * (2 * F8 * sub + F8)
     out = {"particles": particles, "time_series": series, "field_snapshots": fields,
-           "phase_space": phase}
+           "phase_space": phase, "emission_snapshots": _emission_bytes(deck)}
     out["total"] = sum(out.values())
     return out
+
+
+def _emission_bytes(deck: Deck) -> int:
+    from .emission_snapshots import bytes_needed   # the emission handler's own count
+    return bytes_needed(deck)
 
 
 def memory_available() -> int | None:

@@ -513,6 +513,7 @@ def _finish_run(sim, handlers, deck, folder, dispersion, theory, findings, warni
         series = rec.series()
         if "drive" in by_name:
             series.arrays.update(by_name["drive"].series_arrays())
+        series.arrays.update(by_name["emission"].series_arrays())
         end = ParticleSnapshot(t=float(sim.step * sim.dt),
                                x={n: x.copy() for n, x in zip(sim.names, sim.x)},
                                weight={n: float(w) for n, w in zip(sim.names, sim.weights)})
