@@ -156,7 +156,8 @@ def compute(ctx: Context) -> BlockResult:
                 "criterion": f"window >= {_em.MIN_SPAN:g} x t0 long and >= {_em.MIN_RECORDS} "
                              "records"})
     head = {"window": win, "records": {"count": int(n), "interval": rec_dt,
-                                      "interval_ns": _ns(rec_dt, to_ns), "source": how},
+                                      "interval_ns": _ns(rec_dt, to_ns), "source": how,
+                                      "nodes": int(nodes)},
             "bulk_gamma": gam_const, "bulk_gamma_source": gam_how}
     head.update(_window_cutoff(F2, dens, floors, win_idx, names, L, modes, opt, nu, n_cm3))
     head.update(_window_clumps(widths_by_record, win_idx, n_cm3))
@@ -370,6 +371,9 @@ def _draw(res: BlockResult, data):
     for j, name in enumerate(data.names):
         a3.semilogy(s.t, np.where(cm[:, j] > 0, cm[:, j], np.nan), lw=1, label=name)
     a3.axhline(1.0, color="0.5", ls=":", lw=1)
+    top = np.nanmax(cm[:, :len(data.names)]) if cm.size else 1.0
+    if np.isfinite(top) and top > 0:
+        a3.set_ylim(max(a3.get_ylim()[0], 1e-4 * top), 2 * top)
     a3.set_ylabel("max delta n/n")
     a3.set_xlabel("t [1/w_p]")
     a3.legend(fontsize=7)
