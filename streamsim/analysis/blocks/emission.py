@@ -6,9 +6,9 @@ window, replica). The coherence and clumps blocks take their headline numbers fr
 
 Records: a particle run's emission records (``emission_*`` of the time series: |F_s(k)|^2 of all
 macro-particles and the fine CIC density, :mod:`streamsim.emission_snapshots`); a continuum
-(Vlasov) run's grid densities at the field cadence (form factor of the density, floor 0); a
-particle run without emission records (older run folders): the field-cadence grid densities
-(floor 1/N).
+(Vlasov) run's grid densities at the field cadence (form factor of the density, floor 0). A
+particle run folder without emission records (written before they existed) has no window: the
+coherence and clumps headlines then stay at the peak snapshot and say so.
 
 Summary key: ``emission``. Tables: ``emission_series``, ``form_factor_window``,
 ``emission_clumps``. Figure: ``emission.png``.
@@ -53,14 +53,13 @@ def _records(data):
     sn = data.snapshots
     dens = np.asarray(sn.density, float)
     continuum = data.peak is None and getattr(data, "peak_density", None) is not None
-    if continuum:
-        floors = np.zeros(len(data.names))
-        how = "continuum density at the field cadence (form factor of the density, floor 0)"
-    else:
-        floors = np.array([1.0 / max(1, sp.particles_per_cell * data.cells)
-                           for sp in data.deck.species])
-        how = ("field-cadence grid density (no emission records in this run: the form factor "
-               "is that of the grid density, resolved only up to the grid Nyquist k)")
+    if not continuum:   # a particle run folder from before the emission records
+        S = len(data.names)
+        return (np.zeros(0), None, np.zeros((0, S, data.cells)), np.zeros(S), data.cells,
+                "no emission records in this run (a run folder written before they were "
+                "recorded): the headline numbers stay at the peak snapshot; rerun to get them")
+    floors = np.zeros(len(data.names))
+    how = "continuum density at the field cadence (form factor of the density, floor 0)"
     return np.asarray(sn.t, float), None, dens, floors, data.cells, how
 
 
@@ -175,7 +174,7 @@ def compute(ctx: Context) -> BlockResult:
     head["replica_note"] = ("single run: the replica term is filled by `streamsim run "
                             "--replicas N` (the scatter over seeds)")
     warnings = []
-    if win["t0"] is not None and not win["long_enough"]:
+    if n and win["t0"] is not None and not win["long_enough"]:
         need = win["end_needed"]
         warnings.append(f"the saturated window [{win['t0']:.4g}, {win['t1']:.4g}] /w_p is too "
                         f"short for emission numbers ({win['records']} records; "
@@ -318,8 +317,8 @@ def _window_clumps(widths_by_record, idx, n_cm3) -> dict:
 
 def _lines(head: dict) -> list[str]:
     w = head["window"]
-    if w.get("t0") is None:
-        return ["emission: no records"]
+    if w.get("t0") is None or not head["records"]["count"]:
+        return [f"emission: {head['records']['source']}"]
     out = [f"emission window [{w['t0']:.4g}, {w['t1']:.4g}] /w_p = "
            f"[{fmt(w.get('t0_ns'), '.3g')}, {fmt(w.get('t1_ns'), '.3g')}] ns "
            f"({w['records']} records, {w['how']})"]
