@@ -101,6 +101,7 @@ def table(study: dict, res, out) -> str:
         extra = (f"; order {_f(o['order'], '.2g')}, Richardson {_f(o['extrapolated'])}"
                  if o["order"] is not None else "")
         lines.append(f"  {name} [{o['unit']}]  {vals}  change {_f(o['change'], '.3g')}"
-                     f"{extra}  -> {o['verdict']}")
+                     f"{extra}  -> {o['verdict']}"
+                     + (f" ({o['reason']})" if o.get("reason") else ""))
     lines.append(f"  converge.csv, converge.json, converge.png in {out}")
     return "\n".join(lines)

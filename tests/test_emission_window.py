@@ -1,0 +1,82 @@
+"""Emission numbers over the saturated phase: the window and its statistics, the error budget,
+the converge verdict with a Richardson gap, and the headline's independence of time.end."""
+import math
+
+import numpy as np
+import pytest
+
+from streamsim.analysis import emission as em
+from streamsim.scan import converge
+
+
+# -- the window and its statistics on a synthetic series ---------------------------------------
+def test_synthetic_plateau_gives_window_mean_and_spread_back():
+    # prescribed series: exponential growth 1e-3 e^{0.2 t} up to the plateau, then a plateau at
+    # 2.0 with Gaussian scatter of standard deviation 0.3 (seeded); t_unity = ln(1e3)/0.2
+    rng = np.random.default_rng(11)
+    t = np.arange(0.0, 200.0, 0.25)
+    grow = 1e-3 * np.exp(0.2 * t)
+    t_sat = math.log(2.0 / 1e-3) / 0.2
+    y = np.where(t < t_sat, grow, 2.0 + 0.3 * rng.standard_normal(t.size))
+    t_unity = math.log(1e3) / 0.2
+    w = em.saturated_window(t, y, t_unity)
+    assert w["t0"] == pytest.approx(t_unity) and w["t1"] == pytest.approx(t[-1])
+    assert w["long_enough"]
+    st = em.window_stats(t, y, t_sat, w["t1"])
+    n = st["n"]
+    # mean of n Gaussian draws: within 4 standard errors 0.3/sqrt(n) of 2.0 (textbook sampling)
+    assert abs(st["mean"] - 2.0) < 4 * 0.3 / math.sqrt(n)
+    # sample standard deviation: relative standard error 1/sqrt(2(n-1)) (textbook, normal data)
+    assert abs(st["spread"] - 0.3) < 4 * 0.3 / math.sqrt(2 * (n - 1))
+    # the block jackknife of the mean of independent draws estimates 0.3/sqrt(n); with 4 blocks
+    # it has 3 degrees of freedom, so allow a factor 3 either way (chi-square, 3 dof, ~99%)
+    assert 0.3 / math.sqrt(n) / 3 < st["err"] < 3 * 0.3 / math.sqrt(n)
+
+
+def test_window_without_unity_starts_at_half_the_largest_contrast_and_says_when_too_short():
+    t = np.linspace(0.0, 30.0, 301)
+    y = 0.4 * (1 - np.exp(-t / 5.0))            # never reaches 1; half of 0.4*(1-e^-6) ...
+    w = em.saturated_window(t, y, None)
+    half = 0.5 * y.max()
+    assert w["t0"] == pytest.approx(t[np.argmax(y >= half)])
+    assert "linear phase" in w["how"]
+    short = em.saturated_window(t[:60], y[:60], 5.0)      # ends at 5.9 < 1.5 x 5
+    assert not short["long_enough"] and short["end_needed"] == pytest.approx(7.5)
+
+
+def test_budget_is_the_quadrature_sum_and_names_the_dominant_term():
+    b = em.budget({"mode_to_mode": 3.0, "window": 4.0, "replica": None})
+    assert b["combined"] == pytest.approx(5.0) and b["dominant"] == "window"
+    assert b["terms"]["replica"] is None
+
+
+def test_block_jackknife_of_the_mean_matches_the_textbook_formula():
+    # for the mean, the delete-one-block jackknife equals the standard error of the block means
+    # s_B / sqrt(B) (Efron & Tibshirani 1993, ch. 11: jackknife of the mean is exact)
+    v = np.array([1.0, 2.0, 4.0, 7.0, 3.0, 5.0, 6.0, 2.0])
+    blocks = v.reshape(4, 2).mean(axis=1)
+    want = blocks.std(ddof=1) / 2.0
+    got = em.block_jackknife(v.size, lambda idx: float(v[idx].mean()), blocks=4)
+    assert got == pytest.approx(want, rel=1e-12)
+
+
+# -- converge verdicts --------------------------------------------------------------------------
+def test_a_25_percent_richardson_gap_is_not_converged():
+    # t_unity 0.220 -> 0.254 -> 0.279 (factor 2): p = ln(0.034/0.025)/ln 2 = 0.444 and the
+    # Richardson estimate 0.279 + 0.025/(2^p - 1) = 0.348 (Richardson 1911; Roache 1998, ch. 5),
+    # 25% above the finest level; the last change (9%) alone is under the 10% tolerance
+    levels = [{"value": v, "err": None} for v in (0.220, 0.254, 0.279)]
+    r = converge.assess_output(levels, 2.0, tolerance=0.10)
+    p = math.log(0.034 / 0.025) / math.log(2.0)
+    assert r["extrapolated"] == pytest.approx(0.279 + 0.025 / (2 ** p - 1), rel=1e-9)
+    assert r["extrapolated"] == pytest.approx(0.348, abs=0.002)
+    assert r["verdict"] == "not converged" and "Richardson gap" in r["reason"]
+    assert r["error_terms"]["richardson_gap"] == pytest.approx(r["extrapolated"] - 0.279)
+
+
+def test_a_level_without_value_or_an_error_above_the_value_is_not_converged():
+    lv = [{"value": None, "err": None}, {"value": 70.0, "err": 5.0}, {"value": 72.0, "err": 5.0}]
+    assert converge.assess_output(lv, 2.0)["verdict"] == "not converged"
+    lv = [{"value": 72.0, "err": 87.0}, {"value": 60.0, "err": 87.0}, {"value": 72.0, "err": 87.0}]
+    r = converge.assess_output(lv, 2.0)
+    assert r["verdict"] == "not converged" and "not smaller than its value" in r["reason"]
