@@ -80,3 +80,30 @@ def test_a_level_without_value_or_an_error_above_the_value_is_not_converged():
     lv = [{"value": 72.0, "err": 87.0}, {"value": 60.0, "err": 87.0}, {"value": 72.0, "err": 87.0}]
     r = converge.assess_output(lv, 2.0)
     assert r["verdict"] == "not converged" and "not smaller than its value" in r["reason"]
+
+
+# -- formation time from a stated level ---------------------------------------------------------
+def test_formation_time_from_a_level_predicts_a_run_seeded_100_times_lower():
+    # Exponential growth (common practice, linear theory): a perturbation at level L grows as
+    # L e^{gamma t} with gamma the fastest mode's linear rate, so from L to the measured start
+    # level L0 takes ln(L0/L)/gamma and everything after L0 is the measured run:
+    #     t_L = t_unity + ln(L0 / L) / gamma.
+    # Check: run A (seed 1e-3) extrapolated to L = L0/100 must give the t_unity that run B,
+    # seeded 100 times lower (1e-5) on the same quiet start, measures.
+    import streamsim
+    from conftest import pair_deck
+    from streamsim.deck import load_deck
+
+    def run(amplitude, sets=()):
+        return streamsim.run(load_deck(pair_deck(cells=128, ppc=64, end=55.0,
+                                                 amplitude=amplitude), list(sets)),
+                             write=False, quiet=True, warn=lambda m: None).summary
+    a = run(1e-3)
+    level = a["contrast"]["initial_level"] / 100.0
+    a2 = run(1e-3, [f"analysis.initial_level={level!r}"])
+    c = a2["contrast"]
+    assert "fastest mode" in c["extrapolation_rate_source"]
+    assert c["extrapolation_rate"] == a2["growth"]["measured"]
+    b = run(1e-5)["contrast"]
+    err = math.hypot(c["t_unity_for_level_err"], 0.05)      # + the diagnostics cadence dt
+    assert abs(c["t_unity_for_level"] - b["t_unity"]) <= 2 * err
