@@ -107,3 +107,34 @@ def test_formation_time_from_a_level_predicts_a_run_seeded_100_times_lower():
     b = run(1e-5)["contrast"]
     err = math.hypot(c["t_unity_for_level_err"], 0.05)      # + the diagnostics cadence dt
     assert abs(c["t_unity_for_level"] - b["t_unity"]) <= 2 * err
+
+
+# -- the headline does not depend on when the run stopped ---------------------------------------
+def test_headline_agrees_whether_the_run_stops_at_1p5_or_3_times_t_unity():
+    # warm band-seeded pair beams (theta = 2e-3, every unstable mode seeded at 1e-2): t_unity is
+    # 25.8 /w_p. The window-averaged nu_c and clump size of a run ending at 1.5 t_unity and of
+    # one ending at 3 t_unity must agree within their combined errors (the errors cover the
+    # evolution over the window: common practice for a plateau average, see the module
+    # streamsim.analysis.emission); the single maximum-contrast instant is kept as secondary.
+    import streamsim
+    from conftest import pair_deck
+    from streamsim.deck import load_deck
+
+    def run(end):
+        raw = pair_deck(cells=128, ppc=128, end=end, theta=2e-3, amplitude=1e-2)
+        return streamsim.run(load_deck(raw, ['perturbation.modes="band"', "time.dt='auto'"]),
+                             write=False, quiet=True, warn=lambda m: None).summary
+    short = run(38.8)
+    tu = short["contrast"]["t_unity"]
+    assert 1.45 * tu <= 38.8 <= 1.55 * tu
+    long_ = run(3.0 * tu)
+    for s in (short, long_):
+        assert s["coherence"]["snapshot"] == "window" and s["emission"]["window"]["long_enough"]
+        assert s["coherence"]["window"]["t0"] == pytest.approx(s["contrast"]["t_unity"])
+    assert long_["contrast"]["t_unity"] == pytest.approx(tu, abs=0.1)    # dt "auto" follows end
+    a, b = short["coherence"], long_["coherence"]
+    assert abs(a["frequency_cutoff_hz"] - b["frequency_cutoff_hz"]) <= math.hypot(
+        a["frequency_cutoff_hz_err"], b["frequency_cutoff_hz_err"])
+    a, b = short["clumps"], long_["clumps"]
+    assert abs(a["size_median_cm"] - b["size_median_cm"]) <= math.hypot(
+        a["size_median_err_cm"], b["size_median_err_cm"])
