@@ -138,3 +138,24 @@ def test_headline_agrees_whether_the_run_stops_at_1p5_or_3_times_t_unity():
     a, b = short["clumps"], long_["clumps"]
     assert abs(a["size_median_cm"] - b["size_median_cm"]) <= math.hypot(
         a["size_median_err_cm"], b["size_median_err_cm"])
+
+
+# -- the right reference or none ------------------------------------------------------------------
+def test_oscillation_reference_is_none_for_a_relativistically_hot_plasma():
+    from pathlib import Path
+
+    from streamsim.analysis import oscillation as osc
+    from streamsim.deck import load_deck
+    deck = Path(__file__).resolve().parents[1] / "runs" / "landau.toml"
+    warm = load_deck(deck).species
+    hot = load_deck(deck, ["species.electrons.theta=2.0"]).species
+    # theta = 1e-4: the non-relativistic Maxwellian (Landau 1946) holds; its Bohm-Gross-like
+    # root exists near omega_p (textbook: omega^2 = omega_p^2 + 3 k^2 v_th^2 for k lambda_D << 1)
+    k = 0.3
+    root, model = osc.reference_root(k, warm, complex(1.0, 0.0))
+    assert model == "maxwellian" and root.real == pytest.approx(
+        math.sqrt(1 + 3 * k * k * 1e-4), rel=1e-3)
+    # theta = 2 (kT = 2 mc^2): thermal speeds near c, where the non-relativistic Maxwellian
+    # (v_th = sqrt(theta) > 1) is meaningless: no reference, and the reason says so
+    assert osc.reference_root(k, hot, complex(1.0, 0.0)) is None
+    assert "relativistically hot" in osc.no_reference_why(hot)
