@@ -339,7 +339,13 @@ def test_compare_cli_writes_the_contract(tmp_path):
     assert proc.returncode == 0, proc.stderr
     c = json.loads((out / "compare.json").read_text())
     assert json.loads(proc.stdout) == c
-    assert set(c) == {"pic", "vlasov", "relative_difference"}
+    assert {"pic", "vlasov", "relative_difference"} <= set(c)
+    # each output also carries both methods' error bars and a verdict against their combination
+    assert {"pic_err", "vlasov_err", "verdict"} <= set(c)
+    v_ = c["verdict"]["coherence.k_cutoff"]
+    e_ = math.hypot(c["pic_err"]["coherence.k_cutoff"] or 0, c["vlasov_err"]["coherence.k_cutoff"] or 0)
+    d_ = abs(c["pic"]["coherence.k_cutoff"] - c["vlasov"]["coherence.k_cutoff"])
+    assert v_.startswith("agree") == (d_ <= 2 * e_)
     for key in ("growth.measured", "contrast.max", "coherence.frequency_cutoff_hz",
                 "clumps.size_median", "coherence.k_cutoff", "contrast.t_unity_ns",
                 "energy.relative_error_max"):

@@ -81,11 +81,19 @@ def _print_summary(scan, res) -> None:
                                                         else []) +
                          [_fmt(r["growth_time_ns"]), _fmt(r["theory_growth_time_ns"]),
                           _fmt(r["growth_ratio"]), _fmt(r["t_unity_ns"]),
-                          _fmt(r["clump_size_median_cm"]), _fmt(r["nu_c_hz"]),
+                          _fmt(r["clump_size_median_cm"]) + ("*" if r.get("clump_grid_limited")
+                                                             else ""),
+                          _fmt(r["nu_c_hz"]) if r.get("nu_c_hz") is not None else
+                          (">=" + _fmt(r.get("nu_c_lower_bound_hz"))
+                           if r.get("nu_c_lower_bound_hz") is not None else "-"),
                           r["status"] + (f": {r['error']}" if r["status"] == "failed" else "")])
         widths = [max(len(row[j]) for row in table) for j in range(len(head) - 1)]
         for row in table:
             lines.append("  " + "  ".join(c.rjust(w) for c, w in zip(row, widths)) + "  " + row[-1])
+    if any(r.get("clump_grid_limited") or r.get("nu_c_lower_bound_hz") is not None
+           for r in res.rows):
+        lines.append("  * clump size set by the grid; >= nu_c only a lower bound (grid-limited): "
+                     "raise box.cells or give the beams a temperature")
     lines.append(f"  tables: {res.tables[0]}, {res.tables[1]}" if res.tables else "")
     if res.figures:
         lines.append(f"  figures: {res.out / 'figures'} ({len(res.figures)})")

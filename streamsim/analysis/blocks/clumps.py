@@ -19,8 +19,11 @@ NAME = "clumps"
 SCAN_COLUMNS = [
     ScanColumn("clump_count", "", "clumps at the analysed snapshot", ("clumps", "count")),
     ScanColumn("clump_size_median_cm", "cm", "median clump size", ("clumps", "size_median_cm")),
-    ScanColumn("clump_size_median_err_cm", "cm", "bootstrap error of the median clump size",
-               ("clumps", "size_median_err_cm")),
+    ScanColumn("clump_size_median_err_cm", "cm", "error of the median clump size (window "
+               "budget: clump-to-clump and window terms)", ("clumps", "size_median_err_cm")),
+    ScanColumn("clump_grid_limited", "", "1 when the median clump is narrower than "
+               "analysis.clump_grid_cells cells: the size is set by the grid (an upper bound)",
+               ("clumps", "grid_limited")),
 ]
 
 _CLUMP_COLUMNS = ("position", "position_cm", "width", "width_cm", "extent", "peak", "mass",

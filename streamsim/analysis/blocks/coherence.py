@@ -26,7 +26,7 @@ NAME = "coherence"
 SCAN_COLUMNS = [
     ScanColumn("nu_c_hz", "Hz", "coherence cutoff frequency nu_c (see summary.json coherence)",
                ("coherence", "frequency_cutoff_hz")),
-    ScanColumn("nu_c_hz_err", "Hz", "bootstrap error of nu_c (see summary.json coherence)",
+    ScanColumn("nu_c_hz_err", "Hz", "error of nu_c (window budget; see summary.json coherence)",
                ("coherence", "frequency_cutoff_hz_err")),
     ScanColumn("nu_c_lower_bound_hz", "Hz", "nu_c when it is only a lower bound (grid-limited)",
                ("coherence", "frequency_cutoff_hz_lower_bound")),
@@ -35,6 +35,9 @@ SCAN_COLUMNS = [
     ScanColumn("k_c_err", "omega_p/c", "bootstrap error of k_c", ("coherence", "k_cutoff_err")),
     ScanColumn("bulk_gamma", "", "bulk Lorentz factor assumed for nu_c",
                ("coherence", "bulk_gamma")),
+    ScanColumn("nu_c_grid_limited", "", "1 when k_c and nu_c are set by the grid (nu_c is then "
+               "only the lower bound nu_c_lower_bound_hz): raise box.cells or warm the beams",
+               ("coherence", "grid_limited")),
 ]
 
 
