@@ -159,3 +159,13 @@ def test_oscillation_reference_is_none_for_a_relativistically_hot_plasma():
     # (v_th = sqrt(theta) > 1) is meaningless: no reference, and the reason says so
     assert osc.reference_root(k, hot, complex(1.0, 0.0)) is None
     assert "relativistically hot" in osc.no_reference_why(hot)
+
+
+def test_compare_verdict_uses_two_combined_standard_errors():
+    from streamsim.vlasov.compare import verdict
+    # 2 sigma of the difference of two independent Gaussian estimates (common practice):
+    # sqrt(3^2 + 4^2) = 5, so a difference of 9.9 agrees and one of 10.1 does not
+    assert verdict(100.0, 3.0, 90.1, 4.0).startswith("agree")
+    assert verdict(100.0, 3.0, 89.9, 4.0).startswith("differ")
+    assert verdict(100.0, None, 90.0, None).startswith("no verdict")
+    assert verdict(None, 1.0, 90.0, 1.0).startswith("no verdict")

@@ -375,5 +375,8 @@ def flag_field_energy(fe: dict) -> dict:
     fe["consistent_with_theory"] = bool(abs(dev) <= ENERGY_FLAG_SIGMA)
     if not fe["consistent_with_theory"]:
         fe["flag"] = (f"field-energy rate {m:.4g} +- {e:.2g} disagrees with 2*gamma = {th:.4g} "
-                      f"by {dev:+.1f} sigma")
+                      f"by {dev:+.1f} sigma: the total field energy sums every mode, so other "
+                      "modes, noise or the onset of saturation share its window; trust the "
+                      "per-mode fit, and seed the fastest mode (perturbation.modes) or raise "
+                      "the particles per cell for a clean single-mode phase")
     return fe

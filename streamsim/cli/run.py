@@ -125,7 +125,39 @@ def replica_lines(res) -> str:
         f"{done} of {len(res.rows)} replicas completed; mean +- standard error of the mean:",
         f"  fastest growth rate: {pm(res.growth, '.4g')} w_p{th}",
         f"  t_unity: {pm(res.t_unity_ns, '.4g')} ns",
+        *_emission_lines(getattr(res, "emission", {}) or {}),
         f"  every replica in {res.out / 'replicas.csv'}"])
+
+
+def _emission_lines(em: dict) -> list[str]:
+    """nu_c and clump size over the replicas, with one run's budget and its dominant term."""
+    out = []
+    for key, what, scale, unit in (("nu_c_hz", "nu_c", 1e-9, "GHz"),
+                                   ("clump_size_median_cm", "clump size", 1.0, "cm")):
+        e = em.get(key) or {}
+        if e.get("mean") is None:
+            continue
+        b = e.get("one_run_budget") or {}
+        se = e.get("standard_error_of_mean")
+        terms = ", ".join(f"{k} {v * scale:.2g}" for k, v in (b.get("terms") or {}).items()
+                          if v is not None)
+        out.append(f"  {what}: {e['mean'] * scale:.4g}"
+                   + (f" +- {se * scale:.2g}" if se is not None else "") + f" {unit} "
+                   f"(n = {e['n']}); one run's error: {terms}"
+                   + (f"; combined {b['combined'] * scale:.2g} (dominant: {b['dominant']})"
+                      if b.get("combined") is not None else ""))
+    return out
+
+
+def _tolerance(e: dict) -> str:
+    """The energy error against its tolerance, with what to do when it is exceeded."""
+    tol = e.get("tolerance")
+    if tol is None:
+        return ""
+    if e.get("warning"):
+        return (f" > tolerance {tol:g} (analysis.energy_tolerance): lower time.dt or refine "
+                "box.cells")
+    return f" (within the tolerance {tol:g})"
 
 
 def _print_summary(result) -> None:
@@ -140,7 +172,8 @@ def _print_summary(result) -> None:
     lines = [f"{s['deck_title']}: {s['steps']} steps, {size}",
              f"  n_ref = {n['density_cm3']:.3g} cm^-3: 1/omega_p = {n['time_unit_ns']:.4g} ns, "
              f"c/omega_p = {n['skin_depth_cm']:.4g} cm",
-             f"  energy error max {s['energy']['relative_error_max']:.2e}"]
+             f"  energy error max {s['energy']['relative_error_max']:.2e}"
+             + _tolerance(s["energy"])]
     text = terminal_lines(result.analysis)
     if text:
         lines.append(text)

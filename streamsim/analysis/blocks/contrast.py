@@ -29,6 +29,13 @@ def compute(ctx: Context) -> BlockResult:
     s = data.series
     names = list(data.names)
     block = _ct.contrast_block(s, names, n_cm3)
+    cold = [sp.name for sp in data.deck.species if sp.is_cold]
+    block["cold_species"] = cold
+    block["max_grid_limited"] = bool(cold)
+    block["max_note"] = ("cold beams form caustics after saturation (density ~ |x - x0|^-1/2 at "
+                         "the turning points of trapped orbits), so max delta n/n has no "
+                         "converged value: the grid sets it; give the beams a temperature"
+                         if cold else None)
     warnings = _start(block, ctx)
     t = np.asarray(s.t, float)
     cmax = np.asarray(s.contrast_max, float)
@@ -145,7 +152,9 @@ def _lines(c: dict, n_cm3: float) -> list[str]:
     if c.get("t_unity") is not None:
         out = [f"clumps form (max dn/n >= 1) at t = {fmt(c['t_unity'])} /w_p = "
                f"{fmt(c.get('t_unity_ns'))} ns; max dn/n = {fmt(c['max'], '.3g')} "
-               f"at t = {at_ns(c.get('t_max'), n_cm3)}"]
+               f"at t = {at_ns(c.get('t_max'), n_cm3)}"
+               + (" (not converged: cold-beam caustics, set by the grid; give the beams a "
+                  "temperature)" if c.get("max_grid_limited") else "")]
     else:
         out = [f"no clump formation: max dn/n = {fmt(c['max'], '.3g')} < 1 "
                f"(at t = {at_ns(c.get('t_max'), n_cm3)})"]
