@@ -98,6 +98,8 @@ def _window_headline(res: BlockResult, ctx: Context) -> BlockResult:
                  "bulk_gamma": (e.get("bulk_gamma_window") if e.get("bulk_gamma") is None
                                 else e.get("bulk_gamma")),
                  "bulk_gamma_source": e.get("bulk_gamma_source")})
+    if e.get("bulk_gamma_measured") is not None:
+        head["bulk_gamma_measured"] = e["bulk_gamma_measured"]
     head.update(_grid_limit(head, ctx))
     _bound(head, ctx.density_cm3)
     ffw = em.tables.get("form_factor_window")
@@ -122,6 +124,9 @@ def _window_headline(res: BlockResult, ctx: Context) -> BlockResult:
                                           {**tab.attrs, **{k: v for k, v in ffw.attrs.items()
                                                            if k.startswith("noise_floor")}})
     res.lines = _lines(head)
+    if _driven.is_measured(ctx.options) and head.get("bulk_gamma") is not None:
+        res.lines.append(f"  bulk Gamma = {head['bulk_gamma']:.4g}, the mean over the window's "
+                         f"records; {head.get('bulk_gamma_source')}")
     return res
 
 

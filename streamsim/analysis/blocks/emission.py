@@ -159,6 +159,11 @@ def compute(ctx: Context) -> BlockResult:
                                       "nodes": int(nodes)},
             "bulk_gamma": gam_const, "bulk_gamma_source": gam_how}
     head.update(_window_cutoff(F2, dens, floors, win_idx, names, L, modes, opt, nu, n_cm3))
+    if gam_arr is not None and win_idx.size:
+        head["bulk_gamma_measured"] = {n: float(np.nanmean(gam_arr[win_idx, j]))
+                                       for j, n in enumerate(names)}
+        if head.get("bulk_gamma_window") is None:   # no species sets k_c: the largest
+            head["bulk_gamma_window"] = max(head["bulk_gamma_measured"].values())
     head.update(_window_clumps(widths_by_record, win_idx, n_cm3))
     hist = {}
     if win["t0"] is not None:
