@@ -51,7 +51,7 @@ class Output:
 OUTPUTS = (
     Output("growth_rate", "omega_p", ("growth", "measured"), ("growth", "measured_err"), None),
     Output("t_unity_ns", "ns", ("contrast", "t_unity_ns"), None, None),
-    Output("contrast_max", "", ("contrast", "max"), None, None),
+    Output("contrast_max", "", ("contrast", "max"), None, ("contrast", "max_grid_limited")),
     Output("clump_size_median_cm", "cm", ("clumps", "size_median_cm"),
            ("clumps", "size_median_err_cm"), ("clumps", "grid_limited")),
     Output("k_c", "omega_p/c", ("coherence", "k_cutoff"), ("coherence", "k_cutoff_err"),
