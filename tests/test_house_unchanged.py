@@ -40,7 +40,13 @@ VOLATILE = {"wall_s", "particle_steps_per_s", "streamsim_version", "cell_steps_p
 #: top-level blocks compared at 1e-4 relative
 GROWTH = {"growth", "modes", "field_energy_growth"}
 #: coherence entries that the baseline code left unscaled by the measured Gamma (see docstring)
-SCALED_BY_MEASURED_GAMMA = ()
+SCALED_BY_MEASURED_GAMMA = (
+    (("drive-below-limit", "coherence", "frequency_cutoff_hz_err"), ("coherence", "bulk_gamma")),
+    (("drive-below-limit", "coherence", "frequency_cutoff_hz_lower_bound"),
+     ("coherence", "bulk_gamma")),
+    *((("drive-below-limit", "coherence", "by_species", s, "frequency_cutoff_hz_err"),
+       ("coherence", "by_species", s, "bulk_gamma")) for s in ("electrons", "positrons")),
+)
 
 
 def trimmed(summary: dict) -> dict:
