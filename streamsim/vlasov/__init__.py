@@ -3,9 +3,10 @@
 f_s(x, u) of every species on a periodic-x x bounded-u grid, stepped by Strang splitting of the
 1D1V relativistic Vlasov-Poisson system (Cheng & Knorr 1976, J. Comput. Phys. 22, 330) with the
 positive, flux-conservative advection of Filbet, Sonnendrucker & Bertrand 2001 (J. Comput. Phys.
-172, 166). :func:`streamsim.pipeline.run` chooses :class:`VlasovSimulation` when the deck's
-``method`` is ``"vlasov"``; the handlers, files and analysis blocks are the PIC run's, with the
-density at maximum contrast in place of particle positions.
+172, 166). The ``"vlasov"`` entry of :data:`streamsim.methods.METHODS` hands the pipeline
+:class:`VlasovSimulation`, :data:`VLASOV_HANDLERS`, :func:`health_findings`, :func:`state_bytes`,
+:func:`run_data`, :func:`summary_block` and :func:`notes`; the series, files and analysis blocks
+are the PIC run's, with the density at maximum contrast in place of particle positions.
 
     from streamsim import run
     res = run("runs/warm-pair-beams-vlasov.toml")
