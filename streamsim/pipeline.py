@@ -540,6 +540,7 @@ def _finish_run(sim, handlers, deck, folder, dispersion, theory, findings, warni
                          sim.weights, [int(round(t / sim.dt)) for t in snaps.t],
                          [int(round(t / sim.dt)) for t in phase.t],
                          distributions=data.extra.get("distribution"))
+        io.drop_legacy_fields(folder)
         if continuum:
             io.write_profiles(folder / io.CONTINUUM_FILE, {"peak": data.peak_density,
                                                            "end": data.end_density})
