@@ -11,8 +11,9 @@ A handler is a small object with a cadence (``every``, in steps; 0 = never) and 
 
 Handlers that hold data say so with ``state()`` / ``restore()`` (arrays, exact in a checkpoint)
 and ``meta()`` / ``restore_meta()`` (JSON). Arrays are preallocated, so a run's memory for
-diagnostics is fixed at the start. Adding a recorded quantity is one handler (here, or in its
-own module) and one line in :func:`standard_handlers`.
+diagnostics is fixed at the start (a run extended to a later end restores them into arrays
+sized for the new end, :func:`restore_rows`). Adding a recorded quantity is one handler (here,
+or in its own module) and one line in :func:`standard_handlers`.
 """
 from __future__ import annotations
 
@@ -24,7 +25,7 @@ from . import fields
 from .rundata import DensitySnapshots, ParticleSnapshot, PhaseSpace, TimeSeries
 
 __all__ = ["Handler", "Sampler", "SeriesRecorder", "FieldSnapshots", "PhaseSpaceSampler", "PeakSnapshot",
-           "stride", "record_steps", "contrast", "standard_handlers"]
+           "stride", "record_steps", "restore_rows", "contrast", "standard_handlers"]
 
 
 def stride(interval: float, dt: float) -> int:
@@ -38,6 +39,19 @@ def record_steps(steps: int, every: int) -> int:
     if steps % every:
         n += 1
     return n
+
+
+def restore_rows(dst: np.ndarray, src: np.ndarray | None, where: str) -> None:
+    """Copy the checkpointed records ``src`` into the preallocated ``dst``: the same shape, or
+    fewer rows when the run is extended to a later end (``dst`` is then sized for the new end
+    and its remaining rows are still to be filled). Raises ValueError for anything else."""
+    if (src is None or src.ndim != dst.ndim or src.shape[1:] != dst.shape[1:]
+            or (src.ndim and src.shape[0] > dst.shape[0])):
+        raise ValueError(f"checkpoint does not match this deck (diagnostic {where})")
+    if src.ndim:
+        dst[:src.shape[0]] = src
+    else:
+        dst[...] = src
 
 
 def contrast(density: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -97,10 +111,7 @@ class _Arrays(Handler):
 
     def restore(self, arrays):
         for k, dst in self.arrays.items():
-            src = arrays.get(k)
-            if src is None or src.shape != dst.shape:
-                raise ValueError(f"checkpoint does not match this deck (diagnostic {self.name}/{k})")
-            dst[...] = src
+            restore_rows(dst, arrays.get(k), f"{self.name}/{k}")
         self.count = int(arrays["count"])
 
     def _view(self, key):

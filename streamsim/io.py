@@ -519,6 +519,15 @@ def read_checkpoint(path) -> dict:
     return out
 
 
+def read_checkpoint_meta(path) -> dict:
+    """{"step", "meta"} of a checkpoint, without reading its arrays (what a resume checks first)."""
+    try:
+        with h5py.File(path, "r") as f:
+            return {"step": int(f.attrs["step"]), "meta": json.loads(f.attrs["meta"])}
+    except (OSError, KeyError, ValueError) as ex:
+        raise OutputError(f"cannot read checkpoint {path}: {ex}") from None
+
+
 # ----------------------------------------------------------------------------------------------
 # a whole run folder
 # ----------------------------------------------------------------------------------------------

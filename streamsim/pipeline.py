@@ -19,7 +19,7 @@ from pathlib import Path
 
 import numpy as np
 
-from . import io, units
+from . import io, resume as _resume, units
 from ._version import __version__
 from .deck import Deck, DeckError, load_deck
 from .diagnostics import Handler, standard_handlers, stride
@@ -311,7 +311,8 @@ def run(deck=None, out: str | Path | None = None, *, quiet: bool = True, resume:
 
     deck: a Deck, a path to a TOML file, a dict, or None for the built-in default.
     out: the run folder (default: the deck's ``output.folder``). write=False keeps everything in
-    memory. resume=True continues from ``<out>/checkpoint.h5``. progress: a tqdm bar on stderr
+    memory. resume=True continues from ``<out>/checkpoint.h5``, to the run's end or to a later
+    ``time.end`` (an extension, :mod:`streamsim.resume`). progress: a tqdm bar on stderr
     (default: only when stderr is a terminal and not quiet). stop_after_steps: stop (as if
     interrupted) after this many steps — for tests of checkpointing. force: run even when a
     health rule refuses the deck, or over a finished run of a different deck. figures: draw the
@@ -331,6 +332,10 @@ def run(deck=None, out: str | Path | None = None, *, quiet: bool = True, resume:
         elif not quiet:
             print(f"warning: {msg}", file=sys.stderr)
 
+    if resume and folder is not None:   # an extension keeps the run's cadences and step
+        deck, notes = _resume.extended_deck(deck, _resume.checkpoint_deck(folder))
+        for line in notes:
+            say(line)
     dispersion, theory = _theory(deck)
     findings = check_deck(deck, theory)
     if deck.method == "vlasov":
@@ -401,6 +406,7 @@ def _run_locked(deck, folder, dispersion, theory, findings, warnings, say, *, qu
     state = {"finished": False}
 
     def save():
+        state["saved_step"] = sim.step
         sim_state = sim.state()
         meta = {"version": __version__, "deck": comparable(deck), "finished": state["finished"],
                 "simulation": sim_state["meta"],
@@ -465,15 +471,16 @@ def _run_locked(deck, folder, dispersion, theory, findings, warnings, say, *, qu
                           f"(t = {sim.step * sim.dt:.6g}/omega_p)"
                           + (f"; resume with --resume {folder}" if folder is not None else ""))
     if not state["finished"]:
+        # the last checkpoint holds the records before the last level's: a resume to a later
+        # end goes on from it as a straight run would (a resume to this end redoes them)
+        if folder is not None and state.get("saved_step") != sim.step:
+            save()
         for h in handlers:
             h.finish(sim)
         state["finished"] = True
-    result = _finish_run(sim, handlers, deck, folder, dispersion, theory, findings, warnings,
-                         say, status=status, wall=wall, steps_done=sim.step - step0,
-                         analyze=analyze, figures=figures)
-    if folder is not None:
-        save()
-    return result
+    return _finish_run(sim, handlers, deck, folder, dispersion, theory, findings, warnings,
+                       say, status=status, wall=wall, steps_done=sim.step - step0,
+                       analyze=analyze, figures=figures)
 
 
 def _restore(sim, handlers, state, path, deck, say) -> None:
@@ -481,10 +488,15 @@ def _restore(sim, handlers, state, path, deck, say) -> None:
     meta = ck["meta"]
     theirs = meta.get("deck")
     if theirs is not None:
-        diff = first_difference(theirs, comparable(deck))
+        diff = first_difference(_resume.with_later_end(theirs, deck.time.end), comparable(deck))
         if diff:
             raise io.OutputError(f"checkpoint {path} was written by a different deck "
-                                 f"({diff} differs); resume with the run's own deck.toml")
+                                 f"({diff} differs); resume with the run's own deck.toml "
+                                 f"(a resume may change time.end only, to a later end)")
+    if meta.get("finished") and ck["step"] < sim.steps:
+        raise io.OutputError(f"checkpoint {path} was written after the run's last records (by "
+                             f"an older streamsim), so the run resumes to its own end only; run "
+                             f"the deck to the new end instead")
     try:
         sim.restore(ck["step"], ck["x"], ck["u"], ck["density"], meta.get("simulation", {}))
         for h in handlers:
@@ -493,6 +505,7 @@ def _restore(sim, handlers, state, path, deck, say) -> None:
     except ValueError as ex:
         raise io.OutputError(f"checkpoint {path}: {ex}") from None
     state["finished"] = bool(meta.get("finished", False))
+    state["saved_step"] = ck["step"]
     written = meta.get("simulation", {}).get("threads")
     if written != sim.threads:
         say(f"checkpoint was written with {written} threads, resuming with {sim.threads}: "
