@@ -14,7 +14,8 @@ and ``meta()`` / ``restore_meta()`` (JSON). Arrays are preallocated from the han
 ``layout(deck, every)``, so a run's memory for diagnostics is fixed at the start and known from
 the deck alone (``nbytes(deck)``, which :mod:`streamsim.memory` sums before anything is
 allocated). What a handler gives ``series_arrays()`` reaches the run's ``TimeSeries`` (and so
-timeseries.h5 and the analysis); what it gives ``run_summary(deck)`` joins summary.json.
+timeseries.h5 and the analysis); what it gives ``run_summary(deck)`` joins summary.json. A run
+extended to a later end restores the arrays into arrays sized for the new end (:func:`restore_rows`).
 Adding a recorded quantity is one handler (here, or in its own module) and one entry in its
 method's list of handler classes (:data:`PIC_HANDLERS`, or the Vlasov one).
 """
@@ -28,7 +29,7 @@ from . import fields
 from .rundata import DensitySnapshots, ParticleSnapshot, PhaseSpace, TimeSeries
 
 __all__ = ["Handler", "Sampler", "SeriesRecorder", "FieldSnapshots", "PhaseSpaceSampler", "PeakSnapshot",
-           "stride", "record_steps", "contrast", "standard_handlers", "make_handlers",
+           "stride", "record_steps", "restore_rows", "contrast", "standard_handlers", "make_handlers",
            "PIC_HANDLERS", "layout_bytes", "collect_series", "handler_classes"]
 
 
@@ -43,6 +44,19 @@ def record_steps(steps: int, every: int) -> int:
     if steps % every:
         n += 1
     return n
+
+
+def restore_rows(dst: np.ndarray, src: np.ndarray | None, where: str) -> None:
+    """Copy the checkpointed records ``src`` into the preallocated ``dst``: the same shape, or
+    fewer rows when the run is extended to a later end (``dst`` is then sized for the new end
+    and its remaining rows are still to be filled). Raises ValueError for anything else."""
+    if (src is None or src.ndim != dst.ndim or src.shape[1:] != dst.shape[1:]
+            or (src.ndim and src.shape[0] > dst.shape[0])):
+        raise ValueError(f"checkpoint does not match this deck (diagnostic {where})")
+    if src.ndim:
+        dst[:src.shape[0]] = src
+    else:
+        dst[...] = src
 
 
 def contrast(density: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -153,10 +167,7 @@ class _Arrays(Handler):
 
     def restore(self, arrays):
         for k, dst in self.arrays.items():
-            src = arrays.get(k)
-            if src is None or src.shape != dst.shape:
-                raise ValueError(f"checkpoint does not match this deck (diagnostic {self.name}/{k})")
-            dst[...] = src
+            restore_rows(dst, arrays.get(k), f"{self.name}/{k}")
         self.count = int(arrays["count"])
 
     def _view(self, key):

@@ -29,7 +29,7 @@ import numpy as np
 
 from . import drive as _drive
 from . import fields
-from .diagnostics import Handler, allocate, record_steps, stride
+from .diagnostics import Handler, allocate, record_steps, restore_rows, stride
 
 __all__ = ["DriveRecorder", "GAMMA_HIST_EDGES", "drive_handlers"]
 
@@ -186,10 +186,7 @@ class DriveRecorder(Handler):
 
     def restore(self, arrays):
         for k, dst in self.arrays.items():
-            src = arrays.get(k)
-            if src is None or src.shape != dst.shape:
-                raise ValueError(f"checkpoint does not match this deck (diagnostic {self.name}/{k})")
-            dst[...] = src
+            restore_rows(dst, arrays.get(k), f"{self.name}/{k}")
         self.count, self.hist_count = int(arrays["count"]), int(arrays["hist_count"])
 
     def meta(self):

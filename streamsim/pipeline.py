@@ -18,7 +18,7 @@ from typing import Any, Callable
 
 import numpy as np
 
-from . import io, units
+from . import io, resume as _resume, units
 from ._version import __version__
 from .control import EnergyWatch, Progress, Signals, StopRequest
 from .checkpointer import Checkpointer
@@ -98,9 +98,11 @@ class RunContext:
     sim: Any = None
     handlers: list = field(default_factory=list)
     finished: bool = False          # the handlers' finish() ran (the last time level recorded)
+    saved_step: int | None = None   # the step of the last checkpoint written or read
 
     def save(self) -> None:
         """Write the checkpoint: the simulation's state and every handler's arrays and meta."""
+        self.saved_step = self.sim.step
         sim_state = self.sim.state()
         meta = {"version": __version__, "deck": comparable(self.deck), "finished": self.finished,
                 "simulation": sim_state["meta"],
@@ -135,7 +137,8 @@ def run(deck=None, out: str | Path | None = None, *, quiet: bool = True, resume:
 
     deck: a Deck, a path to a TOML file, a dict, or None for the built-in default.
     out: the run folder (default: the deck's ``output.folder``). write=False keeps everything in
-    memory. resume=True continues from ``<out>/checkpoint.h5``. progress: a tqdm bar on stderr
+    memory. resume=True continues from ``<out>/checkpoint.h5``, to the run's end or to a later
+    ``time.end`` (an extension, :mod:`streamsim.resume`). progress: a tqdm bar on stderr
     (default: only when stderr is a terminal and not quiet). stop_after_steps: stop (as if
     interrupted) after this many steps — for tests of checkpointing. force: run even when a
     health rule refuses the deck, or over a finished run of a different deck. figures: draw the
@@ -156,6 +159,10 @@ def run(deck=None, out: str | Path | None = None, *, quiet: bool = True, resume:
         elif not quiet:
             print(f"warning: {msg}", file=sys.stderr)
 
+    if resume and folder is not None:   # an extension keeps the run's cadences and step
+        deck, notes = _resume.extended_deck(deck, _resume.checkpoint_deck(folder))
+        for line in notes:
+            say(line)
     dispersion, theory = _theory(deck)
     findings = method.health(deck, check_deck(deck, dispersion))
     for f in findings:
@@ -248,14 +255,15 @@ def _run_locked(ctx: RunContext) -> Result:
                           f"(t = {sim.step * sim.dt:.6g}/omega_p)"
                           + (f"; resume with --resume {folder}" if folder is not None else ""))
     if not ctx.finished:
+        # the last checkpoint holds the records before the last level's: a resume to a later
+        # end goes on from it as a straight run would (a resume to this end redoes them)
+        if folder is not None and ctx.saved_step != sim.step:
+            ctx.save()
         for h in handlers:
             h.finish(sim)
         ctx.finished = True
-    result = _finish_run(ctx, status=status, wall=wall, steps_done=sim.step - step0,
-                         analyze=ctx.analyze, figures=ctx.figures)
-    if folder is not None:
-        ctx.save()
-    return result
+    return _finish_run(ctx, status=status, wall=wall, steps_done=sim.step - step0,
+                       analyze=ctx.analyze, figures=ctx.figures)
 
 
 def _restore(ctx: RunContext, path) -> None:
@@ -264,10 +272,15 @@ def _restore(ctx: RunContext, path) -> None:
     meta = ck["meta"]
     theirs = meta.get("deck")
     if theirs is not None:
-        diff = first_difference(theirs, comparable(deck))
+        diff = first_difference(_resume.with_later_end(theirs, deck.time.end), comparable(deck))
         if diff:
             raise io.OutputError(f"checkpoint {path} was written by a different deck "
-                                 f"({diff} differs); resume with the run's own deck.toml")
+                                 f"({diff} differs); resume with the run's own deck.toml "
+                                 f"(a resume may change time.end only, to a later end)")
+    if meta.get("finished") and ck["step"] < sim.steps:
+        raise io.OutputError(f"checkpoint {path} was written after the run's last records (by "
+                             f"an older streamsim), so the run resumes to its own end only; run "
+                             f"the deck to the new end instead")
     try:
         sim.restore(ck["step"], ck["x"], ck["u"], ck["density"], meta.get("simulation", {}))
         for h in ctx.handlers:
@@ -276,6 +289,7 @@ def _restore(ctx: RunContext, path) -> None:
     except ValueError as ex:
         raise io.OutputError(f"checkpoint {path}: {ex}") from None
     ctx.finished = bool(meta.get("finished", False))
+    ctx.saved_step = ck["step"]
     written = meta.get("simulation", {}).get("threads")
     if written != sim.threads:
         ctx.say(f"checkpoint was written with {written} threads, resuming with {sim.threads}: "
@@ -303,6 +317,7 @@ def _finish_run(ctx: RunContext, *, status, wall, steps_done, analyze, figures,
                          sim.weights, [int(round(t / sim.dt)) for t in snaps.t],
                          [int(round(t / sim.dt)) for t in phase.t],
                          distributions=data.extra.get("distribution"))
+        io.drop_legacy_fields(folder)
         method.write_raw(folder, sim, data)
     results = {}
     if analyze:
