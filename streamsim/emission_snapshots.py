@@ -15,7 +15,8 @@ record):
 Cadence: every ``output.fields_interval`` (the density snapshots' cadence), made a whole multiple
 coarser when that would give more than :data:`MAX_RECORDS` records over the run, so the cost
 (one Gaussian-gridding NUFFT of every particle a record) and the memory stay bounded; a record
-is also taken at the end. The sums are computed by the analysis room's functions (a lazy import
+is also taken at the end. Registered in :data:`streamsim.diagnostics.PIC_HANDLERS`; its bytes
+join the memory estimate as ``emission_snapshots``. The sums are computed by the analysis room's functions (a lazy import
 at construction: the recording uses the same form factor the analysis would, by construction).
 """
 from __future__ import annotations
@@ -50,44 +51,59 @@ def _layout(deck) -> tuple[int, int]:
 
 
 def bytes_needed(deck) -> int:
-    """Bytes the emission records of a particle run of ``deck`` hold (0 for other methods)."""
-    if getattr(deck, "method", "pic") != "pic":
-        return 0
-    steps = deck.time.steps
-    every = emission_stride(steps, stride(deck.output.fields_interval, deck.time.dt))
-    modes, nodes = _layout(deck)
-    S = len(deck.species)
-    return record_steps(steps, every) * (8 * S * (modes + nodes) + 8)
+    """Bytes the emission records of a particle run of ``deck`` hold (the handler's ``nbytes``)."""
+    return EmissionSnapshots.nbytes(deck)
 
 
 class EmissionSnapshots(Sampler):
     """|F_s(k)|^2 and the fine CIC density of every species at the emission cadence (module
-    docstring); ``series_arrays()`` hands them to the run's time series (timeseries.h5)."""
+    docstring); ``series_arrays()`` hands them to the run's time series (timeseries.h5).
+
+    Rows: ``ROWS`` = 2 MAX_RECORDS + 2 whatever the end, so a run extended to a later end on
+    resume (whose cadence may then be coarser) restores into arrays of the same shape and still
+    has room for its later records."""
     name = "emission"
+    memory_item = "emission_snapshots"
+    cadence_key = "fields_interval"
+    what = "the emission records"
+    ROWS = 2 * MAX_RECORDS + 2
+
+    @classmethod
+    def every_for(cls, deck) -> int:
+        return emission_stride(deck.time.steps, stride(deck.output.fields_interval, deck.time.dt))
+
+    @classmethod
+    def layout(cls, deck, every):
+        modes, nodes = _layout(deck)
+        S = len(deck.species)
+        n = cls.ROWS
+        return {"t": ((n,), float), "F2": ((n, S, modes), float),
+                "density": ((n, S, nodes), float)}
 
     def __init__(self, sim, every: int):
-        super().__init__()
+        super().__init__(sim.deck, every)
         from .analysis.clumps import deposit_cic
         from .analysis.coherence import form_factor
         self._ff, self._cic = form_factor, deposit_cic
-        deck = sim.deck
-        self.every = emission_stride(sim.steps, every)
-        self.length = deck.box.length
-        self.modes, self.nodes = _layout(deck)
-        S = len(sim.names)
-        n = record_steps(sim.steps, self.every)
+        self.length = sim.deck.box.length
+        self.modes, self.nodes = _layout(sim.deck)
         self.weights = [float(w) for w in sim.weights]
         self.particles = np.array([x.size for x in sim.x], float)
-        self.arrays = {"t": np.zeros(n), "F2": np.zeros((n, S, self.modes)),
-                       "density": np.zeros((n, S, self.nodes))}
 
     def _take(self, sim, t):
+        if self.count >= self.arrays["t"].size:     # full (an extension beyond its room)
+            return
+        if self.count and t <= self.arrays["t"][self.count - 1]:   # the end already recorded
+            return
         F2 = np.empty((len(sim.x), self.modes))
         dens = np.empty((len(sim.x), self.nodes))
         for s, x in enumerate(sim.x):
             F2[s] = np.abs(self._ff(x, self.length, self.modes)[1:]) ** 2
             dens[s] = self._cic(x, self.length, self.nodes, self.weights[s])
         self._put({"t": t, "F2": F2, "density": dens})
+
+    def finish(self, sim):
+        self._take(sim, sim.step * sim.dt)
 
     def series_arrays(self) -> dict[str, np.ndarray]:
         """The records as time-series arrays named ``emission_*``."""

@@ -119,14 +119,18 @@ def budget(terms: dict) -> dict:
             "combined": total, "dominant": dom, "combination": "quadrature sum of the terms"}
 
 
-def gamma_at(data, options, times) -> tuple[np.ndarray, dict | None, str]:
+def gamma_at(data, options, times, measured=None) -> tuple[np.ndarray, dict | None, str]:
     """The bulk Lorentz factor used for nu_c at each of ``times``: (Gamma(t) per species as an
-    array (n, S), or None when constant; the constant; how it was chosen). The one place the
-    emission analysis reads the bulk Gamma."""
+    array (n, S), or None when constant; the constant; how it was chosen). ``measured``: the
+    typed :class:`streamsim.analysis.driven.BulkGamma` (``analysis.bulk_gamma = "measured"``;
+    taken from the run when not given). The one place the emission analysis reads the bulk
+    Gamma."""
     G = getattr(options, "bulk_gamma", 1.0)
     if G == "measured":
-        from .driven import bulk_gamma_at
-        rows = [bulk_gamma_at(data, float(t)) for t in times]
+        if measured is None:
+            from .driven import measured_bulk_gamma
+            measured = measured_bulk_gamma(data)
+        rows = [measured.at(float(t)) for t in times]
         arr = np.array([[r.get(n, math.nan) for n in data.names] for r in rows]) \
             if rows else np.zeros((0, len(data.names)))
         return arr, None, ("measured: the bulk Lorentz factor of the species that sets k_c, "

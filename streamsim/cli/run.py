@@ -20,8 +20,10 @@ def add_arguments(p) -> None:
                    help="no progress bar and no summary (warnings and refusals still go to "
                         "stderr)")
     p.add_argument("--resume", nargs="?", const=True, default=None, metavar="RUN_DIR",
-                   help="continue an interrupted run from its checkpoint (RUN_DIR, else --out, "
-                        "else the deck's folder; with no DECK the run folder's deck.toml is used)")
+                   help="continue an interrupted run from its checkpoint, or extend a run to a "
+                        "later end with --set time.end=T, keeping its cadences (RUN_DIR, else "
+                        "--out, else the deck's folder; with no DECK the run folder's deck.toml "
+                        "is used)")
     p.add_argument("--threads", type=int, default=None, metavar="T",
                    help="numba threads (default: the deck's output.threads, 0 = all cores)")
     p.add_argument("--no-analysis", action="store_true", help="write the raw outputs only")

@@ -191,14 +191,15 @@ def compute(ctx: Context) -> BlockResult:
         units={"k": "omega_p/c", "k_per_cm": "1/cm"})
     return BlockResult(NAME, {"clumps": head}, tables,
                        [Figure("clumps.png", "clump size spectrum and density power spectrum "
-                               "P(k)", _draw)], _lines(head, n_cm3))
+                               "P(k)", _draw)], _lines(head, n_cm3),
+                       values={"grid_limited": bool(head.get("grid_limited"))})
 
 
 def _window(ctx: Context, skin: float, dx: float):
     """(headline entries, size-histogram rows) of the clump sizes pooled over the saturated
     window (emission block), or None when it has no clumps there."""
     em = ctx.results.get("emission")
-    e = em.summary.get("emission", {}) if em is not None else {}
+    e = em.values.get("window") or {} if em is not None else {}
     if not e or e.get("size_median") is None:
         return None
     tab = em.tables["emission_clumps"]

@@ -42,11 +42,7 @@ SCAN_COLUMNS = [
 
 
 def compute(ctx: Context) -> BlockResult:
-    if _driven.is_measured(ctx.options):  # analysis.bulk_gamma = "measured"
-        res = _driven.coherence_with_measured_gamma(ctx, _instants)
-    else:
-        res = _instants(ctx)
-    return _window_headline(res, ctx)
+    return _window_headline(_instants(ctx), ctx)
 
 
 _INSTANT_KEYS = ("t", "t_ns", "k_cutoff", "k_cutoff_err", "k_cutoff_per_cm", "frequency_cutoff_hz",
@@ -62,7 +58,7 @@ def _window_headline(res: BlockResult, ctx: Context) -> BlockResult:
     (snapshot = "window")."""
     em = ctx.results.get("emission")
     head = res.summary["coherence"]
-    e = em.summary.get("emission", {}) if em is not None else {}
+    e = em.values.get("window") or {} if em is not None else {}
     if not e or e.get("window", {}).get("t0") is None or not e.get("by_species"):
         head["headline"] = "peak snapshot (no emission records in the saturated window)"
         return res
@@ -97,9 +93,10 @@ def _window_headline(res: BlockResult, ctx: Context) -> BlockResult:
                                     "see error_budget",
                  "bulk_gamma": (e.get("bulk_gamma_window") if e.get("bulk_gamma") is None
                                 else e.get("bulk_gamma")),
-                 "bulk_gamma_source": e.get("bulk_gamma_source")})
-    if e.get("bulk_gamma_measured") is not None:
+                 })
+    if e.get("bulk_gamma_measured") is not None:   # analysis.bulk_gamma = "measured"
         head["bulk_gamma_measured"] = e["bulk_gamma_measured"]
+        head["bulk_gamma_source"] = e.get("bulk_gamma_source")
     head.update(_grid_limit(head, ctx))
     _bound(head, ctx.density_cm3)
     ffw = em.tables.get("form_factor_window")
@@ -124,9 +121,6 @@ def _window_headline(res: BlockResult, ctx: Context) -> BlockResult:
                                           {**tab.attrs, **{k: v for k, v in ffw.attrs.items()
                                                            if k.startswith("noise_floor")}})
     res.lines = _lines(head)
-    if _driven.is_measured(ctx.options) and head.get("bulk_gamma") is not None:
-        res.lines.append(f"  bulk Gamma = {head['bulk_gamma']:.4g}, the mean over the window's "
-                         f"records; {head.get('bulk_gamma_source')}")
     return res
 
 
@@ -148,7 +142,9 @@ def _bound(head: dict, n_cm3: float) -> None:
 def _instants(ctx: Context) -> BlockResult:
     """The form factor and cutoff at the peak and end particle snapshots (single instants)."""
     data, n_cm3, opt = ctx.data, ctx.density_cm3, ctx.options
-    drop, bulk, kmf = opt.coherence_drop, opt.bulk_gamma, opt.coherence_kmax_factor
+    drop, kmf = opt.coherence_drop, opt.coherence_kmax_factor
+    measured = _measured_gamma(ctx)     # analysis.bulk_gamma = "measured": Gamma_s(t), typed
+    bulk = 1.0 if measured is not None else opt.bulk_gamma
     modes = _co.form_factor_modes(data.cells, kmf)
     skin = units.skin_depth_cm(n_cm3)
     per = {}
@@ -164,19 +160,24 @@ def _instants(ctx: Context) -> BlockResult:
             continue
         entry = {"t": float(snap.t), "t_ns": units.time_ns(float(snap.t), n_cm3),
                  "by_species": {}}
+        # each species' Gamma at this snapshot's time: every frequency below scales with it
+        gam = measured.at(float(snap.t)) if measured is not None else None
         k = None
         for s, name in enumerate(data.names):
+            G = gam[name] if gam is not None else bulk
             if continuum:
                 r = _cn.density_coherence(snap.density[s], data.length, modes, drop=drop,
-                                          density_cm3=n_cm3, bulk_gamma=bulk,
+                                          density_cm3=n_cm3, bulk_gamma=G,
                                           bins_per_decade=opt.coherence_bins_per_decade, seed=s)
             else:
                 x = snap.x.get(name)
                 if x is None or len(x) == 0:
                     continue
                 r = _co.species_coherence(x, data.length, modes, drop=drop, density_cm3=n_cm3,
-                                          bulk_gamma=bulk, max_particles=ctx.max_particles, seed=s,
+                                          bulk_gamma=G, max_particles=ctx.max_particles, seed=s,
                                           bins_per_decade=opt.coherence_bins_per_decade)
+            if gam is not None:
+                r["bulk_gamma"] = G
             k = r.pop("k")
             kb, Eb, nb = r.pop("envelope")
             r["envelope"] = {"k": kb, "mean_F2": Eb, "modes": nb}
@@ -204,6 +205,10 @@ def _instants(ctx: Context) -> BlockResult:
                           "noise_floor": max(fl) if fl else None, "species": None,
                           "lower_bound": False, "status": "no cutoff above the noise floor"
                           if fl else "no particle positions"})
+        if gam is not None:   # the headline Gamma: of the species that sets k_c, else the largest
+            who = entry["species"]
+            entry["bulk_gamma"] = gam[who] if who in gam else max(gam.values())
+            entry["bulk_gamma_measured"] = gam
         per[label] = entry
     src = "peak" if "peak" in per else ("end" if "end" in per else None)
     head = {"k_cutoff": None, "k_cutoff_err": None, "frequency_cutoff_hz": None,
@@ -212,7 +217,8 @@ def _instants(ctx: Context) -> BlockResult:
     if src:
         head.update(per[src])
     head.update(_grid_limit(head, ctx))
-    head.update({"bulk_gamma": bulk, "snapshot": src, "drop": drop,
+    head.update({"bulk_gamma": head["bulk_gamma"] if measured is not None else bulk,
+                 "snapshot": src, "drop": drop,
                  "noise_safety": _co.NOISE_SAFETY, "k_max": 2 * math.pi * modes / data.length,
                  "kmax_factor": kmf, "assumption": _co.ASSUMPTION,
                  "bins_per_decade": opt.coherence_bins_per_decade,
@@ -226,10 +232,26 @@ def _instants(ctx: Context) -> BlockResult:
                  "grid_limit_test": f"k_c >= {_co.GRID_FRACTION:g} x the grid Nyquist k "
                                     "(wavelength <= 4 cells), or k_c only a lower bound, or the "
                                     "clumps grid-limited (clumps.grid_limited)"})
-    _bound(head, n_cm3)
+    if head.get("grid_limited") and head.get("frequency_cutoff_hz") is not None:
+        # a bound, never a plain value
+        head["frequency_cutoff_hz_lower_bound"] = head.pop("frequency_cutoff_hz")
+        head["frequency_cutoff_hz"] = None
+        head["frequency_cutoff_bound"] = "lower"
+    else:
+        head["frequency_cutoff_hz_lower_bound"] = None
+        head["frequency_cutoff_bound"] = None
+    if head.get("k_cutoff") is not None:
+        head["k_cutoff_per_cm"] = units.wavenumber_per_cm(head["k_cutoff"], n_cm3)
+        nu = head["frequency_cutoff_hz"] or head["frequency_cutoff_hz_lower_bound"]
+        head["frequency_cutoff_ghz"] = nu / 1e9 if head["frequency_cutoff_hz"] else None
     if src == "peak" and "end" in per:
         head["end"] = {k: per["end"][k] for k in ("t", "k_cutoff", "frequency_cutoff_hz",
                                                   "noise_floor", "species", "status")}
+        if measured is not None:
+            head["end"]["bulk_gamma"] = per["end"]["bulk_gamma"]
+    if measured is not None:
+        head["bulk_gamma_source"] = ("measured: no particle snapshot" if src is None else
+                                     measured.source(head.get("species"), head["t"], src))
     k_all = np.asarray(cols["k"], float)
     table = Table("form_factor", {
         "snapshot": np.array(cols["snapshot"], dtype=object),
@@ -243,14 +265,23 @@ def _instants(ctx: Context) -> BlockResult:
                                "cutoff and the noise floor", _draw)], _lines(head))
 
 
+def _measured_gamma(ctx: Context):
+    """The typed measured Gamma_s(t) (:class:`streamsim.analysis.driven.BulkGamma`) of the
+    ``bulk_gamma`` block, or None when ``analysis.bulk_gamma`` is a number."""
+    if not _driven.is_measured(ctx.options):
+        return None
+    res = ctx.results.get("bulk_gamma")
+    found = res.values.get("bulk_gamma") if res is not None else None
+    return found if found is not None else _driven.measured_bulk_gamma(ctx.data)
+
+
 def _grid_limit(head: dict, ctx: Context) -> dict:
     """coherence.grid_limited and why (see :func:`streamsim.analysis.coherence.grid_limited_cutoff`)."""
     data = ctx.data
     kc = head.get("k_cutoff")
     by_k = _co.grid_limited_cutoff(kc, bool(head.get("lower_bound")), data.cells, data.length)
-    cl = (ctx.results.get("clumps").summary.get("clumps", {})
-          if ctx.results.get("clumps") is not None else {})
-    by_clumps = bool(cl.get("grid_limited")) and kc is not None
+    clumps = ctx.results.get("clumps")
+    by_clumps = bool(clumps is not None and clumps.values.get("grid_limited")) and kc is not None
     why = []
     if kc is not None and head.get("lower_bound"):
         why.append("the envelope is still high at the largest k computed")
@@ -283,6 +314,16 @@ def _pm(co: dict, key: str) -> str:
 
 
 def _lines(co: dict) -> list[str]:
+    out = _main_lines(co)
+    src = co.get("bulk_gamma_source")
+    if src is not None:     # analysis.bulk_gamma = "measured"
+        G = co.get("bulk_gamma")
+        out.append(f"  bulk Gamma = {G:.4g} {src}" if G is not None and math.isfinite(G)
+                   else f"  {src}")
+    return out
+
+
+def _main_lines(co: dict) -> list[str]:
     G = co.get("bulk_gamma", 1.0)
     G = 1.0 if G is None else G
     note = ("  assumes particles on the same trajectory emitting along the motion; "

@@ -11,7 +11,8 @@ particle run folder without emission records (written before they existed) has n
 coherence and clumps headlines then stay at the peak snapshot and say so.
 
 Summary key: ``emission``. Tables: ``emission_series``, ``form_factor_window``,
-``emission_clumps``. Figure: ``emission.png``.
+``emission_clumps``. Figure: ``emission.png``. Value for later blocks: ``values["window"]``
+(the window, its headline numbers and budgets, as in the summary entry).
 """
 from __future__ import annotations
 
@@ -92,7 +93,9 @@ def compute(ctx: Context) -> BlockResult:
     t_rec, F2, dens, floors, nodes, how = _records(data)
     n = t_rec.size
     to_ns = units.time_ns(1.0, n_cm3)
-    gam_arr, gam_const, gam_how = _em.gamma_at(data, opt, t_rec)
+    bg = ctx.results.get("bulk_gamma")
+    gam_arr, gam_const, gam_how = _em.gamma_at(
+        data, opt, t_rec, bg.values.get("bulk_gamma") if bg is not None else None)
 
     def nu(kc, i_or_none, species):
         if kc is None:
@@ -217,7 +220,8 @@ def compute(ctx: Context) -> BlockResult:
                   units={"t": "1/omega_p", "width": "c/omega_p", "width_cm": "cm"})}
     return BlockResult(NAME, {"emission": head}, tables,
                        [Figure("emission.png", "nu_c(t), clump size(t) and max delta n/n(t) "
-                               "with the saturated window", _draw)], _lines(head), warnings)
+                               "with the saturated window", _draw)], _lines(head), warnings,
+                       values={"window": head})
 
 
 def _ns(t, to_ns):
