@@ -217,7 +217,7 @@ def _window(ctx: Context, skin: float, dx: float):
     return ({"snapshot": "window", "t": w["t0"], "t_ns": w.get("t0_ns"),
              "window": {k: w.get(k) for k in ("t0", "t1", "t0_ns", "t1_ns", "records",
                                               "long_enough", "end_needed", "end_needed_ns")},
-             "count": int(round(float(np.median(counts)))) if counts.size else 0,
+             "count": int(round(float(np.mean(counts)))) if counts.size else 0,
              "count_pooled": int(widths.size),
              "size_median": med, "size_median_cm": e["size_median_cm"],
              "size_median_err": e["size_median_err"],
@@ -228,7 +228,7 @@ def _window(ctx: Context, skin: float, dx: float):
              "measured_on": e.get("records", {}).get("source"),
              "definition": "connected regions with delta n/n > threshold (periodic), any "
                            "species, at every emission record of the saturated window, pooled; "
-                           "size = FWHM; count = the median number per record",
+                           "size = FWHM; count = the mean number per record (rounded)",
              "error_estimator": "quadrature sum of the clump-to-clump bootstrap of the pooled "
                                 "median and the block jackknife over the window's records (and "
                                 "the replica scatter with replicas); see error_budget_cm",
