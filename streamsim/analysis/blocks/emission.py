@@ -258,6 +258,7 @@ def _window_cutoff(F2, dens, floors, idx, names, L, modes, opt, nu, n_cm3) -> di
         c["envelope"] = {"k": kb, "mean_F2": Eb, "modes": nb}
         c["noise_floor"] = float(floors[names.index(name)])
         c["frequency_cutoff_hz"] = nu(c["k_cutoff"], None, name)
+        c["frequency_cutoff_hz_err"] = nu(c.get("k_cutoff_err"), None, name)
         g1 = nu(1.0, None, name)
         c["bulk_gamma"] = g1 / _co.emission_cutoff_hz(1.0, 1.0, n_cm3) if g1 else None
         out["by_species"][name] = c
