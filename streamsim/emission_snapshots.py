@@ -60,8 +60,8 @@ class EmissionSnapshots(Sampler):
     docstring); ``series_arrays()`` hands them to the run's time series (timeseries.h5).
 
     Rows: ``ROWS`` = 2 MAX_RECORDS + 2 whatever the end, so a run extended to a later end on
-    resume (whose cadence may then be coarser) restores into arrays of the same shape and still
-    has room for its later records."""
+    resume restores into arrays of the same shape and still has room for its later records; it
+    keeps the cadence it started with (``meta``). Records beyond the room are not taken."""
     name = "emission"
     memory_item = "emission_snapshots"
     cadence_key = "fields_interval"
@@ -104,6 +104,15 @@ class EmissionSnapshots(Sampler):
 
     def finish(self, sim):
         self._take(sim, sim.step * sim.dt)
+
+    def meta(self):
+        return {"every": int(self.every)}
+
+    def restore_meta(self, meta):
+        """A resumed run keeps the cadence it started with (an extension to a later end would
+        otherwise pick a coarser one mid-run); the arrays have room for ROWS records."""
+        if meta.get("every"):
+            self.every = int(meta["every"])
 
     def series_arrays(self) -> dict[str, np.ndarray]:
         """The records as time-series arrays named ``emission_*``."""

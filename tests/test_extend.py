@@ -77,7 +77,9 @@ def test_a_finished_run_extends_to_the_straight_run(straight, tmp_path):
     assert first.series.t[-1] == pytest.approx(T1)          # the first run's own last record
     ext = streamsim.run(out / io.FILES["deck"], out=out, resume=True, threads=1,
                         overrides=[f"time.end={T2}"], figures=False)
-    assert ext.warnings == []            # the folder's deck.toml already has every cadence
+    # the folder's deck.toml already has every cadence (the analysis may still say this short
+    # run's saturated window is too short for emission numbers: not about the resume)
+    assert [w for w in ext.warnings if not w.startswith("the saturated window")] == []
     _assert_same_result(ext, ref)
     _assert_same_files(out, ref_folder)
     # summary.json describes the whole extended run: the same numbers as the straight run
