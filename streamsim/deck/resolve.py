@@ -96,6 +96,72 @@ def _resolve_perturbation(p: Perturbation, box: Box, species: tuple[Species, ...
     return dataclasses.replace(p, modes=modes, phases=phases)
 
 
+# --------------------------------------------------------------------------------------------
+# Advice that names a slipped input
+# --------------------------------------------------------------------------------------------
+#: a box that needs at least this many cells while the deck gives at least SLIP_FACTOR times
+#: fewer is read as a slip of units, not a plan (common practice: no 1D run of this code is
+#: planned at 10^5 cells by accident)
+SLIP_CELLS = 5.0e4
+SLIP_FACTOR = 30.0
+#: kT above m c^2 (theta > 1) given in keV: 1000 "keV" is more often 1000 eV
+SLIP_THETA = 1.0
+
+
+def cells_needed(box: Box, species: tuple[Species, ...]) -> int:
+    """The cells the box needs to resolve every species by the numerical-health rules: dx <=
+    pi lambda_D for a warm species (finite-grid instability), omega_ps dx / |v_d| <= 1 for a
+    cold drifting one (Birdsall & Langdon 1991, ch. 8); 0 when no species sets a scale."""
+    from ..health import COLD_BEAM_WARN, DX_OVER_DEBYE_WARN, debye_length
+    need = 0.0
+    for s in species:
+        lam = debye_length(s)
+        if lam > 0:
+            need = max(need, box.length / (DX_OVER_DEBYE_WARN * lam))
+        elif s.drift_u != 0:
+            need = max(need, box.length * math.sqrt(s.omega_p2) / abs(s.drift_beta)
+                       / COLD_BEAM_WARN)
+    return math.ceil(need)
+
+
+def check_size_slip(deck: Deck, box: Box, species: tuple[Species, ...]) -> None:
+    """One DeckError naming the density when a box given in cm needs ~10^5 cells or more (far
+    more than the deck gives): a value in m^-3 typed as cm^-3 makes the box 10^3 times longer
+    in c/omega_p. (A box given in c/omega_p does not depend on the density; the health rules
+    give their own advice for it.)"""
+    if deck.box.length_cm is None:
+        return
+    need = cells_needed(box, species)
+    if need < SLIP_CELLS or need < SLIP_FACTOR * box.cells:
+        return
+    n = deck.units.density_cm3
+    raise DeckError("units.density_cm3", f"with box.length_cm = {box.length_cm:g} this "
+                    f"density makes the box {box.length:.3g} c/omega_p long, which needs "
+                    f"box.cells >= {need} (the deck gives {box.cells}); if the density was "
+                    f"meant in m^-3, write units.density_cm3 = {n * 1e-6:.3g} "
+                    "(1 m^-3 = 1e-6 cm^-3)", n)
+
+
+def _hot_in_kev(given: tuple[Species, ...], species: tuple[Species, ...]) -> Species | None:
+    """The first species whose temperature was given in keV and is relativistically hot."""
+    for g, s in zip(given, species):
+        if g.temperature_kev is not None and g.theta is None and s.theta > SLIP_THETA:
+            return s
+    return None
+
+
+def _naming_temperature(ex: DeckError, given, species) -> DeckError:
+    """``ex`` (the theory found no band or no fastest mode) restated to name a temperature in
+    keV that looks like eV, when there is one; else ``ex`` itself."""
+    hot = _hot_in_kev(given, species)
+    if hot is None:
+        return ex
+    return DeckError(f"species.{hot.name}.temperature_kev", f"theta = kT/(m c^2) = "
+                     f"{hot.theta:.3g}, a relativistically hot plasma, and then {ex}; if the "
+                     f"temperature was meant in eV, write temperature_kev = "
+                     f"{hot.temperature_kev / 1000:g}", hot.temperature_kev)
+
+
 def resolve(deck: Deck) -> Deck:
     """Fill in the derived values of a validated deck: species temperatures (theta <-> keV),
     the box length (from ``length_cm`` or the linear theory's fastest wavelength) and its cm
@@ -103,7 +169,12 @@ def resolve(deck: Deck) -> Deck:
     defaults (derived from ``time.end``, never below ``dt``). Resolving a resolved deck
     returns an equal deck. Raises :class:`DeckError`."""
     species = tuple(_resolve_species(s) for s in deck.species)
-    box = _resolve_box(deck.box, species, deck.units.density_cm3)
+    try:
+        box = _resolve_box(deck.box, species, deck.units.density_cm3)
+    except DeckError as ex:
+        raise _naming_temperature(ex, deck.species, species) from None
+    if not deck.is_resolved:
+        check_size_slip(deck, box, species)
     time = _resolve_time(deck.time, box, species)
     if time.dt > time.end * (1 + 1e-12):
         raise DeckError("time.dt", f"must be <= time.end = {time.end:g}", time.dt)
@@ -114,6 +185,9 @@ def resolve(deck: Deck) -> Deck:
         form = "current_statA_cm2" if drive.current_statA_cm2 is not None else "current_A_m2"
         drive = dataclasses.replace(drive, current=convert_current(
             getattr(drive, form), form, deck.units.density_cm3))
-    pert = _resolve_perturbation(deck.perturbation, box, species)
+    try:
+        pert = _resolve_perturbation(deck.perturbation, box, species)
+    except DeckError as ex:
+        raise _naming_temperature(ex, deck.species, species) from None
     return dataclasses.replace(deck, species=species, box=box, time=time, output=output,
                                drive=drive, perturbation=pert)
