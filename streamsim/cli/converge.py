@@ -46,6 +46,8 @@ def main(args) -> int:
     stem = Path(args.deck).stem if args.deck else "default"
     out = Path(args.out or Path("runs") / "out" / f"converge-{stem}")
     old = cv.read_manifest_scan(out)
+    if old is not None and "mode" in old:   # a study written before the scan key was renamed
+        old["combine"] = old.pop("mode")
     if old is not None and old != scan.to_dict():
         raise ArgumentError("", f"{out} holds another study or scan; choose another --out")
     res = run_scan(scan=scan, out=out, workers=args.workers, scheduler=args.scheduler,
