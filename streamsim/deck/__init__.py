@@ -34,7 +34,7 @@ from .resolve import resolve
 from .schema import (ALL_TOP, EXCLUSIVE, METHODS, OPTIONAL_SECTIONS, RENAMED_KEYS, SECTIONS,
                      SPECIES, TOP, VLASOV_IGNORED_KEYS, Analysis, Box, Deck, Drive, Exclusive,
                      Output, Perturbation, Species, Time, Units, Vlasov, check_key_path,
-                     exclusive_keys, known_keys)
+                     exclusive_keys)
 from .validate import validate
 
 __all__ = [
@@ -42,7 +42,7 @@ __all__ = [
     "Deck", "Species", "Box", "Time", "Units", "Perturbation", "Output", "Analysis", "Drive",
     "Vlasov", "METHODS", "VLASOV_IGNORED_KEYS",
     "load_deck", "validate", "resolve", "apply_overrides", "parse_override", "check_key_path",
-    "exclusive_keys", "known_keys", "RENAMED_KEYS", "EXCLUSIVE", "DEFAULT_DECK",
+    "exclusive_keys", "RENAMED_KEYS", "EXCLUSIVE", "DEFAULT_DECK",
     "Key", "deck_key", "schema_of", "section_dict",
 ]
 

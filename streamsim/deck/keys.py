@@ -85,9 +85,9 @@ def _toml(value: Any) -> Any:
 def section_dict(obj) -> dict:
     """A section object as TOML-ready data: every key whose ``write`` rule allows it."""
     out = {}
+    stored = type(obj).__dataclass_fields__
     for name, key in _schema(type(obj)):
-        if not hasattr(type(obj), "__dataclass_fields__") or name not in \
-                type(obj).__dataclass_fields__:
+        if name not in stored:          # an INPUT_KEYS key, kept in another form
             continue
         value = getattr(obj, name)
         if key.applies is not None and getattr(obj, key.applies[0]) != key.applies[1]:

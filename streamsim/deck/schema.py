@@ -473,13 +473,3 @@ def check_key_path(parts: list[str]) -> None:
             raise DeckError(key, unknown_key(key, parts[1], SECTIONS[parts[0]]))
     else:
         raise DeckError(key, "not a deck key (write section.key)")
-
-
-def known_keys() -> list[str]:
-    """Every deck key in --set form (species keys as ``species.*.<key>``)."""
-    out = [k for k in TOP]
-    out += [f"{s}.{k}" for s, keys in SECTIONS.items() for k in keys]
-    out += [f"species.*.{k}" for k in SPECIES]
-    return out
-
-

@@ -111,7 +111,7 @@ def table(path: str, raw: Any, schema: dict[str, Key], section: str = "") -> dic
     return out
 
 
-def check_applies(section: str, cls, raw: dict, values: dict) -> None:
+def check_applies(section: str, raw: dict, values: dict) -> None:
     """Keys that mean something only for one value of another key (``applies``): required
     then when so declared, refused otherwise."""
     schema = SECTIONS[section]
@@ -262,7 +262,7 @@ def _drive(raw: dict, d: dict, end: float) -> Drive:
     if not isinstance(raw, dict):
         raw = {}
     check_exclusive("drive", "drive", raw, d)
-    check_applies("drive", Drive, raw, d)
+    check_applies("drive", raw, d)
     if d["theory_time"] is not None and d["theory_time"] > end:
         raise DeckError("drive.theory_time", f"must be <= time.end = {end:g}", d["theory_time"])
     return build(Drive, d, phase=d["phase"] if d["profile"] == "sine" else 0.0)
