@@ -99,7 +99,8 @@ def add_deck_arguments(parser, deck_help: str = "deck file (TOML); none = the bu
     parser.add_argument("deck", nargs="?", default=None, metavar="DECK", help=deck_help)
     parser.add_argument("--set", dest="overrides", action="append", default=[], metavar="KEY=VALUE",
                         help="override a deck key, value as a TOML literal "
-                             "(e.g. --set species.electrons.theta=1e-3); repeatable")
+                             "(e.g. --set species.electrons.theta=1e-3; species.*.KEY sets "
+                             "every species); repeatable")
 
 
 def add_executor_arguments(parser) -> None:
