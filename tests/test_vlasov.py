@@ -79,7 +79,7 @@ def plasma_deck(kl, *, amplitude, end, cells=64, momentum_cells=256, dt=0.05):
             "species": [{"name": "electrons", "charge": -1.0, "density": 1.0, "theta": THETA,
                          "distribution": "juttner"}],
             "perturbation": {"modes": [1], "amplitude": amplitude},
-            "output": {"diagnostics_interval": dt, "modes": 2, "fields_interval": end / 2,
+            "output": {"diagnostics_interval": dt, "recorded_modes": 2, "fields_interval": end / 2,
                        "phase_space_interval": end},
             "vlasov": {"momentum_cells": momentum_cells}}
 
@@ -93,7 +93,7 @@ def pair_deck(k, *, drift_u, theta, amplitude, end, cells=32, momentum_cells=256
             "box": {"length": 2 * math.pi / k, "cells": cells}, "time": {"dt": dt, "end": end},
             "species": species,
             "perturbation": {"modes": [1], "amplitude": amplitude, "species": ["electrons"]},
-            "output": {"diagnostics_interval": dt, "modes": 2, "fields_interval": end / 4,
+            "output": {"diagnostics_interval": dt, "recorded_modes": 2, "fields_interval": end / 4,
                        "phase_space_interval": end},
             "vlasov": {"momentum_cells": momentum_cells, "widen": widen}}
 
