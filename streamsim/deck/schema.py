@@ -167,10 +167,6 @@ class Output:
         help="1/omega_p (default end/10); 0 = only at the end and on a signal")
     threads: int = deck_key("int", 0, check=ge(0), help="numba threads; 0 = all cores")
 
-    @property
-    def modes(self) -> int:
-        """Former name of :attr:`recorded_modes` (kept for code not yet moved over)."""
-        return self.recorded_modes
 
 
 @dataclass(frozen=True)
@@ -271,10 +267,6 @@ class Drive:
     current_A_m2: float | None = deck_key("float", None, write=False, field_default=None,
                                           compare=False, help="the current in SI")
 
-    @property
-    def frequency(self) -> float | None:
-        """Former name of :attr:`angular_frequency` (kept for code not yet moved over)."""
-        return self.angular_frequency
 
 
 @dataclass(frozen=True)

@@ -178,10 +178,6 @@ class Scan:
     text: str = ""                 # the scan file as written
     warnings: list[str] = field(default_factory=list)
 
-    @property
-    def mode(self) -> str:
-        """Former name of :attr:`combine` (kept for code not yet moved over)."""
-        return self.combine
 
     @property
     def shape(self) -> tuple[int, ...]:
