@@ -51,10 +51,10 @@ def test_a_finished_run_of_another_deck_is_refused_unless_forced(tmp_path, capsy
     deck, raw = _deck_file(tmp_path)
     out = tmp_path / "run"
     assert main(["run", str(deck), "--quiet", "--out", str(out), "--no-figures"]) == 0
-    first = (out / io.FILES["summary"]).read_text()
     # the same deck reruns as before
     assert main(["run", str(deck), "--quiet", "--out", str(out), "--no-figures"]) == 0
     capsys.readouterr()
+    first = {p.relative_to(out): p.read_bytes() for p in sorted(out.rglob("*")) if p.is_file()}
     # another deck (one key changed) is refused, naming that key, and nothing is overwritten
     rc = main(["run", str(deck), "--quiet", "--out", str(out), "--no-figures",
                "--set", "random_seed=7"])
@@ -62,7 +62,8 @@ def test_a_finished_run_of_another_deck_is_refused_unless_forced(tmp_path, capsy
     assert rc == 2
     assert err[-1].startswith("deck error:") and "random_seed differs" in err[-1]
     assert json.loads((out / io.FILES["summary"]).read_text())["status"] == "completed"
-    assert (out / io.FILES["summary"]).read_text() != "" and first
+    after = {p.relative_to(out): p.read_bytes() for p in sorted(out.rglob("*")) if p.is_file()}
+    assert after == first                       # every file byte for byte as before the refusal
     assert main(["run", str(deck), "--quiet", "--out", str(out), "--no-figures",
                  "--set", "random_seed=7", "--force"]) == 0
 
