@@ -88,7 +88,11 @@ def test_charge_starved_field_grows_at_j_ext_minus_limit(starved):
     assert abs(s.drive_current[-1] - limit) < 0.01 * limit
     d = starved.summary["drive"]
     assert d["charge_starved"] is True and d["ratio"] == pytest.approx(2.0)
-    assert d["e_parallel_max"] == pytest.approx(np.max(np.abs(s.drive_e0)))
+    # Ampere's law for the mean field, dE0/dt = J_ext - <J>, integrated here (trapezoidal rule)
+    # from the recorded currents, gives the largest |E0| the summary reports
+    e0 = np.concatenate([[0.0], np.cumsum(np.diff(s.t) * 0.5 * (
+        (s.drive_current_ext - s.drive_current)[1:] + (s.drive_current_ext - s.drive_current)[:-1]))])
+    assert d["e_parallel_max"] == pytest.approx(np.max(np.abs(e0)), rel=1e-3)
     for name in ("electrons", "positrons"):
         assert d["gamma_max"][name] > 50 and d["gamma_bulk_final"][name] > 50
 
@@ -133,8 +137,9 @@ def test_energy_theorem_for_warm_driven_plasmas(profile, extra):
     gain = np.max(np.abs(W - W[0]))
     assert gain > 1e-2
     assert np.max(np.abs(W - W[0] - s.drive_work)) < 1e-3 * gain
-    jx = [drive.external_current(r.deck.drive, t) for t in s.t]
-    assert np.allclose(s.drive_current_ext, jx, rtol=0, atol=0)
+    # the profiles written out here: 0.8 min(t/5, 1) and 0.8 sin(0.5 t + 0.3)
+    jx = 0.8 * (np.minimum(s.t / 5.0, 1.0) if profile == "ramp" else np.sin(0.5 * s.t + 0.3))
+    assert np.allclose(s.drive_current_ext, jx, rtol=1e-12, atol=1e-14)
 
 
 # ----------------------------------------------------------------------------------------------
@@ -263,9 +268,13 @@ def test_profiles_and_the_carrying_limit():
     assert drive.external_current(ramp, 1.0) == pytest.approx(0.5)
     assert drive.external_current(ramp, 9.0) == pytest.approx(2.0)
     assert drive.max_abs_current(ramp, 2.0) == pytest.approx(1.0)
-    # a heavy ion species of charge 2: sum |q| n c
-    sp = load_deck(pair_rest(current=1.0)).species
-    assert drive.carrying_limit(sp) == pytest.approx(1.0)
+    # electrons (density 1), positrons (0.5) and an ion species of charge 2 (0.25): sum |q| n c
+    raw = pair_rest(current=1.0)
+    raw["species"].append({"name": "ions", "charge": 2.0, "mass": 1836.0, "density": 0.25,
+                           "particles_per_cell": 8, "loading": "quiet"})
+    raw["species"][0]["density"] = 1.0              # neutral: 2 x 0.25 + 0.5 = 1.0
+    sp = load_deck(raw).species
+    assert drive.carrying_limit(sp) == pytest.approx(1.0 + 0.5 + 0.5)
 
 
 def test_bulk_lorentz_factor_of_simple_flows():
