@@ -9,6 +9,7 @@ import subprocess
 import sys
 import time
 
+import pytest
 import tomli_w
 
 from conftest import pair_deck
@@ -127,6 +128,10 @@ def test_a_deck_in_physical_units_runs_bit_identically_to_its_normalised_twin():
         s["temperature_kev"] = 0.5                      # theta = 0.5 / 511 keV
     physical = load_deck(raw)
     twin = load_deck(physical.to_dict())
+    # 40 cm over c/omega_p, omega_p = 5.64e4 n^1/2 rad/s (NRL Plasma Formulary) at 1e10 cm^-3, and
+    # theta = 0.5 keV / m_e c^2 with m_e c^2 = 510.99895 keV (CODATA 2018)
+    assert physical.box.length == pytest.approx(40.0 * 5.64e4 * 1e5 / 2.99792458e10, rel=1e-3)
+    assert physical.species[0].theta == pytest.approx(0.5 / 510.99895, rel=1e-8)
     assert twin.box.length == physical.box.length and twin.species[0].theta == physical.species[0].theta
     a = pipeline.run(physical, write=False, analyze=False)
     b = pipeline.run(twin, write=False, analyze=False)

@@ -366,11 +366,15 @@ def test_maxwellian_box_modes_give_landau_damping():
 
 
 def test_growth_time_units_module():
-    # growth_time_ns is units.growth_time_ns of the rate (one conversion place)
+    # growth_time_ns = 1/(gamma omega_p) with omega_p = 5.64e4 n^1/2 rad/s (NRL Plasma Formulary)
     deck = load_deck(None)
     d = theory.theory_for_deck(deck).to_dict(density_cm3=1e12)
+    wp = 5.64e4 * math.sqrt(1e12)
     assert d["fastest"]["growth_time_ns"] == pytest.approx(
-        units.growth_time_ns(d["fastest"]["growth"], 1e12))
+        1e9 / (d["fastest"]["growth"] * wp), rel=1e-3)
+    # and the rate is the cold symmetric-beam maximum omega_b/2 (Buneman 1959; Birdsall &
+    # Langdon 1991), omega_b^2 = omega_ps^2/gamma0^3, for the default deck's beta = 0.1 pair
+    assert d["fastest"]["growth"] == pytest.approx(0.5 * math.sqrt(0.5 * (1 - 0.01) ** 1.5), rel=1e-6)
 
 
 # --------------------------------------------------------------------------------------------
