@@ -46,11 +46,12 @@ def test_cold_beams_growth_against_the_cold_root(cold_runs):
     k = 2 * math.pi * np.arange(1, 65) / data.length
     g_cold, g_max = cold_symmetric_growth(k)
     head = fast.summary["growth"]
-    # fastest box mode within 5 % of the analytic cold root (Birdsall & Langdon)
+    # fastest box mode within 3 % of the analytic cold root (Birdsall & Langdon); measured -0.92 %
     m = int(np.argmax(g_cold)) + 1
     assert head["mode"] == m
-    assert head["measured"] == pytest.approx(g_cold[m - 1], rel=0.05)
-    # every box mode with gamma > 0.3 gamma_max within 10 % (same source)
+    assert head["measured"] == pytest.approx(g_cold[m - 1], rel=0.03)
+    # every box mode with gamma > 0.3 gamma_max within 10 % (same source); measured: within 2.3 %
+    # except mode 12 near the band edge, -6.3 %
     checked = 0
     for row_f, row_s in zip(fast.summary["modes"], slow.summary["modes"]):
         mm = row_f["mode"]
@@ -61,7 +62,7 @@ def test_cold_beams_growth_against_the_cold_root(cold_runs):
         assert row["measured"] == pytest.approx(g_cold[mm - 1], rel=0.10), mm
         checked += 1
     assert checked >= 10
-    # field energy at twice the amplitude rate (W ~ |E|^2)
+    # field energy at twice the amplitude rate (W ~ |E|^2); measured -4.4 %
     fe = fast.summary["field_energy_growth"]
     assert fe["measured"] == pytest.approx(2 * g_cold[m - 1], rel=0.05)
 

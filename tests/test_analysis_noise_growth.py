@@ -136,15 +136,16 @@ RANDOM = ['species.electrons.loading="random"', 'species.positrons.loading="rand
 
 def test_random_loading_run_reports_method_and_rate(tmp_path):
     """Small random-loading run of the default deck: the headline rate is measured on the
-    eigenmode within 10 % of the cold symmetric root (textbook relation above)."""
+    eigenmode within 5 % of the cold symmetric root (Buneman 1959; Birdsall & Langdon 1991):
+    measured -1.7 % (error 2.3 %)."""
     res = streamsim.run(None, out=None, write=False, figures=False, overrides=RANDOM + ["time.end=30.0"])
     g = res.summary["growth"]
     assert g["method"].startswith("eigenmode")
     v = 0.1
     wb = math.sqrt(0.5 * (1 - v * v) ** 1.5)
     ref = _cold_root_growth(g["k"], v, wb)
-    assert g["measured"] == pytest.approx(ref, rel=0.10)
-    assert abs(g["measured"] - ref) <= 3 * g["measured_err"] + 0.10 * ref
+    assert g["measured"] == pytest.approx(ref, rel=0.05)
+    assert abs(g["measured"] - ref) <= 3 * g["measured_err"]
     assert g["start"] == "noise-seeded"
     fe = res.summary["field_energy_growth"]
     assert "method" in fe and "consistent_with_theory" in fe
@@ -223,7 +224,8 @@ def test_lattice_start_is_quieter_than_bit_reversed():
             out[start] = float(np.sum(np.abs(s.mode_amplitude[-1]) ** 2))
     finally:
         loading.QUIET_START = old
-    assert out["lattice"] < 1e-3 * out["bit_reversed"]
+    # measured: 1.2e-31 against 6.4e-7, a ratio of 1.9e-25 (README: 20 orders of magnitude)
+    assert out["lattice"] < 6e-25 * out["bit_reversed"]
 
 
 # -- production size (slow) ----------------------------------------------------------------------
