@@ -325,3 +325,39 @@ def test_f_at_the_momentum_edge_warns_with_the_mass_there():
                       write=False, analyze=False, warn=said.append)
     assert r.summary["vlasov"]["species"]["electrons"]["edge_mass_fraction_max"] < EDGE_WARN
     assert not [w for w in said if "edge of a momentum grid" in w]
+
+
+# ----------------------------------------------------------------------------------------------
+# scan --resume --retry-failed
+# ----------------------------------------------------------------------------------------------
+def test_scan_resume_skips_a_failed_run_and_retry_failed_reruns_it(tmp_path):
+    """A run whose folder is held by another process (an advisory lock) fails and is recorded;
+    --resume leaves it failed, --resume --retry-failed reruns it once the folder is free."""
+    from streamsim.scan import load_scan
+    from streamsim.scan.tables import run_folder
+    from test_scan import cli, read_csv, write_scan
+    path = write_scan(tmp_path, '[[axis]]\nname = "seed"\nkey = "random_seed"\nvalues = [1, 2]\n')
+    out = tmp_path / "out"
+    held = run_folder(out, load_scan(path).points[1])
+    held.mkdir(parents=True)
+    with open(held / ".streamsim.lock", "a+") as fh:
+        fcntl.flock(fh, fcntl.LOCK_EX | fcntl.LOCK_NB)
+        first = cli("scan", str(path), "--out", str(out), "--workers", "1", "--no-figures")
+    assert first.returncode == 0, first.stderr
+    rows = read_csv(out / "scan.csv")
+    assert [r["status"] for r in rows] == ["completed", "failed"]
+    assert "in use" in rows[1]["error"]
+    done = (out / rows[0]["folder"] / "summary.json").read_text()
+    again = cli("scan", str(path), "--out", str(out), "--workers", "1", "--no-figures", "--resume")
+    assert again.returncode == 0, again.stderr
+    assert "ran 0, skipped 2" in again.stdout
+    assert [r["status"] for r in read_csv(out / "scan.csv")] == ["completed", "failed"]
+    retry = cli("scan", str(path), "--out", str(out), "--workers", "1", "--no-figures",
+                "--resume", "--retry-failed")
+    assert retry.returncode == 0, retry.stderr
+    assert "ran 1, skipped 1" in retry.stdout
+    rows = read_csv(out / "scan.csv")
+    assert [r["status"] for r in rows] == ["completed", "completed"]
+    assert (out / rows[0]["folder"] / "summary.json").read_text() == done      # not rerun
+    s = json.loads((out / rows[1]["folder"] / "summary.json").read_text())
+    assert s["status"] == "completed" and not (out / rows[1]["folder"] / "error.json").exists()
