@@ -361,3 +361,40 @@ def test_scan_resume_skips_a_failed_run_and_retry_failed_reruns_it(tmp_path):
     assert (out / rows[0]["folder"] / "summary.json").read_text() == done      # not rerun
     s = json.loads((out / rows[1]["folder"] / "summary.json").read_text())
     assert s["status"] == "completed" and not (out / rows[1]["folder"] / "error.json").exists()
+
+
+# ----------------------------------------------------------------------------------------------
+# drive.theory_driven
+# ----------------------------------------------------------------------------------------------
+def test_theory_at_the_driven_state_is_the_root_at_the_measured_drift():
+    """A cold pair plasma driven to counter-streaming by a ramped current: at drive.theory_time
+    (the end here) theory_driven gives each species' drift four-velocity of its mean flow, which
+    the particles confirm (beta = <u>/<gamma>; measured 8e-4 off: the series and the particles
+    sit half a step apart), and its rates are the cold two-stream roots at those drifts, found
+    here by numpy.roots on the cleared quartic (Buneman 1959)."""
+    r = streamsim.run("runs/drive-below-limit.toml", write=False, figures=False,
+                      overrides=["box.cells=64", "species.electrons.particles_per_cell=32",
+                                 "species.positrons.particles_per_cell=32", "time.end=30.0",
+                                 "drive.theory_time=30.0"])
+    th = r.summary["drive"]["theory_driven"]
+    assert th["t"] == 30.0 and th["t_chosen_by"] == "drive.theory_time"
+    drifts = th["drift_u"]
+    for name, u in r.u.items():
+        beta = u.mean() / np.sqrt(1 + u * u).mean()
+        assert drifts[name] == pytest.approx(beta / math.sqrt(1 - beta * beta), rel=2.5e-3)
+    assert abs(drifts["electrons"]) > 0.15                   # really driven apart
+    beams = [(0.5, drifts["electrons"]), (0.5, drifts["positrons"])]
+    head = th["headline_mode"]
+    L = r.deck.box.length
+    assert head["k"] == pytest.approx(2 * math.pi * head["mode"] / L, rel=1e-12)
+    assert head["theory"] == pytest.approx(_fastest(_cold_quartic_roots(head["k"], beams)).imag,
+                                           rel=1e-9)
+    for row in th["modes"]:
+        k = 2 * math.pi * row["mode"] / L
+        assert row["theory"] == pytest.approx(
+            max(_fastest(_cold_quartic_roots(k, beams)).imag, 0.0), rel=1e-9, abs=1e-12)
+    best = optimize.minimize_scalar(lambda k: -_fastest(_cold_quartic_roots(k, beams)).imag,
+                                    bracket=(0.5 * head["k"], head["k"], 1.5 * head["k"]),
+                                    tol=1e-10)
+    assert th["fastest"]["growth"] == pytest.approx(-best.fun, rel=1e-8)
+    assert th["fastest"]["k"] == pytest.approx(best.x, rel=1e-4)
