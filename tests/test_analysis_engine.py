@@ -16,8 +16,8 @@ WPS2 = 0.5          # omega_ps^2 = density * charge^2 / mass = 0.5 for each beam
 
 
 def cold_symmetric_growth(k, v0=V0, wps2=WPS2):
-    """Growth of symmetric cold beams on an array of k, and its maximum w_b/2 (textbook cold
-    two-stream root, Birdsall & Langdon 1991), from streamsim.validation.references."""
+    """Growth of symmetric cold beams on an array of k, and its maximum w_b/2 (cold
+    two-stream root, Birdsall & Langdon 1991; from memory), from streamsim.validation.references."""
     from streamsim.validation.references import cold_symmetric_growth as root
     wb = math.sqrt(wps2 * (1.0 - v0 * v0) ** 1.5)       # w_b^2 = w_ps^2 / gamma_0^3
     return np.array([root(float(kk), v0, wb) for kk in np.atleast_1d(k)]), wb / 2.0

@@ -88,7 +88,7 @@ def test_reason_and_particles_needed_follow_the_shot_noise_law():
 # -- the analytic cold eigenvector ---------------------------------------------------------------
 def _symmetric_roots(k, v, wb):
     """The four roots of 1 = wb^2/(w - kv)^2 + wb^2/(w + kv)^2 (symmetric cold beams):
-    w^2 = k^2 v^2 + wb^2 +- wb sqrt(wb^2 + 4 k^2 v^2) (textbook two-stream relation, e.g.
+    w^2 = k^2 v^2 + wb^2 +- wb sqrt(wb^2 + 4 k^2 v^2) (the cold two-stream relation, e.g.
     Birdsall & Langdon 1991 sec. 5.10)."""
     a = k * k * v * v + wb * wb
     b = wb * math.sqrt(wb * wb + 4 * k * k * v * v)
@@ -136,7 +136,7 @@ RANDOM = ['species.electrons.loading="random"', 'species.positrons.loading="rand
 
 def test_random_loading_run_reports_method_and_rate(tmp_path):
     """Small random-loading run of the default deck: the headline rate is measured on the
-    eigenmode within 5 % of the cold symmetric root (Buneman 1959; Birdsall & Langdon 1991):
+    eigenmode within 5 % of the cold symmetric root (Birdsall & Langdon 1991; from memory):
     measured -1.7 % (error 2.3 %)."""
     res = streamsim.run(None, out=None, write=False, figures=False, overrides=RANDOM + ["time.end=30.0"])
     g = res.summary["growth"]
@@ -261,7 +261,7 @@ def _warm_root(k, species, guess):
 @pytest.mark.slow
 def test_random_cold_beams_at_a_million_particles():
     """1 048 576 particles (512 per cell, 1024 cells): the fastest box mode within 10 % and 3
-    standard errors of the cold symmetric root (polynomial, textbook relation above)."""
+    standard errors of the cold symmetric root (polynomial, the relation above)."""
     res = streamsim.run(None, out=None, write=False, figures=False, overrides=RANDOM + [
         "box.cells=1024", "species.electrons.particles_per_cell=512",
         "species.positrons.particles_per_cell=512"])

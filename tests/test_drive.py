@@ -41,7 +41,8 @@ def pair_rest(*, current, cells=16, ppc=8, dt=0.02, end=10.0, profile="constant"
 # linearised cold response (analytic)
 # ----------------------------------------------------------------------------------------------
 def test_linear_cold_response_matches_the_analytic_solution():
-    """Analytic solution of the linearised cold equations (derived here).
+    """Analytic solution of the linearised cold equations (from memory: cold-fluid motion
+    with Ampere's law for the mean field, worked out below).
 
     Each cold species moves as a whole: du_s/dt = (q_s/m_s) E0 and, for |u| << 1, v_s = u_s.
     Ampere: dE0/dt = J_ext - sum_s q_s n_s v_s. Differentiating once,

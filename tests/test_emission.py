@@ -26,7 +26,8 @@ def test_band_seeds_every_mode_of_the_cold_band():
     deck = load_deck(None, ['perturbation.modes="band"'])
     b = deck.species[0]
     # two symmetric cold beams: unstable for k v0 < sqrt(2) omega_b, omega_b^2 = n q^2/(m gamma^3)
-    # (textbook two-stream dispersion 1 = sum omega_b^2/(omega -+ k v0)^2 at omega = 0)
+    # (two-stream dispersion 1 = sum omega_b^2/(omega -+ k v0)^2 at omega = 0; Birdsall &
+    # Langdon 1991, from memory)
     wb = math.sqrt(b.density / b.drift_gamma ** 3)
     k_top = math.sqrt(2.0) * wb / abs(b.drift_beta)
     want = [m for m in range(1, deck.box.cells // 2 + 1)
@@ -188,7 +189,7 @@ def test_converge_command_on_a_tiny_deck(tmp_path):
         verdicts.add(o["verdict"])
     assert len(verdicts) >= 2                   # the tiny deck does not give one verdict for all
     # the finest growth rate within 3 errors of the cold symmetric-beam maximum omega_b/2
-    # (Buneman 1959; Birdsall & Langdon 1991), omega_b^2 = 0.5/gamma0^3 at beta = 0.1
+    # (Birdsall & Langdon 1991; from memory), omega_b^2 = 0.5/gamma0^3 at beta = 0.1
     g = study["outputs"]["growth_rate"]["levels"][2]
     assert abs(g["value"] - 0.5 * math.sqrt(0.5 * 0.99 ** 1.5)) < 3 * g["err"]
     assert (out / "converge.csv").is_file() and (out / "converge.png").is_file()

@@ -46,7 +46,7 @@ def _fit_window(t, amp, lo_factor=30.0, hi_factor=0.1):
 def test_cold_two_stream_fastest_box_mode(beta):
     """Cold symmetric two-stream: growth of the fastest box mode within 5% of the cold root at
     that mode's k (max growth omega_b/2 at k v0 = (sqrt3/2) omega_b, omega_b^2 = omega_pb^2/gamma0^3;
-    textbook). beta = 0.6 checks the relativistic longitudinal mass gamma0^3."""
+    Birdsall & Langdon 1991, from memory). beta = 0.6 checks the relativistic longitudinal mass gamma0^3."""
     raw = pair_deck(beta=beta, cells=128, ppc=32, nwaves=8, end=60.0 if beta > 0.3 else 40.0)
     res = _run(raw)
     g0 = 1 / math.sqrt(1 - beta * beta)

@@ -67,8 +67,8 @@ def _quadrature_root(k, beams, guess):
 
 
 def _cold_quartic_roots(k, beams):
-    """Roots of 1 = sum wp2/(g^3 (omega - k v)^2) for cold beams (wp2, u) (Buneman 1959
-    longitudinal mass g^3 m), by numpy.roots on the cleared polynomial."""
+    """Roots of 1 = sum wp2/(g^3 (omega - k v)^2) for cold beams (wp2, u) (the cold limit of eps
+    above, f = delta(u - u0): longitudinal mass g^3 m), by numpy.roots on the cleared polynomial."""
     P = np.polynomial.Polynomial
     den = [P([-k * u / math.sqrt(1 + u * u), 1.0]) ** 2 for _, u in beams]
     poly = P([1.0])

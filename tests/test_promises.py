@@ -19,7 +19,7 @@ from test_independent_roots import _cold_quartic_roots, _fastest
 COLD_PAIR = ["species.electrons.particles_per_cell=32", "species.positrons.particles_per_cell=32",
              "time.end=40.0"]
 #: cold symmetric pair at beta = 0.1: maximum growth omega_b/2, omega_b^2 = 0.5/gamma0^3
-#: (Buneman 1959; Birdsall & Langdon 1991 ch. 5)
+#: (Birdsall & Langdon 1991; from memory)
 GAMMA_COLD = 0.5 * math.sqrt(0.5 * (1 - 0.01) ** 1.5)
 
 
@@ -49,7 +49,7 @@ def test_initial_level_and_efolds_follow_the_cold_growth(seeded_pair):
     for r in (a, b):
         c = r.summary["contrast"]
         assert c["efolds_to_unity"] == pytest.approx(math.log(1 / c["initial_level"]), rel=1e-12)
-        # max dn/n grows at the cold two-stream rate (Buneman 1959): measured -2.3 %/-1.8 %
+        # max dn/n grows at the cold two-stream rate (as above): measured -2.3 %/-1.8 %
         assert c["growth_rate"] == pytest.approx(GAMMA_COLD, rel=0.07)
         # and it climbs those e-folds at that rate from initial_level_t to t_unity: measured
         # +5.4 % (the last e-fold is nonlinear)
@@ -371,7 +371,8 @@ def test_theory_at_the_driven_state_is_the_root_at_the_measured_drift():
     (the end here) theory_driven gives each species' drift four-velocity of its mean flow, which
     the particles confirm (beta = <u>/<gamma>; measured 8e-4 off: the series and the particles
     sit half a step apart), and its rates are the cold two-stream roots at those drifts, found
-    here by numpy.roots on the cleared quartic (Buneman 1959)."""
+    here by numpy.roots on the cleared quartic (cold two-stream relation with the
+    relativistic longitudinal mass gamma^3 m; from memory)."""
     r = streamsim.run("runs/drive-below-limit.toml", write=False, figures=False,
                       overrides=["box.cells=64", "species.electrons.particles_per_cell=32",
                                  "species.positrons.particles_per_cell=32", "time.end=30.0",

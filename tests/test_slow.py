@@ -23,7 +23,7 @@ def test_full_validation_passes(tmp_path):
 def test_default_deck_at_production_size(tmp_path):
     """The default deck with 1024 particles per cell and species: the fastest box mode grows
     within 2% of the cold symmetric-beam root, omega_b/2 with omega_b^2 = omega_pb^2/gamma0^3
-    (textbook, e.g. Birdsall & Langdon 1991), and the energy error stays below 1%."""
+    (Birdsall & Langdon 1991; from memory), and the energy error stays below 1%."""
     res = streamsim.run(None, out=tmp_path / "run", overrides=[
         "species.electrons.particles_per_cell=1024", "species.positrons.particles_per_cell=1024"])
     g0 = 1 / math.sqrt(1 - 0.1**2)
