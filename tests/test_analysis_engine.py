@@ -84,11 +84,13 @@ def test_density_scaling(demo_runs):
         co = s["coherence"]
         return co["frequency_cutoff_hz"] or co["frequency_cutoff_hz_lower_bound"]
     assert s1["contrast"]["t_unity_ns"] is not None and nu(s1)
-    # omega_p ~ n^(1/2) (NRL Plasma Formulary): 4x the density halves times, doubles frequencies
-    assert s4["contrast"]["t_unity_ns"] == pytest.approx(s1["contrast"]["t_unity_ns"] / 2, rel=0.01)
-    assert nu(s4) == pytest.approx(2 * nu(s1), rel=0.01)
+    # omega_p ~ n^(1/2) (NRL Plasma Formulary): 4x the density halves times, doubles frequencies.
+    # The two decks are one normalised run (README), so only the unit conversion differs:
+    # measured 0 (bit for bit), checked to round-off
+    assert s4["contrast"]["t_unity_ns"] == pytest.approx(s1["contrast"]["t_unity_ns"] / 2, rel=1e-12)
+    assert nu(s4) == pytest.approx(2 * nu(s1), rel=1e-12)
     assert s4["clumps"]["size_median_cm"] == pytest.approx(s1["clumps"]["size_median_cm"] / 2,
-                                                           rel=0.01)
+                                                           rel=1e-12)
 
 
 def test_run_folder_files_and_commands(demo_runs):
