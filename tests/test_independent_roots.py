@@ -49,7 +49,7 @@ class _Juttner:
         def integrand(e):
             u, v = math.sinh(e), math.tanh(e)
             return -(self.g / self.theta) * (v - self.b) * self.f(u) * math.cosh(e) / (w - k * v)
-        kw = dict(points=[self.eta_d], limit=400, epsabs=1e-14, epsrel=1e-12)
+        kw = dict(points=[self.eta_d], limit=400, epsabs=1e-13, epsrel=1e-11)
         re = integrate.quad(lambda e: integrand(e).real, self.lo, self.hi, **kw)[0]
         im = integrate.quad(lambda e: integrand(e).imag, self.lo, self.hi, **kw)[0]
         return self.wp2 / k * complex(re, im)
