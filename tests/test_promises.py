@@ -192,16 +192,28 @@ def test_a_failing_analysis_keeps_the_data(tmp_path, monkeypatch, capsys):
 
 
 def test_a_failing_figure_keeps_the_numbers(tmp_path, monkeypatch):
-    from streamsim import analysis
+    """One block's figure raises while drawing: the run records figures_error and keeps its data,
+    its summary numbers and its analysis tables."""
+    import dataclasses
 
-    def broken(*a, **k):
+    from streamsim import analysis
+    real = analysis.compute
+
+    def broken_draw(res, data):
         raise RuntimeError("figure broken on purpose")
-    monkeypatch.setattr(analysis, "write_outputs", broken)
+
+    def compute(*a, **k):
+        results = real(*a, **k)
+        g = results["growth"]
+        g.figures = [dataclasses.replace(g.figures[0], draw=broken_draw), *g.figures[1:]]
+        return results
+    monkeypatch.setattr(analysis, "compute", compute)
     said = []
     streamsim.run(plasma_deck(cells=32, ppc=8, end=4.0), out=tmp_path / "run", warn=said.append)
     s = _data_complete(tmp_path / "run", 80)
     assert s["figures_error"] == "RuntimeError: figure broken on purpose"
-    assert "analysis_error" not in s and s["growth"] is not None       # the numbers are there
+    assert "analysis_error" not in s and s["growth"]["theory"] is not None   # the numbers
+    assert list((tmp_path / "run" / "analysis").glob("*.csv"))                # the tables
     assert any("drawing the figures failed" in w and "streamsim plot" in w for w in said)
 
 
