@@ -156,7 +156,8 @@ def _data_complete(folder, steps):
     dataset in them reads back finite; deck.toml loads."""
     s = json.loads((folder / "summary.json").read_text())
     assert s["status"] == "completed" and s["steps"] == steps
-    for name in ("timeseries.h5", "fields.h5", "particles.h5"):
+    from streamsim import io
+    for name in (io.FILES["series"], io.FILES["fields"], io.FILES["particles"]):
         sets = []
         with h5py.File(folder / name, "r") as f:
             f.visititems(lambda k, v: sets.append(v[()]) if isinstance(v, h5py.Dataset) else None)
@@ -257,7 +258,7 @@ def _vlasov_plasma(kl, *, end, cells=32, momentum_cells=256, amplitude=1e-3, vla
             "species": [{"name": "electrons", "charge": -1.0, "density": 1.0, "theta": VT2,
                          "distribution": "juttner"}],
             "perturbation": {"modes": [1], "amplitude": amplitude},
-            "output": {"diagnostics_interval": 0.05, "modes": 2, "fields_interval": end / 2,
+            "output": {"diagnostics_interval": 0.05, "recorded_modes": 2, "fields_interval": end / 2,
                        "phase_space_interval": end},
             "vlasov": {"momentum_cells": momentum_cells, **(vlasov or {})}}
 
