@@ -206,7 +206,7 @@ class SeriesRecorder(_Arrays):
 
     @classmethod
     def layout(cls, deck, every):
-        S, M = len(deck.species), deck.output.modes
+        S, M = len(deck.species), deck.output.recorded_modes
         n = record_steps(deck.time.steps, every)
         return {"t": ((n,), float), "kinetic": ((n, S), float), "field_energy": ((n,), float),
                 "momentum": ((n, S), float), "mode_amplitude": ((n, M), complex),
@@ -215,7 +215,7 @@ class SeriesRecorder(_Arrays):
 
     def __init__(self, sim, every: int):
         super().__init__(sim.deck, every)
-        S, M = len(sim.names), sim.deck.output.modes
+        S, M = len(sim.names), sim.deck.output.recorded_modes
         self.w_m = np.array(sim.weights) * sim.masses
         self.modes = M
         self.dx = sim.deck.box.dx

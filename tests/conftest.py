@@ -19,7 +19,7 @@ def plasma_deck(*, cells=64, length=6.283185307179586, ppc=64, theta=0.0, dt=0.0
                 modes=(1,), amplitude=0.01, loading="quiet", shape="cic", solver="spectral",
                 seed=3, diag=None, extra_output=None) -> dict:
     """One electron species on a neutralising background (invented test plasma)."""
-    out = {"diagnostics_interval": diag or dt, "modes": min(8, cells // 2)}
+    out = {"diagnostics_interval": diag or dt, "recorded_modes": min(8, cells // 2)}
     out.update(extra_output or {})
     return {
         "title": "test plasma", "random_seed": seed,
@@ -36,7 +36,8 @@ def plasma_deck(*, cells=64, length=6.283185307179586, ppc=64, theta=0.0, dt=0.0
 def pair_deck(*, beta=0.1, cells=128, ppc=64, nwaves=8, dt=0.05, end=40.0, theta=0.0,
               amplitude=1e-4, shape="cic", loading="quiet", seed=1) -> dict:
     """Symmetric cold (or warm) e-/e+ beams, box = nwaves wavelengths of the analytic fastest
-    cold mode k v0 = (sqrt(3)/2) omega_b (textbook)."""
+    cold mode k v0 = (sqrt(3)/2) omega_b (cold two-stream relation, Birdsall & Langdon 1991;
+    from memory)."""
     import math
     g0 = 1.0 / math.sqrt(1 - beta * beta)
     wb = math.sqrt(0.5 / g0**3)
@@ -50,5 +51,5 @@ def pair_deck(*, beta=0.1, cells=128, ppc=64, nwaves=8, dt=0.05, end=40.0, theta
         "box": {"length": nwaves * 2 * math.pi / kfast, "cells": cells, "shape": shape},
         "time": {"dt": dt, "end": end}, "species": species,
         "perturbation": {"modes": [nwaves], "amplitude": amplitude},
-        "output": {"diagnostics_interval": dt, "modes": min(16, cells // 2)},
+        "output": {"diagnostics_interval": dt, "recorded_modes": min(16, cells // 2)},
     }
