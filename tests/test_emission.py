@@ -176,17 +176,25 @@ def test_converge_command_on_a_tiny_deck(tmp_path):
         assert o["levels"][2]["particles_per_cell"] == {"electrons": 64, "positrons": 64}
         assert {"cells", "particles_per_cell", "dt", "value", "err"} <= set(o["levels"][0])
         # the verdict follows README's rule from the levels listed (grid-limited when the finest
-        # level is flagged; converged when |change| <= combined error or tolerance x |finest|)
+        # level is flagged; converged when every level has a value, the finest error is below
+        # the finest value, and both |change| and |Richardson estimate - finest| are <= the
+        # combined error or tolerance x |finest|)
         fine, prev = o["levels"][2], o["levels"][1]
         if fine["grid_limited"]:
             want = "grid-limited"
-        elif fine["value"] is None or prev["value"] is None:
+        elif any(lv["value"] is None for lv in o["levels"]):
             want = "not converged"
         else:
             ch = fine["value"] - prev["value"]
             assert o["change"] == pytest.approx(ch, rel=1e-12, abs=1e-300)
             comb = math.hypot(fine["err"] or 0.0, prev["err"] or 0.0)
-            ok = abs(ch) <= comb or abs(ch) <= study["tolerance"] * abs(fine["value"])
+            tol = study["tolerance"] * abs(fine["value"])
+            ok = abs(ch) <= comb or abs(ch) <= tol
+            if o["extrapolated"] is not None:
+                gap = o["extrapolated"] - fine["value"]
+                ok = ok and (abs(gap) <= comb or abs(gap) <= tol)
+            if fine["err"] is not None and fine["err"] >= abs(fine["value"]):
+                ok = False
             want = "converged" if ok else "not converged"
         assert o["verdict"] == want, name
         verdicts.add(o["verdict"])
