@@ -12,8 +12,110 @@ import matplotlib
 
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
+import numpy as np  # noqa: E402
 
-__all__ = ["plt", "message_figure", "draw_figures"]
+__all__ = ["plt", "message_figure", "draw_figures", "WP", "T_LABEL", "X_LABEL", "K_LABEL",
+           "DN", "KC", "NUC", "positive", "time_ns_axis", "length_cm_axis", "ghz_axis",
+           "log_limits", "say_empty", "legend", "SUMMARY_KEYS", "summary_value"]
+
+# One notation in every figure (mathtext): the plasma frequency, the normalised axes, the density
+# contrast and the coherence cutoff.
+WP = r"$\omega_p$"
+T_LABEL = r"$t$ [$1/\omega_p$]"
+X_LABEL = r"$x$ [$c/\omega_p$]"
+K_LABEL = r"$k$ [$\omega_p/c$]"
+DN = r"$\delta n/n$"
+KC = r"$k_c$"
+NUC = r"$\nu_c$"
+
+
+# The summary.json keys the figures read, in one place (a renamed key is fixed here alone):
+# name -> (block, key).
+SUMMARY_KEYS = {
+    "nu_c_hz": ("coherence", "frequency_cutoff_hz"),
+    "nu_c_lower_bound_hz": ("coherence", "frequency_cutoff_hz_lower_bound"),
+    "bulk_gamma": ("coherence", "bulk_gamma"),
+    "t_unity": ("contrast", "t_unity"),
+    "t_unity_ns": ("contrast", "t_unity_ns"),
+    "emission_nu_c_hz": ("emission", "frequency_cutoff_hz"),
+    "emission_nu_c_err_hz": ("emission", "frequency_cutoff_hz_err"),
+    "emission_size_cm": ("emission", "size_median_cm"),
+    "emission_size_err_cm": ("emission", "size_median_err_cm"),
+}
+
+
+def summary_value(summary: dict, name: str):
+    """The value of the summary entry ``name`` of :data:`SUMMARY_KEYS` (None if absent)."""
+    block, key = SUMMARY_KEYS[name]
+    return (summary.get(block) or {}).get(key)
+
+
+def positive(y):
+    """y with the values <= 0 (and non-finite ones) as NaN, for a log axis."""
+    y = np.asarray(y, float)
+    return np.where(np.isfinite(y) & (y > 0), y, np.nan)
+
+
+def time_ns_axis(ax, density_cm3: float, where: str = "top"):
+    """A second time axis in ns beside an axis in 1/omega_p (t_ns = t / omega_p, units.time_ns
+    of the run's reference density)."""
+    from . import units
+    tu = units.time_ns(1.0, float(density_cm3))
+    sec = ax.secondary_xaxis(where, functions=(lambda t: t * tu, lambda t: t / tu))
+    sec.set_xlabel(r"$t$ [ns]")
+    return sec
+
+
+def length_cm_axis(ax, density_cm3: float, where: str = "top"):
+    """A second length axis in cm beside an axis in c/omega_p (units.skin_depth_cm)."""
+    from . import units
+    d = units.skin_depth_cm(float(density_cm3))
+    sec = ax.secondary_xaxis(where, functions=(lambda x: x * d, lambda x: x / d))
+    sec.set_xlabel(r"$x$ [cm]")
+    return sec
+
+
+def ghz_axis(ax, bulk_gamma: float, density_cm3: float, where: str = "top"):
+    """A second axis in GHz beside a wavenumber axis in omega_p/c: nu = Gamma c k / 2 pi, the
+    conversion of the coherence cutoff (analysis.coherence.emission_cutoff_hz)."""
+    from .analysis.coherence import emission_cutoff_hz
+    f = emission_cutoff_hz(1.0, float(bulk_gamma), float(density_cm3)) / 1e9
+    sec = ax.secondary_xaxis(where, functions=(lambda k: k * f, lambda v: v / f))
+    sec.set_xlabel(r"$\nu = \Gamma c k / 2\pi$ [GHz]" + f" ($\\Gamma$ = {bulk_gamma:.3g})")
+    return sec
+
+
+def log_limits(ax, arrays, decades: float = 8.0, percentile: float = 2.0, floor=None):
+    """Limit a log y axis to what is above the noise: from the ``percentile``-th percentile of
+    the positive values (never more than ``decades`` below the largest, never below ``floor``
+    / 10 when a noise floor is given) to above the largest. Returns False if nothing is positive
+    (then the caller says so in the axes)."""
+    vals = [np.asarray(a, float).ravel() for a in arrays]
+    pos = np.concatenate(vals) if vals else np.array([])
+    pos = pos[np.isfinite(pos) & (pos > 0)]
+    if not pos.size:
+        return False
+    top = float(pos.max())
+    lo = max(float(np.percentile(pos, percentile)), top * 10.0 ** (-decades))
+    if floor:
+        lo = max(lo, float(floor) / 10.0) if float(floor) < top else lo
+    ax.set_ylim(lo / 3.0, top * 3.0)
+    return True
+
+
+def say_empty(ax, text: str):
+    """Say inside the axes why there is nothing to show."""
+    ax.text(0.5, 0.5, text, ha="center", va="center", transform=ax.transAxes, fontsize=9,
+            color="0.3", wrap=True)
+
+
+def legend(ax, **kw):
+    """A readable legend, drawn only when something is labelled (no matplotlib warning)."""
+    if ax.get_legend_handles_labels()[0]:
+        kw.setdefault("fontsize", 8)
+        kw.setdefault("framealpha", 0.85)
+        return ax.legend(**kw)
+    return None
 
 
 def message_figure(text: str, size=(6, 3)):

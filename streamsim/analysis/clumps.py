@@ -154,13 +154,21 @@ def density_power_spectrum(density: np.ndarray, length: float) -> tuple[np.ndarr
 
 
 def size_histogram(widths, dx: float, length: float, bins: int | None = None):
-    """Histogram of clump widths: bins of one cell from 0 to the widest clump (at most 40 bins,
-    then equal bins), edges in c/omega_p.  Returns (edges, counts)."""
+    """Histogram of clump widths over the range of the widths found (edges in c/omega_p),
+    from 0 when the narrowest clump is within a few cells of it: sqrt(N) bins (5 to 30, a
+    common-practice rule), logarithmic when the widths span more than a decade and a half.
+    Returns (edges, counts); no clump gives one empty bin of one cell."""
     w = np.asarray(widths, float)
+    w = w[np.isfinite(w)]
     if w.size == 0:
         return np.array([0.0, dx]), np.array([0])
-    top = max(float(w.max()), dx) * 1.0001
-    nb = bins or int(min(40, max(1, math.ceil(top / dx))))
-    edges = np.linspace(0.0, top, nb + 1)
+    lo, hi = float(w.min()), float(w.max())
+    nb = bins or int(min(30, max(5, math.ceil(math.sqrt(w.size)))))
+    if lo > 0 and hi / lo > 30.0:
+        edges = np.geomspace(lo / 1.05, hi * 1.05, nb + 1)
+    else:
+        pad = max(0.05 * (hi - lo), 0.25 * dx)
+        start = 0.0 if lo - pad < 3 * dx else lo - pad
+        edges = np.linspace(start, hi + pad, nb + 1)
     counts, _ = np.histogram(w, bins=edges)
     return edges, counts

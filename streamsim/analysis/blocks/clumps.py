@@ -265,40 +265,52 @@ def _lines(cl: dict, n_cm3: float) -> list[str]:
 
 
 def _draw(res: BlockResult, data):
-    from ...plots import plt
-    skin = units.skin_depth_cm(float(data.deck.units.density_cm3))
+    from ...plots import DN, K_LABEL, WP, legend, log_limits, plt, positive, say_empty
+    n_cm3 = float(data.deck.units.density_cm3)
+    skin = units.skin_depth_cm(n_cm3)
     cl = res.summary["clumps"]
-    fig, (a1, a2) = plt.subplots(1, 2, figsize=(11, 4.2))
+    fig, (a1, a2) = plt.subplots(1, 2, figsize=(12, 4.6))
     sizes = res.tables["clump_sizes"]
     for lab, text in (("window", "saturated window (pooled)"), ("peak", "max contrast"),
                       ("end", "end")):
         part = sizes.where("snapshot", lab)
         if len(part) and part.col("count").sum() > 0:
-            edges = np.append(part.col("width_lo"), part.col("width_hi")[-1])
-            a1.stairs(part.col("count"), edges, label=f"{text}, t = {part.col('t')[0]:.4g}")
-    a1.set_xlabel("clump width (FWHM) [c/w_p]")
-    a1.set_ylabel("clumps")
+            edges = np.append(part.col("width_lo"), part.col("width_hi")[-1]) * skin
+            a1.stairs(part.col("count"), edges, lw=1.5,
+                      label=f"{text}, $t$ = {part.col('t')[0]:.4g}/{WP}")
+    a1.set_xlabel("clump width (FWHM) [cm]")
+    a1.set_ylabel("clumps per bin")
     if cl.get("threshold") is not None:
-        a1.set_title(f"clump sizes (dn/n > {cl['threshold']:g})")
-    sec = a1.secondary_xaxis("top", functions=(lambda x: x * skin, lambda x: x / skin))
-    sec.set_xlabel("cm")
+        a1.set_title(f"clump sizes ({DN} > {cl['threshold']:g})", fontsize=10, pad=32)
+    sec = a1.secondary_xaxis("top", functions=(lambda x: x / skin, lambda x: x * skin))
+    sec.set_xlabel(r"width [$c/\omega_p$]")
     if a1.get_legend_handles_labels()[0]:
-        a1.legend(fontsize=8)
+        lo, hi = a1.get_xlim()
+        if hi > 0 and lo > 0 and hi / lo > 30:
+            a1.set_xscale("log")
+        legend(a1, fontsize=8)
     else:
-        a1.text(0.5, 0.5, "no clump above the threshold", ha="center", transform=a1.transAxes)
+        say_empty(a1, "no clump above the threshold")
     spec = res.tables["density_spectrum"]
+    curves = []
     for lab, text in (("peak", "max contrast"), ("end", "end")):
         part = spec.where("snapshot", lab)
         if not len(part):
             continue
         k = part.col("k")
         for name in data.names:
-            P = part.col(f"P_{name}")
-            a2.loglog(k[1:], np.where(P[1:] > 0, P[1:], np.nan), lw=1,
-                      ls="-" if lab != "end" else "--", label=f"{name}, {text}")
-    a2.set_xlabel("k [w_p/c]")
-    a2.set_ylabel("P(k) of delta n/n")
-    a2.set_title("density power spectrum")
-    if a2.get_legend_handles_labels()[0]:
-        a2.legend(fontsize=8)
+            P = part.col(f"P_{name}")[1:]
+            curves.append(P)
+            a2.plot(k[1:], positive(P), lw=1, ls="-" if lab != "end" else "--",
+                    label=f"{name}, {text}")
+    a2.set_xlabel(K_LABEL)
+    a2.set_ylabel(f"$P(k)$ of {DN} [dimensionless]")
+    a2.set_title("density power spectrum", fontsize=10)
+    # six decades below the strongest mode: below that lies round-off, not the plasma
+    if log_limits(a2, curves, decades=6.0, percentile=5.0):
+        a2.set_xscale("log")
+        a2.set_yscale("log")
+        legend(a2, fontsize=8)
+    else:
+        say_empty(a2, "the density stayed uniform: no power above zero")
     return fig

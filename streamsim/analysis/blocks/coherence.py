@@ -354,46 +354,54 @@ def _main_lines(co: dict) -> list[str]:
 
 
 def _draw(res: BlockResult, data):
-    from ...plots import message_figure, plt
+    from ...plots import (K_LABEL, KC, NUC, WP, ghz_axis, legend, log_limits, message_figure, plt,
+                          positive, say_empty, summary_value)
     co = res.summary["coherence"]
     src = co.get("snapshot")
     tab = res.tables["form_factor"]
     part = tab.where("snapshot", src) if src else None
     if part is None or not len(part):
         return message_figure("no particle snapshot in this run", (7, 4.5))
-    fig, ax = plt.subplots(figsize=(7, 4.5))
+    fig, ax = plt.subplots(figsize=(8, 5))
     k = part.col("k")
     by = co.get("by_species") or {}
+    curves = []
     for name in data.names:
         if f"F2_{name}" not in part.columns:
             continue
         P = part.col(f"F2_{name}")
-        line, = ax.loglog(k, np.where(P > 0, P, np.nan), lw=0.8, label=f"|F|^2, {name}")
+        curves.append(P)
+        line, = ax.plot(k, positive(P), lw=0.8, label=f"$|F(k)|^2$, {name}")
         floor = (by.get(name) or {}).get("noise_floor")
         if floor:
             ax.axhline(floor, color=line.get_color(), ls=":", lw=1,
-                       label=f"noise floor 1/N, {name}")
+                       label=f"noise floor $1/N$, {name}")
         kc = (by.get(name) or {}).get("k_cutoff")
         if kc:
-            ax.axvline(kc, color=line.get_color(), ls="--", lw=1, label=f"k_c, {name}")
+            ax.axvline(kc, color=line.get_color(), ls="--", lw=1, label=f"{KC}, {name}")
     fl = [v.get("noise_floor") for v in by.values() if v.get("noise_floor")]
-    if fl:
-        lo, hi = ax.get_ylim()
-        ax.set_ylim(max(lo, 1e-4 * min(fl)), hi)
     ax.axvline(math.pi * data.cells / data.length, color="0.6", lw=0.8, ls="-.",
                label="grid Nyquist")
-    ax.set_xlabel("k [w_p/c]")
-    ax.set_ylabel("|F(k)|^2")
-    nu = co.get("frequency_cutoff_hz")
-    lb = co.get("frequency_cutoff_hz_lower_bound")
+    ax.set_xlabel(K_LABEL)
+    ax.set_ylabel(r"form factor $|F(k)|^2$ [dimensionless]")
+    nu = summary_value(res.summary, "nu_c_hz")
+    lb = summary_value(res.summary, "nu_c_lower_bound_hz")
+    gamma = summary_value(res.summary, "bulk_gamma") or 1.0
     env = (by.get(co.get("species")) or {}).get("envelope") if co.get("species") else None
     if env is not None and len(env["k"]):
-        ax.loglog(env["k"], env["mean_F2"], "k.-", lw=1, ms=3, label="log-binned envelope")
-    txt = (f"nu_c = {nu / 1e9:.3g} GHz (bulk Gamma = {co.get('bulk_gamma', 1):g})" if nu
-           else f"nu_c >= {lb / 1e9:.3g} GHz (grid-limited)" if lb
+        ax.plot(env["k"], positive(env["mean_F2"]), "k.-", lw=1, ms=3,
+                label="log-binned envelope")
+    txt = (f"{NUC} = {nu / 1e9:.3g} GHz" if nu
+           else f"{NUC} $\\geq$ {lb / 1e9:.3g} GHz (grid-limited)" if lb
            else "no cutoff above the noise floor")
-    when = (f"averaged over [{co['window']['t0']:.4g}, {co['window']['t1']:.4g}] /w_p"
-            if src == "window" and co.get("window") else f"at t = {co.get('t') or 0:.4g} /w_p")
-    ax.set_title(f"form factor {when}; {txt}", fontsize=9)
-    ax.legend(fontsize=7)
+    when = (f"averaged over [{co['window']['t0']:.4g}, {co['window']['t1']:.4g}]/{WP}"
+            if src == "window" and co.get("window") else f"at $t$ = {co.get('t') or 0:.4g}/{WP}")
+    if log_limits(ax, curves, decades=8.0, percentile=1.0, floor=min(fl) if fl else None):
+        ax.set_xscale("log")
+        ax.set_yscale("log")
+        ghz_axis(ax, float(gamma), data.deck.units.density_cm3)
+        legend(ax, fontsize=7, loc="lower left")
+    else:
+        say_empty(ax, "the density stayed uniform: no form factor above zero")
+    ax.set_title(f"form factor {when}; {txt}", fontsize=9, pad=32)
     return fig

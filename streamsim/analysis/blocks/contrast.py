@@ -174,23 +174,29 @@ def _lines(c: dict, n_cm3: float) -> list[str]:
 
 
 def _draw(res: BlockResult, data):
-    from ...plots import plt
+    from ...plots import (DN, T_LABEL, WP, legend, log_limits, plt, positive, say_empty,
+                          summary_value, time_ns_axis)
     tab = res.tables["contrast"]
     t = tab.col("t")
-    fig, ax = plt.subplots(figsize=(7, 4.5))
+    fig, ax = plt.subplots(figsize=(7.5, 4.8))
+    curves = []
     for name in tab.attrs["columns"].split(","):
         cmax, crms = tab.col(f"max_{name}"), tab.col(f"rms_{name}")
-        line, = ax.semilogy(t, np.where(cmax > 0, cmax, np.nan), lw=1.2, label=f"max, {name}")
-        ax.semilogy(t, np.where(crms > 0, crms, np.nan), "--", lw=0.9, color=line.get_color(),
-                    label=f"rms, {name}")
+        curves += [cmax, crms]
+        line, = ax.plot(t, positive(cmax), lw=1.2, label=f"max, {name}")
+        ax.plot(t, positive(crms), "--", lw=0.9, color=line.get_color(), label=f"rms, {name}")
     ax.axhline(1.0, color="0.5", lw=0.8, ls=":")
-    c = res.summary["contrast"]
-    if c.get("t_unity") is not None:
-        ax.axvline(c["t_unity"], color="0.5", lw=0.8)
-        ax.text(c["t_unity"], 1.05, f" max dn/n = 1 at t = {c['t_unity']:.4g} /w_p "
-                f"({c['t_unity_ns']:.3g} ns)", fontsize=8)
-    ax.set_xlabel("t [1/w_p]")
-    ax.set_ylabel("delta n / n")
-    ax.set_title("density contrast")
-    ax.legend(fontsize=7, ncol=2)
+    if log_limits(ax, curves, decades=8.0, percentile=2.0):
+        ax.set_yscale("log")
+    else:
+        say_empty(ax, "the density stayed uniform: no contrast above zero")
+    tu, tu_ns = summary_value(res.summary, "t_unity"), summary_value(res.summary, "t_unity_ns")
+    if tu is not None:
+        ns = f" = {tu_ns:.3g} ns" if tu_ns is not None else ""
+        ax.axvline(tu, color="0.5", lw=0.8, label=f"max {DN} = 1 at $t$ = {tu:.4g}/{WP}{ns}")
+    ax.set_xlabel(T_LABEL)
+    time_ns_axis(ax, data.deck.units.density_cm3)
+    ax.set_ylabel(f"density contrast {DN}")
+    ax.set_title("density contrast", fontsize=10, pad=32)
+    legend(ax, fontsize=7, ncol=2, loc="lower right")
     return fig
