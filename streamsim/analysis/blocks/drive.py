@@ -178,43 +178,75 @@ def _lines(e: dict, names) -> list[str]:
 
 
 def _draw(res: BlockResult, data):
-    from ...plots import plt
+    from ...plots import T_LABEL, legend, plt, positive, time_ns_axis
     tab = res.tables["drive_series"]
     t = tab.col("t")
-    fig, (a1, a2, a3) = plt.subplots(3, 1, figsize=(7, 8), sharex=True)
+    fig, (a1, a2, a3) = plt.subplots(3, 1, figsize=(7.5, 8.4), sharex=True)
     a1.plot(t, tab.col("e0"), lw=1)
-    a1.set_ylabel("E0 [m c w_p/e]")
-    a2.plot(t, tab.col("current"), lw=1, label="<J>")
-    a2.plot(t, tab.col("current_ext"), lw=1, ls="--", label="J_ext")
+    a1.set_ylabel(r"$E_0$ [$m_e c \omega_p/e$]")
+    time_ns_axis(a1, data.deck.units.density_cm3)
+    a2.plot(t, tab.col("current"), lw=1, label=r"$\langle J \rangle$")
+    a2.plot(t, tab.col("current_ext"), lw=1, ls="--", label=r"$J_{ext}$")
     lim = res.summary["drive"]["carrying_limit"]
     a2.axhline(lim, color="0.5", lw=0.8, ls=":", label="carrying limit")
     a2.axhline(-lim, color="0.5", lw=0.8, ls=":")
-    a2.set_ylabel("J [e n_ref c]")
-    a2.legend(fontsize=7)
+    a2.set_ylabel(r"$J$ [$e n_{ref} c$]")
+    legend(a2, fontsize=7)
     for n in data.names:
-        line, = a3.semilogy(t, tab.col(f"gamma_bulk_{n}"), lw=1, label=f"bulk Gamma, {n}")
-        a3.semilogy(t, tab.col(f"gamma_max_{n}"), lw=0.8, ls=":", color=line.get_color(),
-                    label=f"max gamma, {n}")
-    a3.set_ylabel("Lorentz factor")
-    a3.set_xlabel("t [1/w_p]")
-    a3.legend(fontsize=7)
+        line, = a3.plot(t, positive(tab.col(f"gamma_bulk_{n}")), lw=1,
+                        label=f"bulk $\\Gamma$, {n}")
+        a3.plot(t, positive(tab.col(f"gamma_max_{n}")), lw=0.8, ls=":", color=line.get_color(),
+                label=f"max $\\gamma$, {n}")
+    a3.set_yscale("log")
+    a3.set_ylabel(r"Lorentz factor $\gamma$ [dimensionless]")
+    a3.set_xlabel(T_LABEL)
+    legend(a3, fontsize=7)
     return fig
 
 
 def _draw_hist(res: BlockResult, data):
-    from ...plots import message_figure, plt
+    """The distribution of log10(gamma - 1) against time, one panel per species: colour is the
+    fraction of the species' particles in each bin (log scale, with its colour bar)."""
+    from matplotlib.colors import LogNorm
+
+    from ...plots import T_LABEL, message_figure, plt, say_empty, time_ns_axis
     tab = res.tables["gamma_histogram"]
     if not len(tab):
         return message_figure("no gamma histogram in this run", (7, 4.5))
     times = np.unique(tab.col("t"))
-    fig, axes = plt.subplots(len(data.names), 1, figsize=(7, 3 * len(data.names)), squeeze=False)
-    cmap = plt.get_cmap("viridis")
+    first = tab.where("t", times[0])
+    edges = np.append(first.col("log10_gamma_m1_lo"), first.col("log10_gamma_m1_hi")[-1])
+    B = edges.size - 1
+    # time edges halfway between the recorded times (the first and last padded by half a step)
+    if times.size > 1:
+        mid = 0.5 * (times[1:] + times[:-1])
+        t_edges = np.concatenate([[times[0] - (mid[0] - times[0])], mid,
+                                  [times[-1] + (times[-1] - mid[-1])]])
+    else:
+        t_edges = np.array([times[0] - 0.5, times[0] + 0.5])
+    fig, axes = plt.subplots(len(data.names), 1, figsize=(7.5, 3.2 * len(data.names)),
+                             squeeze=False, sharex=True)
     for ax, n in zip(axes[:, 0], data.names):
+        frac = np.full((B, times.size), np.nan)
         for j, tv in enumerate(times):
             part = tab.where("t", tv)
-            ax.step(part.col("log10_gamma_m1_lo"), part.col(f"fraction_{n}"), where="post",
-                    color=cmap(j / max(1, times.size - 1)), lw=0.8)
-        ax.set_yscale("log")
-        ax.set_ylabel(f"fraction, {n}")
-    axes[-1, 0].set_xlabel("log10(gamma - 1)  (colour: time, dark = early)")
+            f = np.asarray(part.col(f"fraction_{n}"), float)[:B]
+            frac[:f.size, j] = np.where(f > 0, f, np.nan)
+        ok = np.isfinite(frac)
+        if not ok.any():
+            say_empty(ax, f"no {n} particle recorded")
+            continue
+        # colour over at least three decades below 1 (a cold beam fills one bin: fraction 1)
+        lo = min(max(float(np.nanmin(frac)), 1e-6), 1e-3)
+        mesh = ax.pcolormesh(t_edges, edges, np.ma.masked_invalid(frac), cmap="viridis",
+                             norm=LogNorm(vmin=lo, vmax=1.0), shading="flat")
+        fig.colorbar(mesh, ax=ax, pad=0.02, label=f"fraction of {n} per bin")
+        used = np.where(ok.any(axis=1))[0]
+        pad = 2
+        ax.set_ylim(edges[max(0, used[0] - pad)], edges[min(B, used[-1] + 1 + pad)])
+        ax.set_ylabel(r"$\log_{10}(\gamma - 1)$" + f", {n}")
+    axes[-1, 0].set_xlabel(T_LABEL)
+    time_ns_axis(axes[0, 0], data.deck.units.density_cm3)
+    axes[0, 0].set_title(r"distribution of the Lorentz factor $\gamma$ (blank: no particle)",
+                         fontsize=10, pad=32)
     return fig

@@ -350,46 +350,59 @@ def _lines(head: dict) -> list[str]:
 
 
 def _draw(res: BlockResult, data):
-    from ...plots import message_figure, plt
+    from ...plots import (DN, NUC, T_LABEL, legend, log_limits, message_figure, plt, positive,
+                          say_empty, summary_value, time_ns_axis)
     tab = res.tables["emission_series"]
     head = res.summary["emission"]
     if not len(tab):
         return message_figure("no emission records in this run", (7, 4.5))
     t = tab.col("t")
     w = head["window"]
-    fig, (a1, a2, a3) = plt.subplots(3, 1, figsize=(7.5, 8), sharex=True)
+    fig, (a1, a2, a3) = plt.subplots(3, 1, figsize=(7.5, 8.4), sharex=True)
     nu = tab.col("nu_c_hz") / 1e9
     err = tab.col("nu_c_hz_err") / 1e9
     lb = tab.col("lower_bound").astype(bool)
     a1.errorbar(t[~lb], nu[~lb], yerr=np.where(np.isfinite(err[~lb]), err[~lb], 0), fmt="o",
-                ms=3, lw=0.8, label="nu_c at each record")
+                ms=3, lw=0.8, label=f"{NUC} at each record")
     if lb.any():
         a1.plot(t[lb], nu[lb], "^", ms=5, label="lower bound (grid)")
-    if head.get("frequency_cutoff_hz") is not None:
-        v, e = head["frequency_cutoff_hz"] / 1e9, (head.get("frequency_cutoff_hz_err") or 0) / 1e9
-        a1.axhspan(v - e, v + e, color="C1", alpha=0.25, label=f"window: {v:.3g} +- {e:.2g} GHz")
+    if summary_value(res.summary, "emission_nu_c_hz") is not None:
+        v = summary_value(res.summary, "emission_nu_c_hz") / 1e9
+        e = (summary_value(res.summary, "emission_nu_c_err_hz") or 0) / 1e9
+        a1.axhspan(v - e, v + e, color="C1", alpha=0.25,
+                   label=f"window: {v:.3g} $\\pm$ {e:.2g} GHz")
         a1.axhline(v, color="C1", lw=1)
-    a1.set_ylabel("nu_c [GHz]")
-    a1.legend(fontsize=7)
+    a1.set_ylabel(f"{NUC} [GHz]")
+    a1.ticklabel_format(axis="y", useOffset=False)
+    if not np.isfinite(nu).any():
+        say_empty(a1, "no coherence cutoff at any record")
+    legend(a1, fontsize=7)
     a2.plot(t, tab.col("size_median_cm"), "o-", ms=3, lw=0.8, label="median FWHM at each record")
-    if head.get("size_median_cm") is not None:
-        v, e = head["size_median_cm"], head.get("size_median_err_cm") or 0
-        a2.axhspan(v - e, v + e, color="C1", alpha=0.25, label=f"window: {v:.3g} +- {e:.2g} cm")
-    a2.set_ylabel("clump size [cm]")
-    a2.legend(fontsize=7)
+    if summary_value(res.summary, "emission_size_cm") is not None:
+        v = summary_value(res.summary, "emission_size_cm")
+        e = summary_value(res.summary, "emission_size_err_cm") or 0
+        a2.axhspan(v - e, v + e, color="C1", alpha=0.25,
+                   label=f"window: {v:.3g} $\\pm$ {e:.2g} cm")
+    a2.set_ylabel("clump size (FWHM) [cm]")
+    a2.ticklabel_format(axis="y", useOffset=False)
+    legend(a2, fontsize=7)
     s = data.series
     cm = np.asarray(s.contrast_max, float)
-    for j, name in enumerate(data.names):
-        a3.semilogy(s.t, np.where(cm[:, j] > 0, cm[:, j], np.nan), lw=1, label=name)
+    cols = [cm[:, j] for j in range(min(cm.shape[1], len(data.names)))] if cm.ndim == 2 else []
+    for j, name in enumerate(data.names[:len(cols)]):
+        a3.plot(s.t, positive(cols[j]), lw=1, label=name)
     a3.axhline(1.0, color="0.5", ls=":", lw=1)
-    top = np.nanmax(cm[:, :len(data.names)]) if cm.size else 1.0
-    if np.isfinite(top) and top > 0:
-        a3.set_ylim(max(a3.get_ylim()[0], 1e-4 * top), 2 * top)
-    a3.set_ylabel("max delta n/n")
-    a3.set_xlabel("t [1/w_p]")
-    a3.legend(fontsize=7)
+    if log_limits(a3, cols, decades=4.0, percentile=2.0):
+        a3.set_yscale("log")
+    else:
+        say_empty(a3, "the density stayed uniform")
+    a3.set_ylabel(f"max {DN}")
+    a3.set_xlabel(T_LABEL)
+    legend(a3, fontsize=7)
     for a in (a1, a2, a3):
         if w.get("t0") is not None:
             a.axvspan(w["t0"], w["t1"], color="0.9", zorder=0)
-    a1.set_title("emission numbers through the run (shaded: the saturated window)", fontsize=9)
+    time_ns_axis(a1, data.deck.units.density_cm3)
+    a1.set_title("emission numbers through the run (shaded: the saturated window)", fontsize=9,
+                 pad=32)
     return fig

@@ -220,13 +220,16 @@ def _lines(g: dict, modes: list[dict], fe: dict, n_cm3: float) -> list[str]:
 
 # -- figures ----------------------------------------------------------------------------------
 def _draw_field_energy(res: BlockResult, data):
-    from ...plots import plt
+    from ...plots import T_LABEL, WP, legend, plt, say_empty, time_ns_axis
     s = data.series
     t = np.asarray(s.t, float)
     W = np.asarray(s.field_energy, float)
-    fig, ax = plt.subplots(figsize=(7, 4.5))
+    fig, ax = plt.subplots(figsize=(7.5, 4.8))
     ok = W > 0
-    ax.semilogy(t[ok], W[ok], color="0.2", lw=1.2, label="field energy")
+    if ok.any():
+        ax.semilogy(t[ok], W[ok], color="0.2", lw=1.2, label="field energy")
+    else:
+        say_empty(ax, "the field stayed zero")
     fe = res.summary["field_energy_growth"]
     g = res.summary["growth"]
     if fe.get("window"):
@@ -236,24 +239,26 @@ def _draw_field_energy(res: BlockResult, data):
             tt = t[sel]
             b = float(np.mean(np.log(W[sel]) - fe["measured"] * tt))
             ax.semilogy(tt, np.exp(b + fe["measured"] * tt), "--", lw=2,
-                        label=f"fit: {fe['measured']:.4g} w_p (= 2 x {fe['measured'] / 2:.4g})")
+                        label=f"fit: {fe['measured']:.4g} {WP} (= 2 $\\times$ {fe['measured'] / 2:.4g})")
             if fe.get("theory"):
                 tm = 0.5 * (t0 + t1)
                 Wm = math.exp(b + fe["measured"] * tm)
                 ax.semilogy(tt, Wm * np.exp(fe["theory"] * (tt - tm)), ":", lw=2,
-                            label=f"theory: 2 x {fe['theory'] / 2:.4g} w_p")
+                            label=f"theory: 2 $\\times$ {fe['theory'] / 2:.4g} {WP}")
             ax.axvspan(t0, t1, color="0.9", zorder=0)
     elif g.get("theory"):
         ax.text(0.02, 0.95, _gr.NO_PHASE, transform=ax.transAxes, va="top")
-    ax.set_xlabel("t [1/w_p]")
-    ax.set_ylabel("field energy [normalised]")
-    ax.set_title(f"field energy (mode {g.get('mode')} has the largest theoretical growth)")
-    ax.legend(loc="lower right", fontsize=8)
+    ax.set_xlabel(T_LABEL)
+    time_ns_axis(ax, data.deck.units.density_cm3)
+    ax.set_ylabel(r"field energy [$n_{ref} m_e c^2 \, c/\omega_p$]")
+    ax.set_title(f"field energy (mode {g.get('mode')} has the largest theoretical growth)",
+                 fontsize=10, pad=32)
+    legend(ax, loc="lower right", fontsize=8)
     return fig
 
 
 def _draw_growth_rates(res: BlockResult, data):
-    from ...plots import plt
+    from ...plots import K_LABEL, legend, plt
     fig, ax = plt.subplots(figsize=(7, 4.5))
     disp = data.theory
     if disp is not None and len(disp.k):
@@ -272,8 +277,8 @@ def _draw_growth_rates(res: BlockResult, data):
         ax.plot(k[~fit], np.zeros(int((~fit).sum())), "x", color="0.6", ms=4,
                 label=_gr.NO_PHASE)
     ax.axhline(0, color="0.8", lw=0.8)
-    ax.set_xlabel("k [w_p/c]")
-    ax.set_ylabel("growth rate [w_p]")
-    ax.set_title("growth rate per box mode")
-    ax.legend(fontsize=8)
+    ax.set_xlabel(K_LABEL)
+    ax.set_ylabel(r"growth rate [$\omega_p$]")
+    ax.set_title("growth rate per box mode", fontsize=10)
+    legend(ax, fontsize=8)
     return fig
