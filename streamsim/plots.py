@@ -16,7 +16,7 @@ import numpy as np  # noqa: E402
 
 __all__ = ["plt", "message_figure", "draw_figures", "WP", "T_LABEL", "X_LABEL", "K_LABEL",
            "DN", "KC", "NUC", "positive", "time_ns_axis", "length_cm_axis", "ghz_axis",
-           "log_limits", "say_empty", "legend", "SUMMARY_KEYS", "summary_value"]
+           "log_limits", "say_empty", "legend", "plot_positive", "quiet_log_minor", "SUMMARY_KEYS", "summary_value"]
 
 # One notation in every figure (mathtext): the plasma frequency, the normalised axes, the density
 # contrast and the coherence cutoff.
@@ -54,6 +54,20 @@ def positive(y):
     """y with the values <= 0 (and non-finite ones) as NaN, for a log axis."""
     y = np.asarray(y, float)
     return np.where(np.isfinite(y) & (y > 0), y, np.nan)
+
+
+def plot_positive(ax, x, y, *args, **kw):
+    """Plot only the points where y > 0, joined (a spectrum with exact zeros between its
+    harmonics stays one visible line on a log axis)."""
+    x, y = np.asarray(x, float), np.asarray(y, float)
+    keep = np.isfinite(y) & (y > 0) & np.isfinite(x)
+    return ax.plot(x[keep], y[keep], *args, **kw)
+
+
+def quiet_log_minor(ax, axis: str = "x"):
+    """No labels on the minor ticks of a log axis (they crowd a short range)."""
+    from matplotlib.ticker import NullFormatter
+    getattr(ax, f"{axis}axis").set_minor_formatter(NullFormatter())
 
 
 def time_ns_axis(ax, density_cm3: float, where: str = "top"):
@@ -97,8 +111,10 @@ def log_limits(ax, arrays, decades: float = 8.0, percentile: float = 2.0, floor=
         return False
     top = float(pos.max())
     lo = max(float(np.percentile(pos, percentile)), top * 10.0 ** (-decades))
-    if floor:
-        lo = max(lo, float(floor) / 10.0) if float(floor) < top else lo
+    if floor and float(floor) > 0:
+        # the noise floor stays in view: the data above it is what the figure is about
+        top = max(top, float(floor))
+        lo = max(min(lo, float(floor) / 10.0), top * 10.0 ** (-decades))
     ax.set_ylim(lo / 3.0, top * 3.0)
     return True
 

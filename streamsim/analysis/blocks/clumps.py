@@ -265,7 +265,8 @@ def _lines(cl: dict, n_cm3: float) -> list[str]:
 
 
 def _draw(res: BlockResult, data):
-    from ...plots import DN, K_LABEL, WP, legend, log_limits, plt, positive, say_empty
+    from ...plots import (DN, K_LABEL, WP, legend, log_limits, plot_positive, plt,
+                          quiet_log_minor, say_empty)
     n_cm3 = float(data.deck.units.density_cm3)
     skin = units.skin_depth_cm(n_cm3)
     cl = res.summary["clumps"]
@@ -301,8 +302,8 @@ def _draw(res: BlockResult, data):
         for name in data.names:
             P = part.col(f"P_{name}")[1:]
             curves.append(P)
-            a2.plot(k[1:], positive(P), lw=1, ls="-" if lab != "end" else "--",
-                    label=f"{name}, {text}")
+            plot_positive(a2, k[1:], P, lw=1, ls="-" if lab != "end" else "--",
+                          label=f"{name}, {text}")
     a2.set_xlabel(K_LABEL)
     a2.set_ylabel(f"$P(k)$ of {DN} [dimensionless]")
     a2.set_title("density power spectrum", fontsize=10)
@@ -310,6 +311,7 @@ def _draw(res: BlockResult, data):
     if log_limits(a2, curves, decades=6.0, percentile=5.0):
         a2.set_xscale("log")
         a2.set_yscale("log")
+        quiet_log_minor(a2)
         legend(a2, fontsize=8)
     else:
         say_empty(a2, "the density stayed uniform: no power above zero")

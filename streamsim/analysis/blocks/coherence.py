@@ -354,8 +354,8 @@ def _main_lines(co: dict) -> list[str]:
 
 
 def _draw(res: BlockResult, data):
-    from ...plots import (K_LABEL, KC, NUC, WP, ghz_axis, legend, log_limits, message_figure, plt,
-                          positive, say_empty, summary_value)
+    from ...plots import (K_LABEL, KC, NUC, WP, ghz_axis, legend, log_limits, message_figure, plot_positive,
+                          plt, quiet_log_minor, say_empty, summary_value)
     co = res.summary["coherence"]
     src = co.get("snapshot")
     tab = res.tables["form_factor"]
@@ -371,7 +371,7 @@ def _draw(res: BlockResult, data):
             continue
         P = part.col(f"F2_{name}")
         curves.append(P)
-        line, = ax.plot(k, positive(P), lw=0.8, label=f"$|F(k)|^2$, {name}")
+        line, = plot_positive(ax, k, P, lw=0.8, label=f"$|F(k)|^2$, {name}")
         floor = (by.get(name) or {}).get("noise_floor")
         if floor:
             ax.axhline(floor, color=line.get_color(), ls=":", lw=1,
@@ -389,8 +389,8 @@ def _draw(res: BlockResult, data):
     gamma = summary_value(res.summary, "bulk_gamma") or 1.0
     env = (by.get(co.get("species")) or {}).get("envelope") if co.get("species") else None
     if env is not None and len(env["k"]):
-        ax.plot(env["k"], positive(env["mean_F2"]), "k.-", lw=1, ms=3,
-                label="log-binned envelope")
+        plot_positive(ax, env["k"], env["mean_F2"], "k.-", lw=1, ms=3,
+                      label="log-binned envelope")
     txt = (f"{NUC} = {nu / 1e9:.3g} GHz" if nu
            else f"{NUC} $\\geq$ {lb / 1e9:.3g} GHz (grid-limited)" if lb
            else "no cutoff above the noise floor")
@@ -399,6 +399,7 @@ def _draw(res: BlockResult, data):
     if log_limits(ax, curves, decades=8.0, percentile=1.0, floor=min(fl) if fl else None):
         ax.set_xscale("log")
         ax.set_yscale("log")
+        quiet_log_minor(ax)
         ghz_axis(ax, float(gamma), data.deck.units.density_cm3)
         legend(ax, fontsize=7, loc="lower left")
     else:
