@@ -4,7 +4,7 @@
   combination of the other axes; markers are the mean over replicas with the standard deviation
   of the replicas as error bars (one replica: the fit's 1-sigma error); the line is the linear
   theory for the same box mode, the dashed line the theory's fastest mode.
-- ``nu_c_vs_<axis>.png``: the coherence cutoff frequency nu_c (Hz) against the axis; where it is
+- ``nu_c_vs_<axis>.png``: the coherence cutoff frequency nu_c (GHz) against the axis; where it is
   grid-limited, its lower bound as an upward arrow.
 - ``growth_time_map.png`` (two axes, product scan): measured growth time and measured/theory
   over the two axes.
@@ -20,9 +20,48 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
-__all__ = ["make_figures", "replica_stats"]
+__all__ = ["make_figures", "replica_stats", "draw_growth_vs_axis", "draw_nu_c_vs_axis",
+           "draw_map", "axis_label", "COLUMNS"]
 
 MAX_LINES = 12
+
+# The scan-table columns the figures read, in one place (a renamed column is fixed here alone).
+COLUMNS = {
+    "growth_time": "growth_time_ns",
+    "growth_time_err": "growth_time_err_ns",
+    "theory_growth_time": "theory_growth_time_ns",
+    "theory_fastest_growth_time": "theory_fastest_growth_time_ns",
+    "growth_ratio": "growth_ratio",
+    "nu_c": "nu_c_hz",
+    "nu_c_err": "nu_c_hz_err",
+    "nu_c_lower_bound": "nu_c_lower_bound_hz",
+    "bulk_gamma": "bulk_gamma",
+}
+
+# Units of the deck keys a scan axis may name, by the end of the key (the unit is part of the
+# physical keys' names) or by the whole key (normalised keys); mathtext.
+_UNIT_SUFFIXES = (("_cm3", r"cm$^{-3}$"), ("_kev", "keV"), ("_cm", "cm"), ("_ns", "ns"),
+                  ("_hz", "Hz"), ("_beta", r"$c$"), ("beta", r"$c$"), ("drift_u", r"$m_e c$"),
+                  ("_u", r"$m_e c$"))
+_UNIT_KEYS = {"box.length": r"$c/\omega_p$", "time.end": r"$1/\omega_p$",
+              "time.dt": r"$1/\omega_p$", "drive.current": r"$e n_{ref} c$",
+              "drive.angular_frequency": r"$\omega_p$", "theta": r"$m_e c^2$",
+              "temperature": r"$m_e c^2$"}
+
+
+def axis_label(axis) -> str:
+    """The label of a scan axis: its name and, where the key has one, its unit."""
+    keys = list(getattr(axis, "keys", None) or []) + [axis.name]
+    for k in keys:
+        if k in _UNIT_KEYS:
+            return f"{axis.name} [{_UNIT_KEYS[k]}]"
+        leaf = k.rsplit(".", 1)[-1]
+        if leaf in _UNIT_KEYS:
+            return f"{axis.name} [{_UNIT_KEYS[leaf]}]"
+        for suffix, unit in _UNIT_SUFFIXES:
+            if leaf.endswith(suffix):
+                return f"{axis.name} [{unit}]"
+    return f"{axis.name} [dimensionless]"
 
 
 def _save(fig, path: Path) -> Path:
@@ -34,7 +73,8 @@ def _slug(name: str) -> str:
     return re.sub(r"[^A-Za-z0-9]+", "_", name).strip("_") or "axis"
 
 
-def replica_stats(rows: list[dict], column: str, err_column: str | None = None) -> dict:
+def replica_stats(rows: list[dict], column: str, err_column: str | None = None,
+                  scale: float = 1.0) -> dict:
     """{point: (mean, error, n)} over the completed replicas of each point with a value.
 
     error: the sample standard deviation of the replicas (n >= 2), else the row's own error
@@ -50,16 +90,17 @@ def replica_stats(rows: list[dict], column: str, err_column: str | None = None) 
             err = float(np.std(v, ddof=1))
         else:
             err = rs[0].get(err_column) if err_column else None
-        out[p] = (float(v.mean()), err, int(v.size))
+        out[p] = (float(v.mean()) * scale, None if err is None else float(err) * scale,
+                  int(v.size))
     return out
 
 
-def _first(rows: list[dict], column: str) -> dict:
+def _first(rows: list[dict], column: str, scale: float = 1.0) -> dict:
     """{point: value} of a column that is the same for every replica (theory)."""
     out = {}
     for r in rows:
         if r.get(column) is not None and r["point"] not in out:
-            out[r["point"]] = r[column]
+            out[r["point"]] = r[column] * scale
     return out
 
 
@@ -84,10 +125,11 @@ def _fmt(v) -> str:
     return format(v, ".3g") if isinstance(v, float) else str(v)
 
 
-def _line_plot(scan, rows, i, ax, column, err_column, theory_columns, ylabel):
+def _line_plot(scan, rows, i, ax, column, err_column, theory_columns, ylabel, scale=1.0,
+               extra=()):
     axis = scan.axes[i]
-    stats = replica_stats(rows, column, err_column)
-    theories = [(_first(rows, c), style, lab) for c, style, lab in theory_columns]
+    stats = replica_stats(rows, column, err_column, scale)
+    theories = [(_first(rows, c, scale), style, lab) for c, style, lab in theory_columns]
     groups = _groups(scan, rows, i)
     colours = plt.rcParams["axes.prop_cycle"].by_key()["color"]
     drawn = 0
@@ -109,13 +151,16 @@ def _line_plot(scan, rows, i, ax, column, err_column, theory_columns, ylabel):
                 drawn += 1
     if len(groups) > MAX_LINES:
         ax.set_title(f"first {MAX_LINES} of {len(groups)} lines", fontsize=8)
-    ax.set_xlabel(axis.name)
+    ax.set_xlabel(axis_label(axis))
     ax.set_ylabel(ylabel)
     if axis.log:
         ax.set_xscale("log")
-    ys_all = [s[0] for s in stats.values()] + [v for vals, _, _ in theories for v in vals.values()]
+    ys_all = ([s[0] for s in stats.values()] + [v for vals, _, _ in theories for v in vals.values()]
+              + list(extra))
     if ys_all and min(ys_all) > 0 and max(ys_all) / min(ys_all) > 10:
         ax.set_yscale("log")
+    else:
+        ax.ticklabel_format(axis="y", useOffset=False, style="plain")
     if drawn:   # beside the axes: the lines often fill the whole frame
         ax.legend(fontsize=7, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0)
     else:
@@ -123,20 +168,26 @@ def _line_plot(scan, rows, i, ax, column, err_column, theory_columns, ylabel):
                 transform=ax.transAxes)
 
 
-def _growth_vs_axis(scan, rows, i, folder) -> Path:
+def draw_growth_vs_axis(scan, rows, i):
+    """The figure growth_time_vs_<axis>.png (returned, not saved)."""
     fig, ax = plt.subplots(figsize=(9.5, 4.5))
-    _line_plot(scan, rows, i, ax, "growth_time_ns", "growth_time_err_ns",
-               [("theory_growth_time_ns", "-", "theory, same box mode"),
-                ("theory_fastest_growth_time_ns", "--", "theory, fastest mode")],
-               "growth time 1/gamma (ns)")
+    _line_plot(scan, rows, i, ax, COLUMNS["growth_time"], COLUMNS["growth_time_err"],
+               [(COLUMNS["theory_growth_time"], "-", "theory, same box mode"),
+                (COLUMNS["theory_fastest_growth_time"], "--", "theory, fastest mode")],
+               r"growth time $1/\gamma$ [ns]")
     fig.suptitle(f"{scan.title}: e-folding time of the field vs {scan.axes[i].name}", fontsize=10)
-    return _save(fig, folder / f"growth_time_vs_{_slug(scan.axes[i].name)}.png")
+    return fig
 
 
-def _lower_bounds(scan, rows, i, ax, column: str) -> int:
+def _growth_vs_axis(scan, rows, i, folder) -> Path:
+    return _save(draw_growth_vs_axis(scan, rows, i),
+                 folder / f"growth_time_vs_{_slug(scan.axes[i].name)}.png")
+
+
+def _lower_bounds(scan, rows, i, ax, column: str, scale: float = 1.0) -> int:
     """Draw the grid-limited lower bounds of ``column`` as upward arrows (a bound, not a value);
     returns how many points were drawn."""
-    stats = replica_stats(rows, column)
+    stats = replica_stats(rows, column, scale=scale)
     if not stats:
         return 0
     xs = {}
@@ -150,19 +201,28 @@ def _lower_bounds(scan, rows, i, ax, column: str) -> int:
     return len(py)
 
 
-def _nu_c_vs_axis(scan, rows, i, folder) -> Path:
+def draw_nu_c_vs_axis(scan, rows, i):
+    """The figure nu_c_vs_<axis>.png (returned, not saved): nu_c in GHz."""
     fig, ax = plt.subplots(figsize=(9.5, 4.5))
-    _line_plot(scan, rows, i, ax, "nu_c_hz", "nu_c_hz_err", [], "coherence cutoff nu_c (Hz)")
-    if _lower_bounds(scan, rows, i, ax, "nu_c_lower_bound_hz"):
+    bounds = [v[0] for v in replica_stats(rows, COLUMNS["nu_c_lower_bound"], scale=1e-9).values()]
+    _line_plot(scan, rows, i, ax, COLUMNS["nu_c"], COLUMNS["nu_c_err"], [],
+               r"coherence cutoff $\nu_c$ [GHz]", scale=1e-9, extra=bounds)
+    if _lower_bounds(scan, rows, i, ax, COLUMNS["nu_c_lower_bound"], scale=1e-9):
         for t in ax.texts:
             if t.get_text() == "no completed run has this value":
                 t.remove()
         ax.legend(fontsize=7, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0)
-    gammas = sorted({r["bulk_gamma"] for r in rows if r.get("bulk_gamma") is not None})
+    gb = COLUMNS["bulk_gamma"]
+    gammas = sorted({r[gb] for r in rows if r.get(gb) is not None})
     g = ", ".join(_fmt(v) for v in gammas) if gammas else "n/a"
-    fig.suptitle(f"{scan.title}: nu_c = Gamma c k_c / 2 pi (Gamma = {g}) vs {scan.axes[i].name}",
-                 fontsize=10)
-    return _save(fig, folder / f"nu_c_vs_{_slug(scan.axes[i].name)}.png")
+    fig.suptitle(f"{scan.title}: " + r"$\nu_c = \Gamma c k_c / 2\pi$" + f" ($\\Gamma$ = {g}) "
+                 f"vs {scan.axes[i].name}", fontsize=10)
+    return fig
+
+
+def _nu_c_vs_axis(scan, rows, i, folder) -> Path:
+    return _save(draw_nu_c_vs_axis(scan, rows, i),
+                 folder / f"nu_c_vs_{_slug(scan.axes[i].name)}.png")
 
 
 def _edges(values, log: bool) -> np.ndarray:
@@ -176,20 +236,26 @@ def _edges(values, log: bool) -> np.ndarray:
 
 
 def _map(scan, rows, folder) -> Path | None:
+    fig = draw_map(scan, rows)
+    return None if fig is None else _save(fig, folder / "growth_time_map.png")
+
+
+def draw_map(scan, rows):
+    """The figure growth_time_map.png (returned, not saved), or None for a non-numeric axis."""
     a, b = scan.axes
     if not (a.numeric and b.numeric):
         return None
     order_a = np.argsort(a.values)
     order_b = np.argsort(b.values)
-    stats = replica_stats(rows, "growth_time_ns")
-    ratio = replica_stats(rows, "growth_ratio")
+    stats = replica_stats(rows, COLUMNS["growth_time"])
+    ratio = replica_stats(rows, COLUMNS["growth_ratio"])
     point_of = {}
     for r in rows:
         point_of[(r[f"{a.name}#index"], r[f"{b.name}#index"])] = r["point"]
     fig, axes = plt.subplots(1, 2, figsize=(11, 4.5))
     for ax, st, title, cmap, norm in (
-            (axes[0], stats, "growth time (ns)", "viridis", "log"),
-            (axes[1], ratio, "measured / theory growth", "coolwarm", None)):
+            (axes[0], stats, r"growth time $1/\gamma$ [ns]", "viridis", "log"),
+            (axes[1], ratio, "measured / theory growth [dimensionless]", "coolwarm", None)):
         grid = np.full((len(b.values), len(a.values)), np.nan)
         for ia, ja in enumerate(order_a):
             for ib, jb in enumerate(order_b):
@@ -211,11 +277,14 @@ def _map(scan, rows, folder) -> Path | None:
             ax.set_xscale("log")
         if b.log:
             ax.set_yscale("log")
-        ax.set_xlabel(a.name)
-        ax.set_ylabel(b.name)
+        ax.set_xlabel(axis_label(a))
+        ax.set_ylabel(axis_label(b))
         ax.set_title(title + " (blank: no fit)", fontsize=9)
+        if not finite.size:
+            ax.text(0.5, 0.5, "no completed run has this value", ha="center", va="center",
+                    transform=ax.transAxes)
     fig.suptitle(f"{scan.title}: mean over replicas", fontsize=10)
-    return _save(fig, folder / "growth_time_map.png")
+    return fig
 
 
 def make_figures(scan, rows: list[dict], folder) -> list[Path]:
