@@ -33,7 +33,7 @@ from pathlib import Path
 from ..numbers import finite_or_none
 
 __all__ = ["OUTPUTS", "Output", "build_study", "assess_output", "collect_study",
-           "write_study", "study_levels", "richardson", "DEFAULT_TOLERANCE"]
+           "write_study", "study_levels", "richardson", "DEFAULT_TOLERANCE", "draw_figure"]
 
 DEFAULT_TOLERANCE = 0.10
 
@@ -290,29 +290,69 @@ def write_study(study: dict, out: Path, figure: bool = True) -> list[Path]:
     return paths
 
 
+# How each headline output is shown in converge.png: (label in mathtext, unit, scale from the
+# unit of converge.json to the unit shown). An output not listed is shown by its name and unit.
+_SHOWN = {
+    "growth_rate": ("growth rate", r"$\omega_p$", 1.0),
+    "t_unity_ns": (r"time of max $\delta n/n$ = 1", "ns", 1.0),
+    "contrast_max": (r"max $\delta n/n$", "dimensionless", 1.0),
+    "clump_size_median_cm": ("median clump size (FWHM)", "cm", 1.0),
+    "k_c": (r"coherence cutoff $k_c$", r"$\omega_p/c$", 1.0),
+    "nu_c_hz": (r"coherence cutoff $\nu_c$", "GHz", 1e-9),
+}
+
+
 def _figure(study: dict, path: Path) -> Path:
     from .. import io
-    from ..plots import plt
+    return io.save_figure(draw_figure(study), path)
+
+
+def draw_figure(study: dict):
+    """converge.png (returned, not saved): each output's value and error bar against the level's
+    box.cells, in the units of its label (no offset notation), with the verdict."""
+    from ..plots import legend, plt, say_empty
     outs = study["outputs"]
     n = len(outs)
     cols = 3
     rows = (n + cols - 1) // cols
-    fig, axes = plt.subplots(rows, cols, figsize=(4.2 * cols, 3.3 * rows), squeeze=False)
+    fig, axes = plt.subplots(rows, cols, figsize=(4.4 * cols, 3.5 * rows), squeeze=False)
     for ax, (name, o) in zip(axes.flat, outs.items()):
+        label, unit, scale = _SHOWN.get(name, (name, o.get("unit") or "dimensionless", 1.0))
         cells = [lv["cells"] for lv in o["levels"]]
-        v = [lv["value"] if lv["value"] is not None else float("nan") for lv in o["levels"]]
-        e = [lv["err"] or 0.0 for lv in o["levels"]]
-        ax.errorbar(cells, v, yerr=e, marker="o", capsize=3)
+        v = [lv["value"] * scale if lv["value"] is not None else float("nan")
+             for lv in o["levels"]]
+        e = [(lv["err"] or 0.0) * scale for lv in o["levels"]]
+        have = [x == x for x in v]
+        if any(have):
+            ax.errorbar(cells, v, yerr=e, marker="o", capsize=3)
+            lim = [(c, lv["value"] * scale) for c, lv, ok in zip(cells, o["levels"], have)
+                   if ok and lv.get("grid_limited")]
+            if lim:
+                ax.plot([c for c, _ in lim], [y for _, y in lim], "s", color="C3", ms=11,
+                        mfc="none", mew=1.5, label="set by the grid")
+        else:
+            say_empty(ax, "no level has a value")
+        missing = [str(c) for c, ok in zip(cells, have) if not ok]
+        if missing and any(have):
+            ax.text(0.02, 0.02, "no value at " + ", ".join(missing) + " cells",
+                    transform=ax.transAxes, fontsize=7, color="0.3")
         if o.get("extrapolated") is not None:
-            ax.axhline(o["extrapolated"], color="0.5", ls="--", lw=0.8, label="Richardson")
-            ax.legend(fontsize=7)
+            ax.axhline(o["extrapolated"] * scale, color="0.5", ls="--", lw=0.8,
+                       label="Richardson estimate")
+        legend(ax, fontsize=7)
         ax.set_xscale("log", base=2)
+        ax.set_xticks(cells)
+        ax.set_xticklabels([str(c) for c in cells])
+        ax.set_xlim(cells[0] / 1.3, cells[-1] * 1.3)
+        ax.minorticks_off()
         ax.set_xlabel("box.cells")
-        ax.set_title(f"{name} [{o['unit']}]: {o['verdict']}", fontsize=9)
+        ax.set_ylabel(f"{label} [{unit}]", fontsize=9)
+        ax.ticklabel_format(axis="y", useOffset=False, style="plain")
+        ax.set_title(f"{label}: {o['verdict']}", fontsize=9)
     for ax in list(axes.flat)[n:]:
         ax.axis("off")
     fig.tight_layout()
-    return io.save_figure(fig, path)
+    return fig
 
 
 def read_manifest_scan(out: Path) -> dict | None:
