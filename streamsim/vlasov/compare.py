@@ -208,58 +208,87 @@ def peak_density(result) -> tuple[float, np.ndarray] | None:
 
 
 def draw(c: Comparison, folder: Path) -> list[Path]:
+    """Write the comparison figures into ``folder`` (atomic PNGs)."""
     from .. import io
-    from ..plots import plt
-    paths = []
+    return [io.save_figure(fig, Path(folder) / name) for name, fig in draw_figures(c).items()]
+
+
+def draw_figures(c: Comparison) -> dict:
+    """The comparison figures {file name: Figure} (drawn, not saved)."""
+    from ..plots import (DN, K_LABEL, T_LABEL, WP, X_LABEL, legend, length_cm_axis, log_limits,
+                         plot_positive, plt, positive, quiet_log_minor, say_empty, time_ns_axis)
+    figs = {}
     runs = {"pic": c.pic, "vlasov": c.vlasov}
     names = c.pic.data.names
+    n_cm3 = float(c.pic.data.deck.units.density_cm3)
 
-    fig, ax = plt.subplots(figsize=(7, 4.5))
+    fig, ax = plt.subplots(figsize=(7.5, 4.8))
+    curves = []
     for m, r in runs.items():
         s = r.data.series
-        ax.semilogy(s.t, np.where(s.field_energy > 0, s.field_energy, np.nan), lw=1, **STYLE[m])
-    ax.set_xlabel("t [1/w_p]")
-    ax.set_ylabel("field energy")
-    ax.set_title("field energy: PIC and Vlasov")
-    ax.legend()
-    paths.append(io.save_figure(fig, folder / "compare_field_energy.png"))
+        curves.append(s.field_energy)
+        ax.plot(s.t, positive(s.field_energy), lw=1, **STYLE[m])
+    if log_limits(ax, curves, decades=12.0, percentile=0.5):
+        ax.set_yscale("log")
+    else:
+        say_empty(ax, "the field stayed zero in both runs")
+    ax.set_xlabel(T_LABEL)
+    time_ns_axis(ax, n_cm3)
+    ax.set_ylabel(r"field energy [$n_{ref} m_e c^2 \, c/\omega_p$]")
+    ax.set_title("field energy: PIC and Vlasov", fontsize=10, pad=32)
+    legend(ax)
+    figs["compare_field_energy.png"] = fig
 
-    fig, ax = plt.subplots(figsize=(7, 4.5))
+    fig, ax = plt.subplots(figsize=(7.5, 4.8))
+    curves = []
     for m, r in runs.items():
         s = r.data.series
         for j, name in enumerate(names + ["total"]):
             y = s.contrast_max[:, j]
+            curves.append(y)
             st = dict(STYLE[m])
             st["label"] = f"{st['label']}, {name}"
-            ax.semilogy(s.t, np.where(y > 0, y, np.nan), lw=1, alpha=1.0 if j == 0 else 0.6,
-                        **{k: v for k, v in st.items() if k != "color"},
-                        color=plt.cm.tab10(j + (0 if m == "pic" else 3)))
+            ax.plot(s.t, positive(y), lw=1, alpha=1.0 if j == 0 else 0.6,
+                    **{k: v for k, v in st.items() if k != "color"},
+                    color=plt.cm.tab10(j + (0 if m == "pic" else 3)))
     ax.axhline(1.0, color="0.5", lw=0.8, ls=":")
-    ax.set_xlabel("t [1/w_p]")
-    ax.set_ylabel("max delta n/n")
-    ax.set_title("density contrast: PIC (solid) and Vlasov (dashed)")
-    ax.legend(fontsize=7, ncol=2)
-    paths.append(io.save_figure(fig, folder / "compare_contrast.png"))
+    if log_limits(ax, curves, decades=8.0, percentile=2.0):
+        ax.set_yscale("log")
+    else:
+        say_empty(ax, "the density stayed uniform in both runs")
+    ax.set_xlabel(T_LABEL)
+    time_ns_axis(ax, n_cm3)
+    ax.set_ylabel(f"max {DN} [dimensionless]")
+    ax.set_title("density contrast: PIC (solid) and Vlasov (dashed)", fontsize=10, pad=32)
+    legend(ax, fontsize=7, ncol=2)
+    figs["compare_contrast.png"] = fig
 
-    fig, axes = plt.subplots(len(names), 1, figsize=(8, 2.6 * len(names)), sharex=True,
+    fig, axes = plt.subplots(len(names), 1, figsize=(8, 2.8 * len(names)), sharex=True,
                              squeeze=False)
+    drawn = False
     for m, r in runs.items():
         got = peak_density(r)
         if got is None:
             continue
+        drawn = True
         t, dens = got
         x = np.arange(r.data.cells) * r.data.length / r.data.cells
         for s, name in enumerate(names):
             st = dict(STYLE[m])
-            st["label"] = f"{st['label']}, t = {t:.4g} /w_p"
+            st["label"] = f"{st['label']}, $t$ = {t:.4g}/{WP}"
             axes[s, 0].plot(x, dens[s] / dens[s].mean() - 1.0, lw=0.9, **st)
-            axes[s, 0].set_ylabel(f"dn/n, {name}")
-    axes[0, 0].legend(fontsize=8)
-    axes[0, 0].set_title("density at maximum contrast")
-    axes[-1, 0].set_xlabel("x [c/w_p]")
-    paths.append(io.save_figure(fig, folder / "compare_density.png"))
+    for s, name in enumerate(names):
+        axes[s, 0].set_ylabel(f"{DN}, {name} [dimensionless]")
+    if not drawn:
+        say_empty(axes[0, 0], "no density at maximum contrast in either run")
+    legend(axes[0, 0], fontsize=8)
+    axes[0, 0].set_title("density at maximum contrast", fontsize=10, pad=32)
+    length_cm_axis(axes[0, 0], n_cm3)
+    axes[-1, 0].set_xlabel(X_LABEL)
+    figs["compare_density.png"] = fig
 
-    fig, ax = plt.subplots(figsize=(7, 4.5))
+    fig, ax = plt.subplots(figsize=(7.5, 4.8))
+    curves = []
     for m, r in runs.items():
         co = r.analysis.get("coherence")
         tab = co.tables.get("form_factor") if co is not None else None
@@ -278,20 +307,28 @@ def draw(c: Comparison, folder: Path) -> list[Path]:
             keep = np.isfinite(P) & (P > 1e-14 * top) & (k > 0)
             if not keep.any():
                 continue
+            curves.append(P[keep])
             st = dict(STYLE[m])
             st["label"] = f"{st['label']}, {name} ({src})"
-            ax.loglog(k[keep], P[keep], lw=0.8, marker=".", ms=2, alpha=1.0 if j == 0
-                      else 0.6, **st)
+            plot_positive(ax, k[keep], P[keep], lw=0.8, marker=".", ms=2,
+                          alpha=1.0 if j == 0 else 0.6, **st)
         floor = (r.summary.get("coherence") or {}).get("noise_floor")
         if floor:
             ax.axhline(floor, color=STYLE[m]["color"], lw=0.8, ls=":",
-                       label=f"{STYLE[m]['label']} noise floor 1/N")
-    ax.set_xlabel("k [w_p/c]")
-    ax.set_ylabel("|F(k)|^2 (saturated-window average where recorded)")
-    ax.set_title("form factor: PIC particles and the Vlasov density")
-    ax.legend(fontsize=7)
-    paths.append(io.save_figure(fig, folder / "compare_form_factor.png"))
-    return paths
+                       label=f"{STYLE[m]['label']} noise floor $1/N$")
+    if log_limits(ax, curves, decades=10.0, percentile=1.0):
+        ax.set_xscale("log")
+        ax.set_yscale("log")
+        quiet_log_minor(ax)
+    else:
+        say_empty(ax, "no form factor above zero in either run")
+    ax.set_xlabel(K_LABEL)
+    ax.set_ylabel(r"form factor $|F(k)|^2$ [dimensionless]")
+    ax.set_title("form factor: PIC particles and the Vlasov density\n"
+                 "(saturated-window average where recorded)", fontsize=10)
+    legend(ax, fontsize=7)
+    figs["compare_form_factor.png"] = fig
+    return figs
 
 
 def _finite(x) -> bool:

@@ -196,7 +196,7 @@ def _draw(res: BlockResult, data):
         ax.axvline(tu, color="0.5", lw=0.8, label=f"max {DN} = 1 at $t$ = {tu:.4g}/{WP}{ns}")
     ax.set_xlabel(T_LABEL)
     time_ns_axis(ax, data.deck.units.density_cm3)
-    ax.set_ylabel(f"density contrast {DN}")
+    ax.set_ylabel(f"density contrast {DN} [dimensionless]")
     ax.set_title("density contrast", fontsize=10, pad=32)
     legend(ax, fontsize=7, ncol=2, loc="lower right")
     return fig

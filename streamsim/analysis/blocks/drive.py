@@ -244,7 +244,7 @@ def _draw_hist(res: BlockResult, data):
         used = np.where(ok.any(axis=1))[0]
         pad = 2
         ax.set_ylim(edges[max(0, used[0] - pad)], edges[min(B, used[-1] + 1 + pad)])
-        ax.set_ylabel(r"$\log_{10}(\gamma - 1)$" + f", {n}")
+        ax.set_ylabel(r"$\log_{10}(\gamma - 1)$" + f", {n} [dimensionless]")
     axes[-1, 0].set_xlabel(T_LABEL)
     time_ns_axis(axes[0, 0], data.deck.units.density_cm3)
     axes[0, 0].set_title(r"distribution of the Lorentz factor $\gamma$ (blank: no particle)",

@@ -396,7 +396,7 @@ def _draw(res: BlockResult, data):
         a3.set_yscale("log")
     else:
         say_empty(a3, "the density stayed uniform")
-    a3.set_ylabel(f"max {DN}")
+    a3.set_ylabel(f"max {DN} [dimensionless]")
     a3.set_xlabel(T_LABEL)
     legend(a3, fontsize=7)
     for a in (a1, a2, a3):

@@ -40,7 +40,7 @@ def _draw(res: BlockResult, data):
             u = np.asarray(ps.u.get(name, []))
             if x.ndim == 2 and x.shape[0] > i:
                 ax.plot(x[i], u[i], ",", alpha=0.6, color=colours[j % len(colours)])
-        ax.set_ylabel(r"$u = \gamma\beta = p/mc$")
+        ax.set_ylabel(r"momentum $u = \gamma\beta$ [$m c$]")
         ax.text(0.01, 0.88, f"$t$ = {t[i]:.4g}/{WP} = "
                 f"{units.time_ns(float(t[i]), data.deck.units.density_cm3):.3g} ns",
                 transform=ax.transAxes, fontsize=8,
@@ -81,7 +81,7 @@ def _draw_continuum(dist, data):
                     f"{units.time_ns(float(t[i]), data.deck.units.density_cm3):.3g} ns",
                     transform=ax.transAxes, fontsize=8, color="w")
             if s == 0:
-                ax.set_ylabel(r"$u = \gamma\beta = p/mc$")
+                ax.set_ylabel(r"momentum $u = \gamma\beta$ [$m c$]")
     for s in range(S):
         axes[-1, s].set_xlabel(X_LABEL)
         length_cm_axis(axes[0, s], data.deck.units.density_cm3)
