@@ -74,7 +74,8 @@ class Progress(Handler):
         now = _time.perf_counter()
         if now - self.last > 0.25 or sim.step == sim.steps:
             rate = (sim.step - self.step0) * self.n_particles / max(now - self.wall0, 1e-9)
-            self.bar.set_postfix_str(f"t={sim.step * sim.dt:.1f}/wp, {rate:.2e} particle-steps/s",
+            self.bar.set_postfix_str(f"t={sim.step * sim.dt:.1f}/omega_p, "
+                                     f"{rate:.2e} particle-steps/s",
                                      refresh=False)
             self.bar.update(sim.step - self.bar.n)
             self.last = now

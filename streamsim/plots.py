@@ -16,7 +16,8 @@ import numpy as np  # noqa: E402
 
 __all__ = ["plt", "message_figure", "draw_figures", "WP", "T_LABEL", "X_LABEL", "K_LABEL",
            "DN", "KC", "NUC", "positive", "time_ns_axis", "length_cm_axis", "ghz_axis",
-           "log_limits", "say_empty", "legend", "plot_positive", "quiet_log_minor", "SUMMARY_KEYS", "summary_value"]
+           "log_limits", "say_empty", "legend", "plot_positive", "quiet_log_minor",
+           "SUMMARY_KEYS", "summary_value"]
 
 # One notation in every figure (mathtext): the plasma frequency, the normalised axes, the density
 # contrast and the coherence cutoff.

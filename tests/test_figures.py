@@ -202,7 +202,8 @@ def test_scan_figures_have_units_and_no_offset_notation():
             for p, n in enumerate(axis.values)]
     with warnings.catch_warnings():
         warnings.simplefilter("error")
-        figs = {"nu": draw_nu_c_vs_axis(scan, rows, 0), "growth": draw_growth_vs_axis(scan, rows, 0)}
+        figs = {"nu": draw_nu_c_vs_axis(scan, rows, 0),
+                "growth": draw_growth_vs_axis(scan, rows, 0)}
         for fig in figs.values():
             fig.canvas.draw()
     for file, fig in figs.items():

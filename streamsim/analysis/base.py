@@ -109,12 +109,12 @@ class Context:
 
 
 def at_ns(t, density_cm3: float, spec: str = ".4g") -> str:
-    """A time for a terminal line in both units: "t /w_p = t_ns ns" ('n/a' for None)."""
+    """A time for a terminal line in both units: "t /omega_p = t_ns ns" ('n/a' for None)."""
     from ..units import time_ns
     v = finite_or_none(t)
     if v is None:
         return "n/a"
-    return f"{format(v, spec)} /w_p = {format(time_ns(v, density_cm3), '.3g')} ns"
+    return f"{format(v, spec)} /omega_p = {format(time_ns(v, density_cm3), '.3g')} ns"
 
 
 def rate_ns(rate, density_cm3: float) -> str:

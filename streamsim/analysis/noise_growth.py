@@ -167,7 +167,7 @@ def reason_text(lv: Levels, min_efolds: float = NOISE_MIN_EFOLDS) -> str:
     if lv.efolds is None:
         return "too few positive samples to measure a growth"
     span = (f"the signal rises {lv.efolds:.2g} e-folds between the noise level {lv.noise:.2g} "
-            f"and saturation {lv.saturation:.2g} (t = {lv.t_saturation:.3g} /w_p)")
+            f"and saturation {lv.saturation:.2g} (t = {lv.t_saturation:.3g} /omega_p)")
     if lv.efolds < min_efolds + 0.5:
         return f"the linear phase is too short: {span}; at least {min_efolds + 0.5:g} needed"
     return f"no window where noise plus one exponential fits: {span}"

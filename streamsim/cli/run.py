@@ -100,7 +100,7 @@ def replica_lines(res) -> str:
     th = f" (theory {res.theory_growth:.4g})" if res.theory_growth else ""
     return "\n".join([
         f"{done} of {len(res.rows)} replicas completed; mean +- standard error of the mean:",
-        f"  fastest growth rate: {pm(res.growth, '.4g')} w_p{th}",
+        f"  fastest growth rate: {pm(res.growth, '.4g')} omega_p{th}",
         f"  t_unity: {pm(res.t_unity_ns, '.4g')} ns",
         *_emission_lines(getattr(res, "emission", {}) or {}),
         f"  every replica in {res.out / 'replicas.csv'}"])

@@ -129,8 +129,8 @@ def _table(d: dict, title: str, all_modes: bool = False) -> str:
     if modes:
         floor = max([floor] + [abs(m["growth"] or 0.0) for m in modes])
         lines.append("    {:>5} {:>12} {:>13} {:>12} {:>14}".format(
-            "m", "k [w_p/c]", "growth [w_p]", "w_r [w_p]", "1/growth [ns]")
-            + ("  maxwellian growth [w_p]" if alt else ""))
+            "m", "k [omega_p/c]", "growth [omega_p]", "omega_r [omega_p]", "1/growth [ns]")
+            + ("  maxwellian growth [omega_p]" if alt else ""))
         rows, cut = mode_rows(modes, all_modes)
         for m in rows:
             s = _mode_scale(m, floor)

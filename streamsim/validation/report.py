@@ -231,7 +231,7 @@ def fig_pic_vlasov(d, path):
     fig, ax = plt.subplots(figsize=(6.4, 4))
     ax.semilogy(d["t"], d["field_energy_pic"], lw=1, label="PIC")
     ax.semilogy(d["t"], d["field_energy_vlasov"], "--", lw=1, label="Vlasov")
-    ax.set_xlabel("t [1/w_p]")
+    ax.set_xlabel(r"$t$ [$1/\omega_p$]")
     ax.set_ylabel("field energy")
     ax.set_title("warm pair beams: PIC and Vlasov")
     ax.legend()

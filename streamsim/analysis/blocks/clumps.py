@@ -243,12 +243,12 @@ def _lines(cl: dict, n_cm3: float) -> list[str]:
         pm = f" +- {err:.2g}" if err is not None else ""
         w = cl.get("window")
         when = (f"per record over the saturated window [{fmt(w.get('t0'), '.4g')}, "
-                f"{fmt(w.get('t1'), '.4g')}] /w_p" if cl.get("snapshot") == "window" and w
+                f"{fmt(w.get('t1'), '.4g')}] /omega_p" if cl.get("snapshot") == "window" and w
                 else f"at t = {at_ns(cl.get('t'), n_cm3)}")
         dom = (cl.get("error_budget_cm") or {}).get("dominant")
-        line = (f"clumps (dn/n > {fmt(cl.get('threshold'), 'g')}): {cl['count']} {when}, "
+        line = (f"clumps (delta n/n > {fmt(cl.get('threshold'), 'g')}): {cl['count']} {when}, "
                 f"median FWHM {fmt(cl.get('size_median'), '.3g')} "
-                f"c/w_p = {fmt(cl.get('size_median_cm'), '.3g')}{pm} cm"
+                f"c/omega_p = {fmt(cl.get('size_median_cm'), '.3g')}{pm} cm"
                 + (f" (largest error term: {dom})" if dom else ""))
         if cl.get("grid_limited"):
             fix = ("give the beams a temperature or raise box.cells" if cl.get("cold_species")
@@ -258,7 +258,7 @@ def _lines(cl: dict, n_cm3: float) -> list[str]:
                      f"{fix}")
         out.append(line)
     else:
-        out.append(f"no clump above dn/n > {fmt(cl.get('threshold'), 'g')}")
+        out.append(f"no clump above delta n/n > {fmt(cl.get('threshold'), 'g')}")
     if cl.get("cold_species"):
         out.append(f"  cold species ({', '.join(cl['cold_species'])}): {cl['cold_note']}")
     return out

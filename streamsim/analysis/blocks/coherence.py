@@ -300,8 +300,8 @@ def _where(co: dict) -> str:
     w = co.get("window")
     if co.get("snapshot") == "window" and w:
         return (f"averaged over the saturated window [{fmt(w.get('t0'), '.4g')}, "
-                f"{fmt(w.get('t1'), '.4g')}] /w_p")
-    return f"at t = {fmt(co.get('t'), '.4g')} /w_p ({co.get('snapshot')} snapshot)"
+                f"{fmt(w.get('t1'), '.4g')}] /omega_p")
+    return f"at t = {fmt(co.get('t'), '.4g')} /omega_p ({co.get('snapshot')} snapshot)"
 
 
 def _pm(co: dict, key: str) -> str:
@@ -342,7 +342,7 @@ def _main_lines(co: dict) -> list[str]:
               "analysis.coherence_kmax_factor)" if co.get("lower_bound") else "")
         return [f"coherent emission up to nu_c = {co['frequency_cutoff_hz'] / 1e9:.3g}"
                 f"{_pm(co, 'frequency_cutoff_hz_err')} {_where(co)} "
-                f"(k_c = {fmt(co.get('k_cutoff'), '.3g')} w_p/c = "
+                f"(k_c = {fmt(co.get('k_cutoff'), '.3g')} omega_p/c = "
                 f"{fmt(co.get('k_cutoff_per_cm'), '.3g')} /cm, {co.get('species')}, "
                 f"bulk Gamma = {G:.4g}, noise floor 1/N = {fmt(co.get('noise_floor'), '.2g')})"
                 f"{lb}", note]
@@ -354,8 +354,8 @@ def _main_lines(co: dict) -> list[str]:
 
 
 def _draw(res: BlockResult, data):
-    from ...plots import (K_LABEL, KC, NUC, WP, ghz_axis, legend, log_limits, message_figure, plot_positive,
-                          plt, quiet_log_minor, say_empty, summary_value)
+    from ...plots import (K_LABEL, KC, NUC, WP, ghz_axis, legend, log_limits, message_figure,
+                          plot_positive, plt, quiet_log_minor, say_empty, summary_value)
     co = res.summary["coherence"]
     src = co.get("snapshot")
     tab = res.tables["form_factor"]

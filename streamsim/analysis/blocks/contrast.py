@@ -119,8 +119,8 @@ def _start(block: dict, ctx: Context) -> list[str]:
         below = bool(noise > _ct.NOISE_MARGIN * seed)
         block["seed_below_noise"] = below
         if below:
-            warnings.append(f"the seed (max dn/n = {seed:.2g}) lies below the loading's own "
-                            f"noise (median max dn/n = {noise:.2g} before the growth), so "
+            warnings.append(f"the seed (max delta n/n = {seed:.2g}) lies below the loading's own "
+                            f"noise (median max delta n/n = {noise:.2g} before the growth), so "
                             "t_unity is set by the loading, not by perturbation.amplitude; "
                             + ("contrast.t_unity_ns_for_level extrapolates from "
                                f"analysis.initial_level = {asked:g}; raise the amplitude or the "
@@ -150,25 +150,25 @@ def _lines(c: dict, n_cm3: float) -> list[str]:
     if c.get("max") is None:
         return ["density contrast: not recorded"]
     if c.get("t_unity") is not None:
-        out = [f"clumps form (max dn/n >= 1) at t = {fmt(c['t_unity'])} /w_p = "
-               f"{fmt(c.get('t_unity_ns'))} ns; max dn/n = {fmt(c['max'], '.3g')} "
+        out = [f"clumps form (max delta n/n >= 1) at t = {fmt(c['t_unity'])} /omega_p = "
+               f"{fmt(c.get('t_unity_ns'))} ns; max delta n/n = {fmt(c['max'], '.3g')} "
                f"at t = {at_ns(c.get('t_max'), n_cm3)}"
                + (" (not converged: cold-beam caustics, set by the grid; give the beams a "
                   "temperature)" if c.get("max_grid_limited") else "")]
     else:
-        out = [f"no clump formation: max dn/n = {fmt(c['max'], '.3g')} < 1 "
+        out = [f"no clump formation: max delta n/n = {fmt(c['max'], '.3g')} < 1 "
                f"(at t = {at_ns(c.get('t_max'), n_cm3)})"]
     if c.get("initial_level") is not None:
-        line = (f"  grown from dn/n = {fmt(c['initial_level'], '.2g')} at t = "
+        line = (f"  grown from delta n/n = {fmt(c['initial_level'], '.2g')} at t = "
                 f"{at_ns(c.get('initial_level_t'), n_cm3, '.3g')} "
                 f"({fmt(c.get('efolds_to_unity'), '.3g')} e-folds to unity)")
         if c.get("t_unity_ns_for_level") is not None:
             e = c.get("t_unity_ns_for_level_err")
-            line += (f"; from dn/n = {fmt(c.get('level_asked'), '.2g')}: t_unity = "
+            line += (f"; from delta n/n = {fmt(c.get('level_asked'), '.2g')}: t_unity = "
                      f"{fmt(c['t_unity_ns_for_level'])}"
                      + (f" +- {e:.2g}" if e is not None else " (no error: theory rate)")
                      + f" ns (extrapolated at gamma = {fmt(c.get('extrapolation_rate'), '.3g')}"
-                     f" w_p, {(c.get('extrapolation_rate_source') or '').split(' (')[0]})")
+                     f" omega_p, {(c.get('extrapolation_rate_source') or '').split(' (')[0]})")
         out.append(line)
     return out
 

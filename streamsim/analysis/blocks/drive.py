@@ -157,7 +157,7 @@ def _lines(e: dict, names) -> list[str]:
     lines = [f"drive: max |J_ext| = {fmt(e['current_max'])} e n_ref c = {fmt(e['ratio'], '.3g')}"
              f" x the carrying limit {fmt(e['carrying_limit'])}"
              + (" (charge-starved)" if e["charge_starved"] else ""),
-             f"  max |E0| = {fmt(e['e_parallel_max'])} m_e c w_p/e = "
+             f"  max |E0| = {fmt(e['e_parallel_max'])} m_e c omega_p/e = "
              f"{fmt(e['e_parallel_max_statv_cm'])} statV/cm; energy balance error "
              f"{fmt(e['energy_balance_error'], '.2e')} of the energy gained",
              "  Lorentz factors at the end: " + ", ".join(
@@ -167,13 +167,14 @@ def _lines(e: dict, names) -> list[str]:
     hm = th.get("headline_mode")
     if hm:
         lines.append(f"  theory at the driven state (t = {fmt(th['t'], '.4g')}, "
-                     f"{th['t_chosen_by']}): mode {hm['mode']} grows at {fmt(hm['theory'])} w_p"
+                     f"{th['t_chosen_by']}): mode {hm['mode']} grows at {fmt(hm['theory'])} omega_p"
                      f", measured {fmt(hm['measured'])}"
                      + (f" (ratio {fmt(hm['ratio'], '.3f')})" if hm.get("ratio") else
                         f" ({hm.get('status')})" if hm.get("measured") is None else ""))
     elif th.get("fastest"):
         lines.append(f"  theory at the driven state (t = {fmt(th['t'], '.4g')}): fastest growth "
-                     f"{fmt(th['fastest']['growth'])} w_p at k = {fmt(th['fastest']['k'])} w_p/c")
+                     f"{fmt(th['fastest']['growth'])} omega_p at k = "
+                     f"{fmt(th['fastest']['k'])} omega_p/c")
     return lines
 
 

@@ -184,7 +184,7 @@ def compute(ctx: Context) -> BlockResult:
     warnings = []
     if n and win["t0"] is not None and not win["long_enough"]:
         need = win["end_needed"]
-        warnings.append(f"the saturated window [{win['t0']:.4g}, {win['t1']:.4g}] /w_p is too "
+        warnings.append(f"the saturated window [{win['t0']:.4g}, {win['t1']:.4g}] /omega_p is too "
                         f"short for emission numbers ({win['records']} records; "
                         f"{win['criterion']}): set time.end >= {need:.4g} "
                         f"({_ns(need, to_ns):.3g} ns)")
@@ -331,7 +331,7 @@ def _lines(head: dict) -> list[str]:
     w = head["window"]
     if w.get("t0") is None or not head["records"]["count"]:
         return [f"emission: {head['records']['source']}"]
-    out = [f"emission window [{w['t0']:.4g}, {w['t1']:.4g}] /w_p = "
+    out = [f"emission window [{w['t0']:.4g}, {w['t1']:.4g}] /omega_p = "
            f"[{fmt(w.get('t0_ns'), '.3g')}, {fmt(w.get('t1_ns'), '.3g')}] ns "
            f"({w['records']} records, {w['how']})"]
     fb = head.get("frequency_cutoff_budget")

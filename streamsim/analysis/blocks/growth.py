@@ -175,9 +175,9 @@ def _lines(g: dict, modes: list[dict], fe: dict, n_cm3: float) -> list[str]:
                      "plasma): nothing grows to fit; seeded stable modes, if any, are fitted as "
                      "oscillations")
     elif g.get("measured") is None:
-        th = (f" (theory {fmt(g.get('theory'))} w_p, e-folding time "
+        th = (f" (theory {fmt(g.get('theory'))} omega_p, e-folding time "
               f"{rate_ns(g.get('theory'), n_cm3)})" if g.get("theory") is not None else "")
-        lines.append(f"growth, mode {g['mode']} (k = {fmt(g.get('k'))} w_p/c): "
+        lines.append(f"growth, mode {g['mode']} (k = {fmt(g.get('k'))} omega_p/c): "
                      f"{g.get('status') or _gr.NO_PHASE}{th}")
         if g.get("reason"):
             lines.append(f"  why: {g['reason']}")
@@ -199,16 +199,16 @@ def _lines(g: dict, modes: list[dict], fe: dict, n_cm3: float) -> list[str]:
         sy = finite_or_none(g.get("systematic"))
         syst = (f" (incl. systematic {fmt(sy, '.2g')}: half the slope change between the "
                 "window's halves)" if sy is not None else "")
-        lines.append(f"growth, mode {g['mode']} (k = {fmt(g.get('k'))} w_p/c): measured "
-                     f"{fmt(g['measured'])} +- {fmt(g.get('measured_err'), '.2g')} w_p{syst}"
+        lines.append(f"growth, mode {g['mode']} (k = {fmt(g.get('k'))} omega_p/c): measured "
+                     f"{fmt(g['measured'])} +- {fmt(g.get('measured_err'), '.2g')} omega_p{syst}"
                      f"{th}{tau}, "
-                     f"fitted over t = {fmt(w[0], '.3g')}..{fmt(w[1], '.3g')} /w_p "
+                     f"fitted over t = {fmt(w[0], '.3g')}..{fmt(w[1], '.3g')} /omega_p "
                      f"[{g.get('method')}]")
     if fe.get("measured") is not None:
         th = (f" (theory 2*gamma = {fmt(fe['theory'])}, {rate_ns(fe['theory'], n_cm3)})"
               if fe.get("theory") else "")
         lines.append(f"field energy grows at {fmt(fe['measured'])} +- "
-                     f"{fmt(fe.get('measured_err'), '.2g')} w_p, e-folding time "
+                     f"{fmt(fe.get('measured_err'), '.2g')} omega_p, e-folding time "
                      f"{rate_ns(fe['measured'], n_cm3)}{th} [{fe.get('method')}]")
         if fe.get("flag"):
             lines.append(f"  warning: {fe['flag']}")
@@ -239,7 +239,8 @@ def _draw_field_energy(res: BlockResult, data):
             tt = t[sel]
             b = float(np.mean(np.log(W[sel]) - fe["measured"] * tt))
             ax.semilogy(tt, np.exp(b + fe["measured"] * tt), "--", lw=2,
-                        label=f"fit: {fe['measured']:.4g} {WP} (= 2 $\\times$ {fe['measured'] / 2:.4g})")
+                        label=f"fit: {fe['measured']:.4g} {WP} "
+                              f"(= 2 $\\times$ {fe['measured'] / 2:.4g})")
             if fe.get("theory"):
                 tm = 0.5 * (t0 + t1)
                 Wm = math.exp(b + fe["measured"] * tm)

@@ -53,7 +53,7 @@ def _line(o: dict, n_cm3: float) -> str:
     rate = finite_or_none(o.get("rate"))
     tau = (f", damping time {rate_ns(-rate, n_cm3)}" if rate is not None and rate < 0 else
            f", e-folding time {rate_ns(rate, n_cm3)}" if rate else "")
-    return (f"seeded mode {o['mode']} (k = {fmt(o['k'])} w_p/c) rings at "
-            f"{fmt(o['omega_r'], '.4f')} +- {fmt(o.get('omega_r_err'), '.1g')} w_p "
+    return (f"seeded mode {o['mode']} (k = {fmt(o['k'])} omega_p/c) rings at "
+            f"{fmt(o['omega_r'], '.4f')} +- {fmt(o.get('omega_r_err'), '.1g')} omega_p "
             f"({_ghz(o['omega_r'], n_cm3)}), rate {fmt(o['rate'], '.4f')} +- "
-            f"{fmt(o.get('rate_err'), '.1g')} w_p{tau}{th}")
+            f"{fmt(o.get('rate_err'), '.1g')} omega_p{tau}{th}")
