@@ -16,7 +16,7 @@ import numpy as np  # noqa: E402
 
 __all__ = ["plt", "message_figure", "draw_figures", "WP", "T_LABEL", "X_LABEL", "K_LABEL",
            "DN", "KC", "NUC", "positive", "time_ns_axis", "length_cm_axis", "ghz_axis",
-           "log_limits", "say_empty", "legend", "plot_positive", "quiet_log_minor",
+           "log_limits", "say_empty", "legend", "plot_positive", "quiet_log_minor", "top_positive",
            "SUMMARY_KEYS", "summary_value"]
 
 # One notation in every figure (mathtext): the plasma frequency, the normalised axes, the density
@@ -55,6 +55,17 @@ def positive(y):
     """y with the values <= 0 (and non-finite ones) as NaN, for a log axis."""
     y = np.asarray(y, float)
     return np.where(np.isfinite(y) & (y > 0), y, np.nan)
+
+
+def top_positive(arrays) -> float:
+    """The largest positive finite value of the arrays (0 if none), without numpy warnings."""
+    top = 0.0
+    for a in arrays:
+        a = np.asarray(a, float).ravel()
+        a = a[np.isfinite(a) & (a > 0)]
+        if a.size:
+            top = max(top, float(a.max()))
+    return top
 
 
 def plot_positive(ax, x, y, *args, **kw):
@@ -120,10 +131,10 @@ def log_limits(ax, arrays, decades: float = 8.0, percentile: float = 2.0, floor=
     return True
 
 
-def say_empty(ax, text: str):
-    """Say inside the axes why there is nothing to show."""
-    ax.text(0.5, 0.5, text, ha="center", va="center", transform=ax.transAxes, fontsize=9,
-            color="0.3", wrap=True)
+def say_empty(ax, text: str, y: float = 0.5):
+    """Say inside the axes (at height ``y`` of the axes) why there is nothing to show."""
+    ax.text(0.5, y, text, ha="center", va="center", transform=ax.transAxes, fontsize=9,
+            color="0.3", wrap=True, bbox=dict(facecolor="w", alpha=0.8, lw=0))
 
 
 def legend(ax, **kw):

@@ -154,6 +154,18 @@ def test_a_uniform_plasma_draws_without_warning_and_says_so():
     said = [t.get_text() for ax in fig.axes for t in ax.texts]
     assert any("uniform" in t for t in said), said
     _close({"c": fig})
+    # a contrast at float64 round-off (2.2e-16, a uniform density summed over the grid) is
+    # drawn, and the figure says what it is
+    for name in list(tab.columns):
+        if name.startswith(("max_", "rms_")):
+            tab.columns[name] = np.full(len(tab), 2.2e-16)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        fig = res.figures[0].draw(res, r.data)
+        fig.canvas.draw()
+    said = [t.get_text() for ax in fig.axes for t in ax.texts]
+    assert any("round-off" in t for t in said), said
+    _close({"c": fig})
 
 
 def _study():

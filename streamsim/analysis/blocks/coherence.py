@@ -404,5 +404,7 @@ def _draw(res: BlockResult, data):
         legend(ax, fontsize=7, loc="lower left")
     else:
         say_empty(ax, "the density stayed uniform: no form factor above zero")
+        if k.size:
+            ax.set_xlim(float(k.min()), float(k.max()))
     ax.set_title(f"form factor {when}; {txt}", fontsize=9, pad=32)
     return fig

@@ -173,9 +173,13 @@ def _lines(c: dict, n_cm3: float) -> list[str]:
     return out
 
 
+#: a contrast below this is round-off of a uniform density (float64 sums over the grid)
+ROUND_OFF = 1e-12
+
+
 def _draw(res: BlockResult, data):
     from ...plots import (DN, T_LABEL, WP, legend, log_limits, plt, positive, say_empty,
-                          summary_value, time_ns_axis)
+                          summary_value, time_ns_axis, top_positive)
     tab = res.tables["contrast"]
     t = tab.col("t")
     fig, ax = plt.subplots(figsize=(7.5, 4.8))
@@ -188,6 +192,10 @@ def _draw(res: BlockResult, data):
     ax.axhline(1.0, color="0.5", lw=0.8, ls=":")
     if log_limits(ax, curves, decades=8.0, percentile=2.0):
         ax.set_yscale("log")
+        top = top_positive(curves)
+        if top < ROUND_OFF:
+            say_empty(ax, f"the density stayed uniform to round-off (max {DN} = {top:.2g})",
+                      y=0.8)
     else:
         say_empty(ax, "the density stayed uniform: no contrast above zero")
     tu, tu_ns = summary_value(res.summary, "t_unity"), summary_value(res.summary, "t_unity_ns")

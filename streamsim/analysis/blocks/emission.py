@@ -351,7 +351,7 @@ def _lines(head: dict) -> list[str]:
 
 def _draw(res: BlockResult, data):
     from ...plots import (DN, NUC, T_LABEL, legend, log_limits, message_figure, plt, positive,
-                          say_empty, summary_value, time_ns_axis)
+                          say_empty, summary_value, time_ns_axis, top_positive)
     tab = res.tables["emission_series"]
     head = res.summary["emission"]
     if not len(tab):
@@ -383,6 +383,8 @@ def _draw(res: BlockResult, data):
         e = summary_value(res.summary, "emission_size_err_cm") or 0
         a2.axhspan(v - e, v + e, color="C1", alpha=0.25,
                    label=f"window: {v:.3g} $\\pm$ {e:.2g} cm")
+    if not np.isfinite(np.asarray(tab.col("size_median_cm"), float)).any():
+        say_empty(a2, "no clump at any record")
     a2.set_ylabel("clump size (FWHM) [cm]")
     a2.ticklabel_format(axis="y", useOffset=False)
     legend(a2, fontsize=7)
@@ -394,6 +396,8 @@ def _draw(res: BlockResult, data):
     a3.axhline(1.0, color="0.5", ls=":", lw=1)
     if log_limits(a3, cols, decades=4.0, percentile=2.0):
         a3.set_yscale("log")
+        if top_positive(cols) < 1e-12:
+            say_empty(a3, "the density stayed uniform to round-off", y=0.8)
     else:
         say_empty(a3, "the density stayed uniform")
     a3.set_ylabel(f"max {DN} [dimensionless]")

@@ -230,6 +230,8 @@ def _draw_field_energy(res: BlockResult, data):
         ax.semilogy(t[ok], W[ok], color="0.2", lw=1.2, label="field energy")
     else:
         say_empty(ax, "the field stayed zero")
+        if t.size:
+            ax.set_xlim(t[0], t[-1])
     fe = res.summary["field_energy_growth"]
     g = res.summary["growth"]
     if fe.get("window"):
