@@ -203,10 +203,10 @@ def _plot(disp, path: str, title: str) -> None:
                      (disp.fastest.k, disp.fastest.growth), textcoords="offset points",
                      xytext=(6, -12), fontsize=8)
     ax1.axhline(0.0, color="0.6", lw=0.8)
-    ax1.set_ylabel("growth rate γ [ω_p]")
-    ax2.set_ylabel("real frequency ω_r [ω_p]"
+    ax1.set_ylabel(r"growth rate $\gamma$ [$\omega_p$]")
+    ax2.set_ylabel(r"real frequency $\omega_r$ [$\omega_p$]"
                    + ("\n(growing root only)" if disp.fastest is not None else ""))
-    ax2.set_xlabel("k [ω_p/c]")
+    ax2.set_xlabel(r"$k$ [$\omega_p/c$]")
     ax1.legend(fontsize=8)
     ax1.set_title(f"linear theory: {title}", fontsize=10)
     save_figure(fig, path, dpi=120)

@@ -113,8 +113,8 @@ def fig_oscillation(d, path):
     fig, ax = plt.subplots(figsize=(7, 3.2))
     t, s = np.array(d["t"]), np.array(d["signal"])
     ax.plot(t, s, lw=0.8, label="E_1(t), measured")
-    ax.set_xlabel("t [1/ω_p]")
-    ax.set_ylabel("E_1 component")
+    ax.set_xlabel(r"$t$ [$1/\omega_p$]")
+    ax.set_ylabel(r"$E_1$ [$m_e c\,\omega_p/e$]")
     ax.set_title(f"cold plasma oscillation: fitted ω = {d['omega']:.6f} ω_p (Δt = {d['dt']})",
                  fontsize=9)
     ax.legend(fontsize=8)
@@ -144,7 +144,7 @@ def _compare(path, curves, points, xlabel, ylabel, *, scale=1.0, log=False, vlin
 def fig_langmuir(d, path):
     _compare(path, [(d["k"], d["bohm_gross"], "-", "Bohm–Gross √(1+3k²λ_D²)"),
                     (d["k"], d["maxwellian"], "--", "Maxwellian root (wofz)")],
-             _points(d["points"], "k_lambda", "omega"), "k λ_D", "ω / ω_p")
+             _points(d["points"], "k_lambda", "omega"), r"$k\lambda_D$ [dimensionless]", r"$\omega/\omega_p$ [dimensionless]")
 
 
 def fig_landau(d, path):
@@ -160,31 +160,31 @@ def fig_landau(d, path):
                     label=f"e^(−γt), γ = {c['ref_gamma']:.4f} (root)")
         ax.set_ylim(a0 * 1e-3, a0 * 3)
         ax.set_title(f"kλ_D = {c['k_lambda']}: fitted γ = {c['fit_gamma']:.4f}", fontsize=9)
-        ax.set_xlabel("t [1/ω_p]")
+        ax.set_xlabel(r"$t$ [$1/\omega_p$]")
         ax.legend(fontsize=7, loc="lower left")
     save_figure(fig, path)
 
 
 def fig_two_stream(d, path):
     _compare(path, [(d["x"], d["curve"], "-", "cold root")], _points(d["points"], "x"),
-             "k v₀ / ω_b", "growth / ω_b", scale=d["omega_b"], vline=math.sqrt(3) / 2)
+             r"$k v_0/\omega_b$ [dimensionless]", r"growth rate [$\omega_b$]", scale=d["omega_b"], vline=math.sqrt(3) / 2)
 
 
 def fig_weak_beam(d, path):
     _compare(path, [(d["ratio"], d["law"], "-", "(√3/2^{4/3})(n_b/n_p)^{1/3}/γ_b"),
                     (d["ratio"], d["root"], "--", "exact cold root at k v_b = ω_p")],
-             _points(d["points"], "ratio"), "n_b / n_p", "growth / ω_p", log=True)
+             _points(d["points"], "ratio"), r"$n_b/n_p$ [dimensionless]", r"growth rate [$\omega_p$]", log=True)
 
 
 def fig_relativistic(d, path):
     _compare(path, [(d["gamma0"], d["law"], "-", "ω_b/2 ∝ γ₀^{-3/2}")],
-             _points(d["points"], "gamma0"), "γ₀", "max growth / ω_p", log=True)
+             _points(d["points"], "gamma0"), r"$\gamma_0$ [dimensionless]", r"max growth rate [$\omega_p$]", log=True)
 
 
 def fig_warm(d, path):
     _compare(path, [(d["k"], d["curve"], "-", "Jüttner kinetic root (quad)"),
                     (d["k"], d["cold"], ":", "cold root (same drift)")],
-             _points(d["points"], "k"), "k [ω_p/c]", "growth / ω_p", ylim0=True)
+             _points(d["points"], "k"), r"$k$ [$\omega_p/c$]", r"growth rate [$\omega_p$]", ylim0=True)
 
 
 def fig_conservation(d, path):
@@ -194,10 +194,10 @@ def fig_conservation(d, path):
         t = np.array(c["t"])
         a1.semilogy(t, np.array(c["energy"]) + 1e-17, label=name)
         a2.semilogy(t, np.array(c["momentum"]) + 1e-18, label=name)
-    a1.set_ylabel("|W(t) − W(0)| / W(0)")
-    a2.set_ylabel("|P(t) − P(0)| / Σ|P|")
+    a1.set_ylabel(r"$|W(t) - W(0)|/W(0)$ [dimensionless]")
+    a2.set_ylabel(r"$|P(t) - P(0)|/\Sigma|P|$ [dimensionless]")
     for a in (a1, a2):
-        a.set_xlabel("t [1/ω_p]")
+        a.set_xlabel(r"$t$ [$1/\omega_p$]")
         a.legend(fontsize=7)
     save_figure(fig, path)
 
@@ -213,8 +213,8 @@ def fig_convergence(d, path):
               label="leapfrog (2/Δt) asin(Δt/2) − 1")
     from matplotlib.ticker import NullFormatter
     a1.xaxis.set_minor_formatter(NullFormatter())
-    a1.set_xlabel("ω_p Δt")
-    a1.set_ylabel("frequency error / ω_p")
+    a1.set_xlabel(r"$\omega_p \Delta t$ [dimensionless]")
+    a1.set_ylabel(r"frequency error [$\omega_p$]")
     a1.legend(fontsize=7)
     ppc = np.array(d["ppc"])
     a2.errorbar(ppc, d["rms"], yerr=d["rms_err"], fmt="o", label="rms δn/n, random start")
@@ -232,7 +232,7 @@ def fig_pic_vlasov(d, path):
     ax.semilogy(d["t"], d["field_energy_pic"], lw=1, label="PIC")
     ax.semilogy(d["t"], d["field_energy_vlasov"], "--", lw=1, label="Vlasov")
     ax.set_xlabel(r"$t$ [$1/\omega_p$]")
-    ax.set_ylabel("field energy")
+    ax.set_ylabel(r"field energy [$n_{ref} m_e c^2\,c/\omega_p$]")
     ax.set_title("warm pair beams: PIC and Vlasov")
     ax.legend()
     save_figure(fig, path)
