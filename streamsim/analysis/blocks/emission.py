@@ -364,14 +364,29 @@ def _draw(res: BlockResult, data):
     lb = tab.col("lower_bound").astype(bool)
     a1.errorbar(t[~lb], nu[~lb], yerr=np.where(np.isfinite(err[~lb]), err[~lb], 0), fmt="o",
                 ms=3, lw=0.8, label=f"{NUC} at each record")
+    # the axis holds the values and their error bars; a grid-limited lower bound far above them
+    # (e.g. the still-uniform density of the first records) is drawn at the top edge
+    vals = np.concatenate([nu[~lb] - np.nan_to_num(err[~lb]), nu[~lb] + np.nan_to_num(err[~lb])])
+    vals = vals[np.isfinite(vals)]
+    hi = float(vals.max()) * 1.15 if vals.size and vals.max() > 0 else None
     if lb.any():
-        a1.plot(t[lb], nu[lb], "^", ms=5, label="lower bound (grid)")
+        off = lb & np.isfinite(nu) & (nu > hi) if hi is not None else np.zeros_like(lb)
+        on = lb & ~off
+        if on.any():
+            a1.plot(t[on], nu[on], "^", ms=5, color="C1", label="lower bound (grid)")
+        if off.any():
+            a1.plot(t[off], np.full(int(off.sum()), hi * 0.97), "^", ms=6, color="C3",
+                    label=f"lower bound above the axis (grid): up to {np.nanmax(nu[off]):.3g} GHz")
     if summary_value(res.summary, "emission_nu_c_hz") is not None:
         v = summary_value(res.summary, "emission_nu_c_hz") / 1e9
         e = (summary_value(res.summary, "emission_nu_c_err_hz") or 0) / 1e9
         a1.axhspan(v - e, v + e, color="C1", alpha=0.25,
                    label=f"window: {v:.3g} $\\pm$ {e:.2g} GHz")
         a1.axhline(v, color="C1", lw=1)
+        if hi is not None:
+            hi = max(hi, (v + e) * 1.05)
+    if hi is not None:
+        a1.set_ylim(min(0.0, float(vals.min())), hi)
     a1.set_ylabel(f"{NUC} [GHz]")
     a1.ticklabel_format(axis="y", useOffset=False)
     if not np.isfinite(nu).any():
