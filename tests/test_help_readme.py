@@ -5,7 +5,8 @@ flag, repeat the flag" / "several values after one flag" form.
 This compares two texts of the project with each other (no physics): the parsers are built
 through the CLI's own ``build_parser`` and read, README.md is parsed as text. A new option
 without its README row, a README row for an option that is gone, a renamed metavariable or a
-repeatable flag written as ``--flag X ...`` all fail here.
+repeatable flag written as ``--flag X ...`` all fail here. So does an old deck or scan-file key
+name (``RENAMED_KEYS``, ``RENAMED_SCAN_KEYS``) anywhere in README but its "Renamed keys" table.
 """
 from __future__ import annotations
 
@@ -218,3 +219,52 @@ def test_synopses_elsewhere_are_complete():
         if "[--" in text:
             missing = set(_options(SUB[name])) - set(OPTION.findall(text))
             assert not missing, f"README: `{text.strip()}` lacks {sorted(missing)}"
+
+
+# --------------------------------------------------------------------------------------------
+# old key names: in README's "Renamed keys" table only
+# --------------------------------------------------------------------------------------------
+def _renamed_table() -> set[str]:
+    start = TEXT.index("\n### Renamed keys\n")
+    end = TEXT.index("\n#", start + 1)
+    return {ln for ln in TEXT[start:end].splitlines() if ln.startswith("| `")
+            or ln.startswith("| scan file")}
+
+
+def test_old_key_names_only_in_the_renamed_keys_table():
+    from streamsim.deck import RENAMED_KEYS
+    from streamsim.deck.schema import SECTIONS, SPECIES, TOP
+    from streamsim.scan.spec import RENAMED_SCAN_KEYS
+    table = _renamed_table()
+    assert len(table) >= len(RENAMED_KEYS) + len(RENAMED_SCAN_KEYS)
+    for old, new in {**RENAMED_KEYS, **{f"scan file `{k}`": f"scan file `{v}`"
+                                        for k, v in RENAMED_SCAN_KEYS.items()}}.items():
+        assert any(old in ln and new in ln for ln in table), (
+            f"README's Renamed keys table has no row {old} -> {new}")
+    rest = "\n".join(ln for ln in TEXT.splitlines() if ln not in table)
+    current = set(TOP) | set(SPECIES) | {k for s in SECTIONS.values() for k in s}
+    code = "\n".join(re.findall(r"`([^`\n]+)`", rest)
+                     + re.findall(r"^```[a-z]*\n(.*?)^```", rest, flags=re.M | re.S))
+    for old in RENAMED_KEYS:
+        assert not re.search(rf"(?<![\w.]){re.escape(old)}(?!\w)", rest), (
+            f"README names the old key {old} outside the Renamed keys table")
+        bare = old.split(".")[-1]
+        if bare not in current:   # e.g. diagnostics_every, filter_passes, as a bare key
+            assert not re.search(rf"(?<![\w.]){bare}(?!\w)", code), (
+                f"README's code names the old key {bare} outside the Renamed keys table")
+    # TOML blocks, read section by section: no old key of that section, no old scan-file key
+    for block in re.findall(r"^```toml\n(.*?)^```", rest, flags=re.M | re.S):
+        section = None
+        for line in block.splitlines():
+            head = re.match(r"\s*\[+\s*([\w.]+)\s*\]+", line)
+            if head:
+                section = head.group(1)
+                continue
+            key = re.match(r"\s*#?\s*(\w+)\s*=", line)
+            if not key:
+                continue
+            if section is None:
+                assert key.group(1) not in RENAMED_SCAN_KEYS, f"README's TOML: {line.strip()}"
+            else:
+                assert f"{section}.{key.group(1)}" not in RENAMED_KEYS, (
+                    f"README's TOML [{section}]: {line.strip()}")
