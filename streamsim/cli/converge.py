@@ -1,5 +1,4 @@
-"""`streamsim converge DECK [--factor F] [--levels L] [--replicas R] [--out DIR] [--workers N]
-[--local-cluster | --scheduler ADDRESS] [--tolerance T] [--json]`: a resolution study."""
+"""`streamsim converge [DECK] [options]`: a resolution study (the options: `add_arguments`)."""
 from __future__ import annotations
 
 import json
@@ -23,7 +22,9 @@ def add_arguments(p) -> None:
     p.add_argument("--tolerance", type=float, default=0.10, metavar="T",
                    help="relative change between the two finest levels that counts as "
                         "converged (default 0.1)")
-    p.add_argument("--out", metavar="DIR", help="study folder (default: runs/out/converge-<deck>)")
+    p.add_argument("--out", metavar="DIR",
+                   help="study folder (default: runs/out/converge-<deck file name without "
+                        ".toml>, converge-default without DECK)")
     add_executor_arguments(p)
     p.add_argument("--set", dest="overrides", action="append", default=[], metavar="KEY=VALUE",
                    help="override a deck key for every level (TOML literal); repeatable")

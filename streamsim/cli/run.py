@@ -1,5 +1,4 @@
-"""`streamsim run [DECK] [--out DIR] [--set k=v ...] [--quiet] [--resume [RUN_DIR]]
-[--replicas R [--workers N] [--scheduler ADDRESS | --local-cluster]]`."""
+"""`streamsim run [DECK] [options]`: run a deck and analyse it (the options: `add_arguments`)."""
 from __future__ import annotations
 
 from pathlib import Path
@@ -13,7 +12,8 @@ HELP = "run a deck (none: the built-in symmetric pair-beam demo) and analyse it"
 def add_arguments(p) -> None:
     add_deck_arguments(p)
     p.add_argument("--out", metavar="DIR", help="run folder (default: the deck's output.folder, "
-                   "runs/out/<title>)")
+                   "runs/out/<title-slug>: the title in lower case, '-' for each run of "
+                   "characters other than letters and digits)")
     p.add_argument("--quiet", action="store_true",
                    help="no progress bar and no summary (warnings and refusals still go to "
                         "stderr)")
@@ -21,7 +21,7 @@ def add_arguments(p) -> None:
                    help="continue an interrupted run from its checkpoint, or extend a run to a "
                         "later end with --set time.end=T, keeping its cadences (RUN_DIR, else "
                         "--out, else the deck's folder; with no DECK the run folder's deck.toml "
-                        "is used)")
+                        "is used); with --replicas, continue the replicas' folder")
     p.add_argument("--threads", type=int, default=None, metavar="T",
                    help="numba threads (default: the deck's output.threads, 0 = all cores)")
     p.add_argument("--no-analysis", action="store_true", help="write the raw outputs only")

@@ -1,5 +1,4 @@
-"""`streamsim scan SCAN.toml [--out DIR] [--workers N] [--threads T]
-[--scheduler tcp://HOST:PORT | --local-cluster] [--resume] [--retry-failed] [--set k=v ...]`."""
+"""`streamsim scan SCAN [options]`: a parameter scan (the options: `add_arguments`)."""
 from __future__ import annotations
 
 from streamsim.cli.common import ArgumentError, add_executor_arguments, warn
@@ -8,16 +7,17 @@ HELP = "run a parameter scan (a base deck over axes of deck keys) locally or on 
 
 
 def add_arguments(p) -> None:
-    p.add_argument("scan", metavar="SCAN", help="scan file (TOML): base deck, mode, replicas, "
-                   "[[axis]] tables")
+    p.add_argument("scan", metavar="SCAN", help="scan file (TOML): base deck, combine, "
+                   "replicas, [[axis]] tables")
     p.add_argument("--out", metavar="DIR", help="scan folder (default: runs/out/<scan file name>)")
     add_executor_arguments(p)
     p.add_argument("--threads", type=int, default=None, metavar="T",
                    help="numba threads per run (default: cores // workers; on Dask: cores of the "
-                        "node // worker processes on it, T caps it)")
+                        "node // worker processes on it, T caps it); workers x threads never "
+                        "exceed a node's cores")
     p.add_argument("--resume", action="store_true",
                    help="continue the scan in DIR: completed runs are kept, interrupted ones "
-                        "continue from their checkpoints")
+                        "continue from their checkpoints, the rest run")
     p.add_argument("--retry-failed", action="store_true",
                    help="with --resume, also rerun the runs that failed")
     p.add_argument("--set", dest="overrides", action="append", default=[], metavar="KEY=VALUE",
