@@ -548,6 +548,10 @@ def _finish_run(sim, handlers, deck, folder, dispersion, theory, findings, warni
     results = {}
     if analyze:
         from . import analysis
+        painter = None
+        if figures and folder is not None:  # figure processes start while the analysis runs
+            from .plots import Painter
+            painter = Painter(data, folder)
         try:
             results = analysis.compute(data)
             summary.update(analysis.summary_entries(results, deck.analysis))
@@ -559,9 +563,11 @@ def _finish_run(sim, handlers, deck, folder, dispersion, theory, findings, warni
             summary["analysis_error"] = f"{ex.__class__.__name__}: {ex}"
             say(f"the analysis failed ({summary['analysis_error']}); the run's data are "
                 f"complete, retry with `streamsim analyze`")
+        if painter is not None and not results:
+            painter.close()
         if folder is not None and results:
             try:
-                analysis.write_outputs(results, data, folder, figures=figures)
+                analysis.write_outputs(results, data, folder, figures=figures, painter=painter)
             except io.OutputError:
                 raise
             except Exception as ex:  # noqa: BLE001 - a figure must not lose the numbers

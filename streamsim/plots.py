@@ -8,24 +8,37 @@ from __future__ import annotations
 
 from pathlib import Path
 
-import matplotlib
+__all__ = ["plt", "message_figure", "draw_figures", "Painter"]
 
-matplotlib.use("Agg")
-import matplotlib.pyplot as plt  # noqa: E402
 
-__all__ = ["plt", "message_figure", "draw_figures"]
+def _pyplot():
+    """matplotlib.pyplot on the Agg backend, imported on first use (it costs about half a
+    second, which a run that draws nothing, or draws in other processes, does not pay)."""
+    import matplotlib
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+    return plt
+
+
+def __getattr__(name):  # ``from streamsim.plots import plt`` imports pyplot then
+    if name == "plt":
+        plt = _pyplot()
+        globals()["plt"] = plt
+        return plt
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 
 def message_figure(text: str, size=(6, 3)):
     """A figure that only says why there is nothing to draw."""
-    fig, ax = plt.subplots(figsize=size)
+    fig, ax = _pyplot().subplots(figsize=size)
     ax.text(0.5, 0.5, text, ha="center", va="center")
     ax.set_axis_off()
     return fig
 
 
 def draw_figures(results, data, folder) -> list[Path]:
-    """Draw every figure of every block result into <folder>/figures/ (atomic PNGs)."""
+    """Draw every figure of every block result into <folder>/figures/ (atomic PNGs), in this
+    process, one after the other."""
     from .io import save_figure
     out = Path(folder) / "figures"
     paths = []
@@ -35,5 +48,162 @@ def draw_figures(results, data, folder) -> list[Path]:
                 fig = f.draw(res, data)
                 paths.append(save_figure(fig, out / f.file))
             finally:
-                plt.close("all")
+                _pyplot().close("all")
     return paths
+
+
+def _figure_list(results):
+    return [(name, i) for name, res in results.items() for i in range(len(res.figures))]
+
+
+def figure_processes(n_figures: int) -> int:
+    """How many forked processes draw ``n_figures`` figures: one per core the process may use
+    (at most 4 and at most one per figure); 0 (draw here) where fork is not the start method of
+    the platform, inside a daemonic process (which may not have children), or when
+    ``STREAMSIM_FIGURE_PROCESSES`` says 0."""
+    import multiprocessing as mp
+    import os
+    import sys
+    env = os.environ.get("STREAMSIM_FIGURE_PROCESSES")
+    if env is not None:
+        try:
+            return max(0, min(int(env), n_figures))
+        except ValueError:
+            pass
+    if not sys.platform.startswith("linux") or mp.current_process().daemon:
+        return 0
+    try:
+        cores = len(os.sched_getaffinity(0))
+    except (AttributeError, OSError):
+        cores = os.cpu_count() or 1
+    return max(0, min(cores, 4, n_figures))
+
+
+def _painter_main(data, folder, conn, counter):
+    """A forked figure process: wait for the block results, then draw figures taken from the
+    shared counter until none is left; send back (index, path or exception)."""
+    import signal
+    signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent handles Ctrl-C and ends us
+    try:
+        _pyplot()  # imported while the parent computes the analysis
+        from .io import save_figure
+        try:
+            results = conn.recv()
+        except EOFError:  # the parent has nothing to draw
+            return
+        todo = _figure_list(results)
+        out = Path(folder) / "figures"
+        while True:
+            with counter.get_lock():
+                k = counter.value
+                counter.value += 1
+            if k >= len(todo):
+                break
+            name, i = todo[k]
+            res = results[name]
+            f = res.figures[i]
+            try:
+                fig = f.draw(res, data)
+                conn.send((k, save_figure(fig, out / f.file)))
+            except Exception as ex:  # noqa: BLE001 - the parent re-raises it
+                try:
+                    conn.send((k, ex))
+                except Exception:  # noqa: BLE001 - an exception that does not pickle
+                    conn.send((k, RuntimeError(f"{ex.__class__.__name__}: {ex}")))
+            finally:
+                _pyplot().close("all")
+        conn.send(None)
+    except (BrokenPipeError, OSError):  # the parent is gone
+        pass
+    finally:
+        conn.close()
+
+
+class Painter:
+    """Draws a run's figures in forked processes while this one goes on (analysis tables,
+    summary). Create it as soon as the run's data are final (the processes import matplotlib
+    meanwhile), hand it the block results with :meth:`draw`, and collect the paths with
+    :meth:`wait`, which re-raises the first figure's exception. Where no process can be forked
+    (see :func:`figure_processes`) everything happens in :meth:`wait`, in this process.
+
+    A figure is the same file either way: each block's draw function makes it, and
+    :func:`streamsim.io.save_figure` writes it."""
+
+    def __init__(self, data, folder, processes: int | None = None):
+        import multiprocessing as mp
+        self.data, self.folder = data, Path(folder)
+        self.results = None
+        self.procs, self.conns = [], []
+        n = figure_processes(8) if processes is None else processes
+        if n > 0:
+            ctx = mp.get_context("fork")
+            self.counter = ctx.Value("i", 0)
+            for _ in range(n):
+                parent, child = ctx.Pipe()
+                p = ctx.Process(target=_painter_main, args=(data, self.folder, child,
+                                                             self.counter), daemon=True)
+                p.start()
+                child.close()
+                self.procs.append(p)
+                self.conns.append(parent)
+
+    def draw(self, results) -> None:
+        """Start drawing the figures of these block results."""
+        self.results = results
+        live = []
+        for conn in self.conns:
+            try:
+                conn.send(results)
+                live.append(conn)
+            except (BrokenPipeError, OSError):
+                pass
+        self.conns = live
+
+    def wait(self) -> list[Path]:
+        """The figure paths, in the blocks' order; raises the first failed figure's exception."""
+        if self.results is None:
+            self.close()
+            return []
+        if not self.procs:
+            return draw_figures(self.results, self.data, self.folder)
+        got = {}
+        try:
+            for conn in self.conns:
+                while True:
+                    try:
+                        msg = conn.recv()
+                    except EOFError:  # the process died: draw what it left here
+                        break
+                    if msg is None:
+                        break
+                    got[msg[0]] = msg[1]
+        finally:
+            self.close()
+        todo = _figure_list(self.results)
+        missing = [k for k in range(len(todo)) if k not in got]
+        if missing:
+            from .io import save_figure
+            out = self.folder / "figures"
+            for k in missing:
+                name, i = todo[k]
+                res = self.results[name]
+                try:
+                    got[k] = save_figure(res.figures[i].draw(res, self.data),
+                                         out / res.figures[i].file)
+                finally:
+                    _pyplot().close("all")
+        for k in range(len(todo)):
+            if isinstance(got[k], BaseException):
+                raise got[k]
+        return [got[k] for k in range(len(todo))]
+
+    def close(self) -> None:
+        for conn in self.conns:
+            conn.close()
+        self.conns = []
+        for p in self.procs:
+            p.join(timeout=5)
+            if p.is_alive():
+                p.terminate()
+                p.join()
+        self.procs = []
