@@ -195,7 +195,7 @@ class Output:
     phase_space_interval: float | None   # 1/omega_p: (x, u) subsample
     phase_space_particles: int    # per species
     modes: int                    # |E_k| recorded for m = 1..modes
-    checkpoint_interval: float | None    # 1/omega_p (default end/10); 0 = only at the end and on a signal
+    checkpoint_interval: float | None    # 1/omega_p; unset: every 5 min of wall-clock time; 0 = only at the end and on a signal
     threads: int                  # numba threads; 0 = all cores
 
 
@@ -296,7 +296,7 @@ class Deck:
                 and self.time.dt is not None and self.perturbation.phases is not None
                 and all(s.theta is not None and s.temperature_kev is not None for s in self.species)
                 and None not in (o.diagnostics_interval, o.fields_interval,
-                                 o.phase_space_interval, o.checkpoint_interval)
+                                 o.phase_space_interval)
                 and (self.drive is None or self.drive.current is not None))
 
     def to_dict(self) -> dict:
@@ -326,7 +326,7 @@ class Deck:
                              "amplitude": self.perturbation.amplitude,
                              "species": list(self.perturbation.species),
                              "phases": self.perturbation.phases},
-            "output": dataclasses.asdict(self.output),
+            "output": {k: v for k, v in dataclasses.asdict(self.output).items() if v is not None},
             "analysis": {k: v for k, v in dataclasses.asdict(self.analysis).items()
                          if v is not None},
         }
@@ -911,7 +911,8 @@ def _resolve_output(o: Output, t: Time) -> Output:
         diagnostics_interval=cadence(o.diagnostics_interval, min(0.1, end / 200.0)),
         fields_interval=cadence(o.fields_interval, end / 20.0),
         phase_space_interval=cadence(o.phase_space_interval, end / 8.0),
-        checkpoint_interval=0.0 if checkpoint == 0 else cadence(checkpoint, end / 10.0))
+        # unset stays unset: the run then checkpoints on wall-clock time (pipeline.Checkpointer)
+        checkpoint_interval=checkpoint if checkpoint in (None, 0) else cadence(checkpoint, 0.0))
 
 
 @functools.lru_cache(maxsize=64)
