@@ -127,3 +127,100 @@ def test_default_cadence_checkpoints_at_the_end_and_on_a_signal_and_resumes_bit_
         assert np.array_equal(a, b)
     for k in state[2]:
         assert np.array_equal(state[2][k], ref_state[2][k]), k
+
+
+# --------------------------------------------------------------------------------------------
+# scans: each run's figures only when asked; the time outside the loops is reported
+# --------------------------------------------------------------------------------------------
+_SCAN = """base = "{base}"
+set = ["box.cells=64", "species.electrons.particles_per_cell=16",
+       "species.positrons.particles_per_cell=16"]
+[[axis]]
+key = "time.end"
+values = [8.0, 10.0]
+"""
+
+
+def _scan_file(tmp_path):
+    from pathlib import Path
+    base = Path(__file__).resolve().parents[1] / "runs" / "pair-beams.toml"
+    path = tmp_path / "scan.toml"
+    path.write_text(_SCAN.format(base=base), encoding="utf-8")
+    return path
+
+
+def _run_figures(out):
+    return sorted(p.name for p in (out / "runs").glob("*/figures/*.png"))
+
+
+def test_scan_draws_no_run_figures_unless_asked_and_reports_time_outside_the_loops(tmp_path):
+    from streamsim.scan import run_scan
+    path = _scan_file(tmp_path)
+    plain = run_scan(path, tmp_path / "plain", workers=1, figures=False)
+    assert plain.completed == 2
+    assert _run_figures(tmp_path / "plain") == []
+    assert (tmp_path / "plain" / "runs").is_dir()
+    assert all((f / "analysis.h5").is_file() for f in (tmp_path / "plain" / "runs").iterdir())
+    assert 0 < plain.run_loop_s < plain.run_wall_s
+    assert plain.outside_loop_s == plain.run_wall_s - plain.run_loop_s
+    assert "outside their time loops" in plain.timing_line()
+
+    drawn = run_scan(path, tmp_path / "drawn", workers=1, figures=False, run_figures=True)
+    assert drawn.completed == 2
+    names = _run_figures(tmp_path / "drawn")
+    assert len(names) >= 2 * 4 and "field_energy.png" in names
+
+
+def test_scan_cli_figures_flag_draws_each_runs_figures(tmp_path):
+    path = _scan_file(tmp_path)
+    out = tmp_path / "cli"
+    done = subprocess.run(_cli("scan", str(path), "--out", str(out), "--workers", "1",
+                               "--no-figures", "--figures"),
+                          capture_output=True, text=True, timeout=300)
+    assert done.returncode == 0, done.stderr
+    assert "outside their time loops" in done.stdout
+    assert "field_energy.png" in _run_figures(out)
+
+
+# --------------------------------------------------------------------------------------------
+# start-up: a command imports only what it needs
+# --------------------------------------------------------------------------------------------
+def _modules_after(code):
+    done = subprocess.run([sys.executable, "-c", code + "\nimport sys, json\n"
+                           "print(json.dumps(sorted(m for m in sys.modules)))"],
+                          capture_output=True, text=True, timeout=120)
+    assert done.returncode == 0, done.stderr
+    return set(json.loads(done.stdout.strip().splitlines()[-1]))
+
+
+def test_the_cli_and_the_package_import_no_plotting_and_no_dask():
+    mods = _modules_after("import streamsim, streamsim.cli\nstreamsim.cli.build_parser()")
+    for heavy in ("matplotlib", "dask", "distributed", "scipy", "h5py", "numba"):
+        assert heavy not in mods, heavy
+
+
+def test_a_run_without_figures_never_imports_matplotlib(tmp_path):
+    mods = _modules_after(f"import streamsim\nstreamsim.run(None, out={str(tmp_path / 'o')!r}, "
+                          f"overrides=['time.end=2.0', 'box.cells=64'], figures=False)")
+    assert "streamsim.pipeline" in mods and "matplotlib" not in mods
+    assert "dask" not in mods and "distributed" not in mods
+
+
+def test_figures_drawn_in_other_processes_are_the_files_drawn_here(tmp_path, monkeypatch):
+    """Same PNG bytes from the forked figure processes and from drawing in this process."""
+    raw = pair_deck(cells=64, ppc=16, end=20.0)
+    res = streamsim.run(raw, out=tmp_path / "a", figures=False)
+    from streamsim import analysis
+    from streamsim.plots import Painter
+    here = tmp_path / "here"
+    p = Painter(res.data, here, processes=0)
+    p.draw(res.analysis)
+    mine = p.wait()
+    there = tmp_path / "there"
+    p = Painter(res.data, there, processes=2)
+    p.draw(res.analysis)
+    theirs = p.wait()
+    assert [q.name for q in mine] == [q.name for q in theirs] and len(mine) >= 4
+    for a, b in zip(mine, theirs):
+        assert a.read_bytes() == b.read_bytes(), a.name
+    assert analysis is not None

@@ -29,6 +29,7 @@ def add_arguments(p) -> None:
     p.add_argument("--set", dest="overrides", action="append", default=[], metavar="KEY=VALUE",
                    help="override a deck key for every level (TOML literal); repeatable")
     p.add_argument("--json", action="store_true", help="print converge.json on stdout")
+    p.add_argument("--figures", action="store_true", help="also draw each run's own figures")
     p.add_argument("--quiet", action="store_true", help="no progress bar and no table")
 
 
@@ -62,7 +63,7 @@ def main(args) -> int:
     res, rc = run_scan_or_exit(scan=scan, out=out, workers=args.workers,
                                scheduler=args.scheduler, local_cluster=args.local_cluster,
                                resume=True, progress=None if not args.quiet else False,
-                               quiet=args.quiet, figures=False)
+                               quiet=args.quiet, figures=False, run_figures=args.figures)
     if res is None:
         return rc
     for w in res.warnings:
@@ -103,4 +104,5 @@ def table(study: dict, res, out) -> str:
         lines.append(f"  {name} [{o['unit']}]  {vals}  change {_f(o['change'], '.3g')}"
                      f"{extra}  -> {o['verdict']}")
     lines.append(f"  converge.csv, converge.json, converge.png in {out}")
-    return "\n".join(lines)
+    lines.append(res.timing_line())
+    return "\n".join(line for line in lines if line)
