@@ -532,6 +532,10 @@ def _finish_run(sim, handlers, deck, folder, dispersion, theory, findings, warni
                        snapshots=by_name["fields"].snapshots(),
                        phase_space=by_name["phase"].phase_space(),
                        peak=by_name["peak"].snapshot(), end=end, theory=dispersion)
+    painter = None
+    if analyze and figures and folder is not None:  # figures start in other processes now
+        from .plots import Painter
+        painter = Painter(data, folder)
     summary = _run_summary(sim, deck, rec, findings, warnings, status=status, wall=wall,
                            steps_done=steps_done)
     if continuum:
@@ -559,10 +563,6 @@ def _finish_run(sim, handlers, deck, folder, dispersion, theory, findings, warni
     results = {}
     if analyze:
         from . import analysis
-        painter = None
-        if figures and folder is not None:  # figure processes start while the analysis runs
-            from .plots import Painter
-            painter = Painter(data, folder)
         try:
             results = analysis.compute(data)
             summary.update(analysis.summary_entries(results, deck.analysis))

@@ -79,18 +79,21 @@ def figure_processes(n_figures: int) -> int:
     return max(0, min(cores, 4, n_figures))
 
 
-def _painter_main(data, folder, conn, counter):
-    """A forked figure process: wait for the block results, then draw figures taken from the
-    shared counter until none is left; send back (index, path or exception)."""
+def _painter_main(data, folder, conn, counter, results=None):
+    """A forked figure process: wait for the block results (unless it was forked with them),
+    then draw figures taken from the shared counter until none is left; send back (index, path
+    or exception)."""
     import signal
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent handles Ctrl-C and ends us
     try:
         _pyplot()  # imported while the parent computes the analysis
         from .io import save_figure
-        try:
-            results = conn.recv()
-        except EOFError:  # the parent has nothing to draw
-            return
+        if results is None:
+            import pickle
+            try:
+                results = pickle.loads(conn.recv_bytes())
+            except EOFError:  # the parent has nothing to draw
+                return
         todo = _figure_list(results)
         out = Path(folder) / "figures"
         while True:
@@ -130,30 +133,43 @@ class Painter:
     :func:`streamsim.io.save_figure` writes it."""
 
     def __init__(self, data, folder, processes: int | None = None):
-        import multiprocessing as mp
         self.data, self.folder = data, Path(folder)
         self.results = None
         self.procs, self.conns = [], []
-        n = figure_processes(8) if processes is None else processes
-        if n > 0:
-            ctx = mp.get_context("fork")
-            self.counter = ctx.Value("i", 0)
-            for _ in range(n):
-                parent, child = ctx.Pipe()
-                p = ctx.Process(target=_painter_main, args=(data, self.folder, child,
-                                                             self.counter), daemon=True)
-                p.start()
-                child.close()
-                self.procs.append(p)
-                self.conns.append(parent)
+        self.n = figure_processes(8) if processes is None else processes
+        self._start(self.n)
+
+    def _start(self, n: int, results=None) -> None:
+        import multiprocessing as mp
+        if n <= 0:
+            return
+        ctx = mp.get_context("fork")
+        self.counter = ctx.Value("i", 0)
+        for _ in range(n):
+            parent, child = ctx.Pipe()
+            p = ctx.Process(target=_painter_main, args=(self.data, self.folder, child,
+                                                         self.counter, results), daemon=True)
+            p.start()
+            child.close()
+            self.procs.append(p)
+            self.conns.append(parent)
 
     def draw(self, results) -> None:
         """Start drawing the figures of these block results."""
+        from multiprocessing.reduction import ForkingPickler
         self.results = results
+        if not self.procs:
+            return
+        try:
+            payload = bytes(ForkingPickler.dumps(results))
+        except Exception:  # noqa: BLE001 - e.g. a block's draw function defined in a function
+            self.close()   # new processes that inherit the results instead of receiving them
+            self._start(self.n, results)
+            return
         live = []
         for conn in self.conns:
             try:
-                conn.send(results)
+                conn.send_bytes(payload)
                 live.append(conn)
             except (BrokenPipeError, OSError):
                 pass
