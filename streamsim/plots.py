@@ -79,53 +79,85 @@ def figure_processes(n_figures: int) -> int:
     return max(0, min(cores, 4, n_figures))
 
 
-def _painter_main(data, folder, conn, counter, results=None):
-    """A forked figure process: wait for the block results (unless it was forked with them),
-    then draw figures taken from the shared counter until none is left; send back (index, path
-    or exception)."""
+def _draw_share(results, data, folder, conn, counter) -> None:
+    """Draw figures taken from the shared counter until none is left; send back (index, path
+    or exception) for each, then None."""
+    from .io import save_figure
+    todo = _figure_list(results)
+    out = Path(folder) / "figures"
+    while True:
+        with counter.get_lock():
+            k = counter.value
+            counter.value += 1
+        if k >= len(todo):
+            break
+        name, i = todo[k]
+        res = results[name]
+        f = res.figures[i]
+        try:
+            fig = f.draw(res, data)
+            conn.send((k, save_figure(fig, out / f.file)))
+        except Exception as ex:  # noqa: BLE001 - the parent re-raises it
+            try:
+                conn.send((k, ex))
+            except Exception:  # noqa: BLE001 - an exception that does not pickle
+                conn.send((k, RuntimeError(f"{ex.__class__.__name__}: {ex}")))
+        finally:
+            _pyplot().close("all")
+    conn.send(None)
+
+
+def _painter_main(data, folder, inbox, conns, counter, results=None):
+    """The forked figure process: import matplotlib, wait for the block results on ``inbox``
+    (unless it was forked with them), then fork one sibling per further connection of
+    ``conns`` (matplotlib already imported, so it is paid once) and draw with them."""
+    import os
     import signal
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # the parent handles Ctrl-C and ends us
+    siblings = []
     try:
         _pyplot()  # imported while the parent computes the analysis
-        from .io import save_figure
+        from . import io as _io  # noqa: F401 - save_figure's module, before the fork
         if results is None:
             import pickle
             try:
-                results = pickle.loads(conn.recv_bytes())
+                results = pickle.loads(inbox.recv_bytes())
             except EOFError:  # the parent has nothing to draw
                 return
-        todo = _figure_list(results)
-        out = Path(folder) / "figures"
-        while True:
-            with counter.get_lock():
-                k = counter.value
-                counter.value += 1
-            if k >= len(todo):
-                break
-            name, i = todo[k]
-            res = results[name]
-            f = res.figures[i]
-            try:
-                fig = f.draw(res, data)
-                conn.send((k, save_figure(fig, out / f.file)))
-            except Exception as ex:  # noqa: BLE001 - the parent re-raises it
+        inbox.close()
+        mine = conns[0]
+        for k, conn in enumerate(conns[1:], start=1):
+            pid = os.fork()
+            if pid == 0:
+                code = 0
                 try:
-                    conn.send((k, ex))
-                except Exception:  # noqa: BLE001 - an exception that does not pickle
-                    conn.send((k, RuntimeError(f"{ex.__class__.__name__}: {ex}")))
-            finally:
-                _pyplot().close("all")
-        conn.send(None)
+                    _draw_share(results, data, folder, conn, counter)
+                except BaseException:  # noqa: BLE001 - the parent draws what is missing
+                    code = 1
+                finally:
+                    os._exit(code)
+            siblings.append(pid)
+        for conn in conns[1:]:
+            conn.close()
+        _draw_share(results, data, folder, mine, counter)
     except (BrokenPipeError, OSError):  # the parent is gone
         pass
     finally:
-        conn.close()
+        inbox.close()
+        for conn in conns:
+            conn.close()
+        for pid in siblings:
+            try:
+                os.waitpid(pid, 0)
+            except OSError:
+                pass
 
 
 class Painter:
     """Draws a run's figures in forked processes while this one goes on (analysis tables,
-    summary). Create it as soon as the run's data are final (the processes import matplotlib
-    meanwhile), hand it the block results with :meth:`draw`, and collect the paths with
+    summary). Create it as soon as the run's data are final: one process is forked and imports
+    matplotlib meanwhile; when it has the block results (:meth:`draw`) it forks its siblings,
+    which share the figures through a counter, so matplotlib is imported once. Collect the paths with
     :meth:`wait`, which re-raises the first figure's exception. Where no process can be forked
     (see :func:`figure_processes`) everything happens in :meth:`wait`, in this process.
 
@@ -135,7 +167,7 @@ class Painter:
     def __init__(self, data, folder, processes: int | None = None):
         self.data, self.folder = data, Path(folder)
         self.results = None
-        self.procs, self.conns = [], []
+        self.procs, self.conns, self._outbox = [], [], None
         self.n = figure_processes(8) if processes is None else processes
         self._start(self.n)
 
@@ -145,14 +177,17 @@ class Painter:
             return
         ctx = mp.get_context("fork")
         self.counter = ctx.Value("i", 0)
-        for _ in range(n):
-            parent, child = ctx.Pipe()
-            p = ctx.Process(target=_painter_main, args=(self.data, self.folder, child,
-                                                         self.counter, results), daemon=True)
-            p.start()
-            child.close()
-            self.procs.append(p)
-            self.conns.append(parent)
+        pipes = [ctx.Pipe(duplex=False) for _ in range(n)]   # (read end, write end)
+        inbox, self._outbox = ctx.Pipe(duplex=False)
+        p = ctx.Process(target=_painter_main, args=(self.data, self.folder, inbox,
+                                                     [w for _, w in pipes], self.counter,
+                                                     results), daemon=True)
+        p.start()
+        inbox.close()
+        for _, w in pipes:
+            w.close()
+        self.procs = [p]
+        self.conns = [r for r, _ in pipes]
 
     def draw(self, results) -> None:
         """Start drawing the figures of these block results."""
@@ -166,14 +201,11 @@ class Painter:
             self.close()   # new processes that inherit the results instead of receiving them
             self._start(self.n, results)
             return
-        live = []
-        for conn in self.conns:
-            try:
-                conn.send_bytes(payload)
-                live.append(conn)
-            except (BrokenPipeError, OSError):
-                pass
-        self.conns = live
+        try:
+            self._outbox.send_bytes(payload)   # the first process forks the others then
+        except (BrokenPipeError, OSError):       # it is gone: wait() draws everything here
+            pass
+        self._outbox.close()
 
     def wait(self) -> list[Path]:
         """The figure paths, in the blocks' order; raises the first failed figure's exception."""
@@ -214,6 +246,8 @@ class Painter:
         return [got[k] for k in range(len(todo))]
 
     def close(self) -> None:
+        if getattr(self, "_outbox", None) is not None:
+            self._outbox.close()
         for conn in self.conns:
             conn.close()
         self.conns = []
