@@ -10,6 +10,7 @@ import sys
 import time
 
 import h5py
+import pytest
 import numpy as np
 import tomli_w
 
@@ -224,3 +225,19 @@ def test_figures_drawn_in_other_processes_are_the_files_drawn_here(tmp_path, mon
     for a, b in zip(mine, theirs):
         assert a.read_bytes() == b.read_bytes(), a.name
     assert analysis is not None
+
+
+def test_least_squares_line_matches_scipy_linregress():
+    """The growth fit's line against scipy.stats.linregress (reference library) on seeded data."""
+    from scipy import stats
+
+    from streamsim.analysis.growth import least_squares_line
+    rng = np.random.default_rng(7)
+    for n in (3, 8, 50, 401):
+        x = np.sort(rng.uniform(0.0, 40.0, n))
+        y = 0.35 * x - 9.2 + rng.normal(0.0, 0.3, n)
+        ref = stats.linregress(x, y)
+        slope, intercept, stderr = least_squares_line(x, y)
+        assert slope == pytest.approx(ref.slope, rel=1e-12, abs=1e-14)
+        assert intercept == pytest.approx(ref.intercept, rel=1e-12, abs=1e-13)
+        assert stderr == pytest.approx(ref.stderr, rel=1e-9)
