@@ -59,8 +59,8 @@ def _figure_list(results):
 def figure_processes(n_figures: int) -> int:
     """How many forked processes draw ``n_figures`` figures: one per core the process may use
     (at most 4 and at most one per figure); 0 (draw here) where fork is not the start method of
-    the platform, inside a daemonic process (which may not have children), or when
-    ``STREAMSIM_FIGURE_PROCESSES`` says 0."""
+    the platform, inside a daemonic process (which may not have children), outside the main
+    thread, or when ``STREAMSIM_FIGURE_PROCESSES`` says 0."""
     import multiprocessing as mp
     import os
     import sys
@@ -70,8 +70,10 @@ def figure_processes(n_figures: int) -> int:
             return max(0, min(int(env), n_figures))
         except ValueError:
             pass
-    if not sys.platform.startswith("linux") or mp.current_process().daemon:
-        return 0
+    import threading
+    if not sys.platform.startswith("linux") or mp.current_process().daemon or \
+            threading.current_thread() is not threading.main_thread():
+        return 0   # (a Dask worker runs its tasks in threads: no fork there)
     try:
         cores = len(os.sched_getaffinity(0))
     except (AttributeError, OSError):
