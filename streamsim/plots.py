@@ -57,8 +57,8 @@ def _figure_list(results):
 
 
 def figure_processes(n_figures: int) -> int:
-    """How many forked processes draw ``n_figures`` figures: one per core the process may use
-    (at most 4 and at most one per figure); 0 (draw here) where fork is not the start method of
+    """How many forked processes draw ``n_figures`` figures: one per idle core the process may
+    use (at least one, at most 4 and at most one per figure); 0 (draw here) where fork is not the start method of
     the platform, inside a daemonic process (which may not have children), outside the main
     thread, or when ``STREAMSIM_FIGURE_PROCESSES`` says 0."""
     import multiprocessing as mp
@@ -78,7 +78,12 @@ def figure_processes(n_figures: int) -> int:
         cores = len(os.sched_getaffinity(0))
     except (AttributeError, OSError):
         cores = os.cpu_count() or 1
-    return max(0, min(cores, 4, n_figures))
+    try:  # cores left idle (the run itself counts about one in the load average)
+        idle = int(cores + 1 - os.getloadavg()[0])
+    except OSError:
+        idle = cores
+    # a second drawer costs about 0.2 s of CPU (its own font and text caches): only on idle cores
+    return max(0, min(cores, 4, n_figures, max(1, idle)))
 
 
 def _draw_share(results, data, folder, conn, counter) -> None:
@@ -184,7 +189,12 @@ class Painter:
         p = ctx.Process(target=_painter_main, args=(self.data, self.folder, inbox,
                                                      [w for _, w in pipes], self.counter,
                                                      results), daemon=True)
-        p.start()
+        import gc
+        gc.freeze()   # the child's collector leaves the inherited objects (and their pages) alone
+        try:
+            p.start()
+        finally:
+            gc.unfreeze()
         inbox.close()
         for _, w in pipes:
             w.close()
