@@ -10,6 +10,9 @@ from pathlib import Path
 
 __all__ = ["plt", "message_figure", "draw_figures", "Painter"]
 
+#: a figure process that sends nothing for this long is given up (its figures are drawn here)
+FIGURE_TIMEOUT_S = 300.0
+
 
 def _pyplot():
     """matplotlib.pyplot on the Agg backend, imported on first use (it costs about half a
@@ -231,6 +234,8 @@ class Painter:
             for conn in self.conns:
                 while True:
                     try:
+                        if not conn.poll(FIGURE_TIMEOUT_S):  # stuck: draw the rest here
+                            break
                         msg = conn.recv()
                     except EOFError:  # the process died: draw what it left here
                         break

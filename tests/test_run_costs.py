@@ -241,3 +241,30 @@ def test_least_squares_line_matches_scipy_linregress():
         assert slope == pytest.approx(ref.slope, rel=1e-12, abs=1e-14)
         assert intercept == pytest.approx(ref.intercept, rel=1e-12, abs=1e-13)
         assert stderr == pytest.approx(ref.stderr, rel=1e-9)
+
+
+def _draw_line(res, data):
+    from streamsim.plots import plt
+    fig, ax = plt.subplots()
+    ax.plot([0, 1], [0, 1])
+    return fig
+
+
+def _draw_broken(res, data):
+    raise ValueError("this figure cannot be drawn")
+
+
+def test_a_figure_that_fails_in_a_figure_process_raises_here_and_the_others_are_written(tmp_path):
+    from streamsim.analysis.base import BlockResult, Figure
+    from streamsim.plots import Painter
+    results = {"a": BlockResult("a", {}, {}, [Figure("one.png", "a line", _draw_line),
+                                              Figure("two.png", "broken", _draw_broken),
+                                              Figure("three.png", "a line", _draw_line)])}
+    p = Painter(None, tmp_path, processes=2)
+    p.draw(results)
+    with pytest.raises(ValueError, match="cannot be drawn"):
+        p.wait()
+    assert (tmp_path / "figures" / "one.png").stat().st_size > 1000
+    assert (tmp_path / "figures" / "three.png").stat().st_size > 1000
+    assert not (tmp_path / "figures" / "two.png").exists()
+    assert p.procs == []                      # the figure processes are gone
