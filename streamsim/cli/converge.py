@@ -29,6 +29,7 @@ def add_arguments(p) -> None:
     p.add_argument("--set", dest="overrides", action="append", default=[], metavar="KEY=VALUE",
                    help="override a deck key for every level (TOML literal); repeatable")
     p.add_argument("--json", action="store_true", help="print converge.json on stdout")
+    p.add_argument("--figures", action="store_true", help="also draw each run's own figures")
     p.add_argument("--quiet", action="store_true", help="no progress bar and no table")
 
 
@@ -53,7 +54,8 @@ def main(args) -> int:
         raise ArgumentError("", f"{out} holds another study or scan; choose another --out")
     res = run_scan(scan=scan, out=out, workers=args.workers, scheduler=args.scheduler,
                    local_cluster=args.local_cluster, resume=True,
-                   progress=None if not args.quiet else False, quiet=args.quiet, figures=False)
+                   progress=None if not args.quiet else False, quiet=args.quiet, figures=False,
+                   run_figures=args.figures)
     for w in res.warnings:
         warn(w)
     study = cv.collect_study(scan, out, levels, args.factor, reps, args.tolerance)
@@ -88,4 +90,5 @@ def table(study: dict, res, out) -> str:
                      f"{extra}  -> {o['verdict']}"
                      + (f" ({o['reason']})" if o.get("reason") else ""))
     lines.append(f"  converge.csv, converge.json, converge.png in {out}")
-    return "\n".join(lines)
+    lines.append(res.timing_line())
+    return "\n".join(line for line in lines if line)

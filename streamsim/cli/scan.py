@@ -23,6 +23,8 @@ def add_arguments(p) -> None:
     p.add_argument("--set", dest="overrides", action="append", default=[], metavar="KEY=VALUE",
                    help="override a key of the base deck for every run (TOML literal); repeatable")
     p.add_argument("--no-figures", action="store_true", help="tables only, no scan figures")
+    p.add_argument("--figures", action="store_true",
+                   help="also draw each run's own figures (default: as the scan file's run_figures)")
     p.add_argument("--quiet", action="store_true", help="no progress bar and no summary")
 
 
@@ -38,7 +40,7 @@ def main(args) -> int:
                    scheduler=args.scheduler, local_cluster=args.local_cluster,
                    resume=args.resume, retry_failed=args.retry_failed,
                    progress=None if not args.quiet else False, quiet=args.quiet,
-                   figures=not args.no_figures)
+                   figures=not args.no_figures, run_figures=args.figures or None)
     for w in res.warnings[len(scan.warnings):]:
         warn(w)
     if not args.quiet:
@@ -88,4 +90,5 @@ def _print_summary(scan, res) -> None:
     lines.append(f"  tables: {res.tables[0]}, {res.tables[1]}" if res.tables else "")
     if res.figures:
         lines.append(f"  figures: {res.out / 'figures'} ({len(res.figures)})")
+    lines.append(res.timing_line())
     print("\n".join(line for line in lines if line))
