@@ -23,12 +23,15 @@ __all__ = ["analyze", "compute", "summary_entries", "terminal_lines", "options_f
 def options_for(deck, **overrides):
     """The deck's validated ``[analysis]`` options with ``overrides`` (None = keep) applied;
     a bad value raises the deck's one-line DeckError."""
+    import dataclasses
     given = {k: v for k, v in overrides.items() if v is not None}
     if not given:
         return deck.analysis
-    from ..deck import apply_overrides, load_deck
-    raw = apply_overrides(deck.to_dict(), [f"analysis.{k}={v!r}" for k, v in given.items()])
-    return load_deck(raw).analysis
+    from ..deck.keys import schema_of
+    from ..deck.validate import coerce
+    keys = schema_of(type(deck.analysis))
+    return dataclasses.replace(deck.analysis, **{k: coerce(f"analysis.{k}", keys[k], v)
+                                                 for k, v in given.items()})
 
 
 def compute(data, options=None, *, max_particles: int | None = None) -> dict[str, BlockResult]:
