@@ -109,8 +109,8 @@ def replica_lines(res) -> str:
 def _emission_lines(em: dict) -> list[str]:
     """nu_c and clump size over the replicas, with one run's budget and its dominant term."""
     out = []
-    for key, what, scale, unit in (("nu_c_hz", "nu_c", 1e-9, "GHz"),
-                                   ("clump_size_median_cm", "clump size", 1.0, "cm")):
+    for key, what, scale, unit in (("coherence.frequency_cutoff_hz", "nu_c", 1e-9, "GHz"),
+                                   ("clumps.size_median_cm", "clump size", 1.0, "cm")):
         e = em.get(key) or {}
         if e.get("mean") is None:
             continue
