@@ -40,7 +40,35 @@ SCAN_COLUMNS = [
 
 
 def compute(ctx: Context) -> BlockResult:
-    return _window_headline(_instants(ctx), ctx)
+    res = _window_headline(_instants(ctx), ctx)
+    c = ctx.results.get("contrast")
+    if c is not None and c.values.get("uniform"):
+        _blank_uniform(res.summary["coherence"])
+        res.lines = _lines(res.summary["coherence"])
+    return res
+
+
+#: the cutoff entries a uniform plasma does not have (no structure: no k_c, no bound)
+_UNIFORM_NONE = ("k_cutoff", "k_cutoff_err", "k_cutoff_per_cm", "frequency_cutoff_hz",
+                 "frequency_cutoff_err_hz", "frequency_cutoff_lower_bound_hz",
+                 "frequency_cutoff_ghz", "species", "frequency_cutoff_budget_hz",
+                 "k_cutoff_budget", "grid_limited_why")
+
+
+def _blank_uniform(head: dict) -> None:
+    """A plasma that stayed uniform (contrast.uniform) claims no cutoff, in the headline and in
+    its snapshots: its |F(k)|^2 is round-off, never a value or a grid-limited bound."""
+    for d in (head, head.get("peak_snapshot"), head.get("end_snapshot"), head.get("end")):
+        if not isinstance(d, dict):
+            continue
+        for k in _UNIFORM_NONE:
+            if k in d:
+                d[k] = None
+        d.update({"lower_bound": False, "status": "uniform"})
+        if "grid_limited" in d:
+            d["grid_limited"] = False
+        if isinstance(d.get("by_species"), dict):
+            d["by_species"] = {}
 
 
 _INSTANT_KEYS = ("t", "t_ns", "k_cutoff", "k_cutoff_err", "k_cutoff_per_cm", "frequency_cutoff_hz",
@@ -318,6 +346,9 @@ def _lines(co: dict) -> list[str]:
 
 
 def _main_lines(co: dict) -> list[str]:
+    if co.get("status") == "uniform":
+        return ["coherence: no cutoff, the plasma stayed uniform (no density structure to "
+                "emit coherently)"]
     G = co.get("bulk_gamma", 1.0)
     G = 1.0 if G is None else G
     note = ("  assumes particles on the same trajectory emitting along the motion; "

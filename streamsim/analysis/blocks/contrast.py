@@ -36,6 +36,7 @@ def compute(ctx: Context) -> BlockResult:
                          "the turning points of trapped orbits), so max delta n/n has no "
                          "converged value: the grid sets it; give the beams a temperature"
                          if cold else None)
+    block["uniform"] = _ct.stayed_uniform(block.get("max"))
     warnings = _start(block, ctx)
     t = np.asarray(s.t, float)
     cmax = np.asarray(s.contrast_max, float)
@@ -49,7 +50,8 @@ def compute(ctx: Context) -> BlockResult:
                   attrs={"columns": ",".join(names + ["total"])})
     return BlockResult(NAME, {"contrast": block}, {"contrast": table},
                        [Figure("contrast.png", "max and rms delta n/n vs time per species and "
-                               "for the total", _draw)], _lines(block, n_cm3), warnings)
+                               "for the total", _draw)], _lines(block, n_cm3), warnings,
+                       values={"uniform": block["uniform"]})
 
 
 def _seed_level(deck) -> float:
@@ -149,6 +151,10 @@ def _linear_rate(ctx: Context):
 def _lines(c: dict, n_cm3: float) -> list[str]:
     if c.get("max") is None:
         return ["density contrast: not recorded"]
+    if c.get("uniform"):
+        return [f"the plasma stayed uniform: max dn/n = {fmt(c['max'], '.2g')} over the run "
+                f"(round-off, <= {_ct.UNIFORM_LEVEL:g}): nothing seeded the instability; add a "
+                "[perturbation] (a Vlasov run has no particle noise to grow from)"]
     if c.get("t_unity") is not None:
         out = [f"clumps form (max dn/n >= 1) at t = {fmt(c['t_unity'])} /w_p = "
                f"{fmt(c.get('t_unity_ns'))} ns; max dn/n = {fmt(c['max'], '.3g')} "

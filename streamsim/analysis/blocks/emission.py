@@ -220,10 +220,39 @@ def compute(ctx: Context) -> BlockResult:
                   "width_cm": np.array([r[3] * skin for r in clump_rows], float),
                   "in_window": np.array([int(in_win[r[0]]) for r in clump_rows], int)},
                   units={"t": "1/omega_p", "width": "c/omega_p", "width_cm": "cm"})}
+    if _stayed_uniform(ctx):
+        _blank_uniform(head)
     return BlockResult(NAME, {"emission": head}, tables,
                        [Figure("emission.png", "nu_c(t), clump size(t) and max delta n/n(t) "
                                "with the saturated window", _draw)], _lines(head), warnings,
                        values={"window": head})
+
+
+def _stayed_uniform(ctx: Context) -> bool:
+    """The contrast block found no structure at all (max delta n/n at round-off)."""
+    c = ctx.results.get("contrast")
+    return bool(c is not None and c.values.get("uniform"))
+
+
+#: the emission numbers a uniform plasma does not have
+_UNIFORM_NONE = ("k_cutoff", "k_cutoff_err", "k_cutoff_per_cm", "frequency_cutoff_hz",
+                 "frequency_cutoff_err_hz", "species", "k_cutoff_budget",
+                 "frequency_cutoff_budget_hz", "size_median", "size_median_cm",
+                 "size_median_err", "size_median_err_cm", "size_median_budget_cm")
+
+
+def _blank_uniform(head: dict) -> None:
+    """A plasma that stayed uniform has no saturated window and no cutoff: say so, never a
+    bound set by the grid or the largest k computed."""
+    for k in _UNIFORM_NONE:
+        if k in head:
+            head[k] = None
+    head.update({"lower_bound": False, "status": "uniform", "by_species": {},
+                 "history": {}, "warning": None})
+    head["window"] = {k: (None if k not in ("how", "criterion") else v)
+                      for k, v in head["window"].items()}
+    head["window"]["how"] = "none: the plasma stayed uniform (contrast.uniform)"
+    head["window"]["long_enough"] = False
 
 
 def _ns(t, to_ns):
@@ -331,6 +360,8 @@ def _window_clumps(widths_by_record, idx, n_cm3) -> dict:
 
 def _lines(head: dict) -> list[str]:
     w = head["window"]
+    if head.get("status") == "uniform":
+        return ["emission: none, the plasma stayed uniform (no saturated window, no cutoff)"]
     if w.get("t0") is None or not head["records"]["count"]:
         return [f"emission: {head['records']['source']}"]
     out = [f"emission window [{w['t0']:.4g}, {w['t1']:.4g}] /w_p = "
