@@ -51,7 +51,7 @@ def compute(ctx: Context) -> BlockResult:
 #: the cutoff entries a uniform plasma does not have (no structure: no k_c, no bound)
 _UNIFORM_NONE = ("k_cutoff", "k_cutoff_err", "k_cutoff_per_cm", "frequency_cutoff_hz",
                  "frequency_cutoff_err_hz", "frequency_cutoff_lower_bound_hz",
-                 "frequency_cutoff_ghz", "species", "frequency_cutoff_budget_hz",
+                 "species", "frequency_cutoff_budget_hz",
                  "k_cutoff_budget", "grid_limited_why")
 
 
@@ -73,7 +73,7 @@ def _blank_uniform(head: dict) -> None:
 
 _INSTANT_KEYS = ("t", "t_ns", "k_cutoff", "k_cutoff_err", "k_cutoff_per_cm", "frequency_cutoff_hz",
                  "frequency_cutoff_err_hz", "frequency_cutoff_lower_bound_hz",
-                 "frequency_cutoff_ghz", "noise_floor", "species",
+                 "noise_floor", "species",
                  "lower_bound", "status", "by_species", "bulk_gamma", "bulk_gamma_source",
                  "bulk_gamma_measured", "grid_limited", "grid_limited_why")
 
@@ -159,8 +159,6 @@ def _bound(head: dict, n_cm3: float) -> None:
         head["frequency_cutoff_lower_bound_hz"] = None
     if head.get("k_cutoff") is not None:
         head["k_cutoff_per_cm"] = units.wavenumber_per_cm(head["k_cutoff"], n_cm3)
-        nu = head["frequency_cutoff_hz"] or head["frequency_cutoff_lower_bound_hz"]
-        head["frequency_cutoff_ghz"] = nu / 1e9 if head["frequency_cutoff_hz"] else None
 
 
 def _instants(ctx: Context) -> BlockResult:
@@ -264,8 +262,6 @@ def _instants(ctx: Context) -> BlockResult:
         head["frequency_cutoff_lower_bound_hz"] = None
     if head.get("k_cutoff") is not None:
         head["k_cutoff_per_cm"] = units.wavenumber_per_cm(head["k_cutoff"], n_cm3)
-        nu = head["frequency_cutoff_hz"] or head["frequency_cutoff_lower_bound_hz"]
-        head["frequency_cutoff_ghz"] = nu / 1e9 if head["frequency_cutoff_hz"] else None
     if src == "peak" and "end" in per:
         head["end"] = {k: per["end"][k] for k in ("t", "k_cutoff", "frequency_cutoff_hz",
                                                   "noise_floor", "species", "status")}
