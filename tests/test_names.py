@@ -104,3 +104,17 @@ def test_uniform_vlasov_plasma_claims_no_cutoff_and_says_so(tmp_path, capsys):
     text = terminal_lines(res.analysis)
     assert "stayed uniform" in text and "nu_c >=" not in text
     assert "Warning" not in capsys.readouterr().err
+
+
+def test_analyze_gives_an_old_folder_the_new_run_keys(tmp_path):
+    # README "Renamed keys": analyze rewrites summary.json; the run's own momentum keys of
+    # schema 1 get their schema-2 names and schema_version becomes 2
+    from streamsim import io
+    old = {"streamsim_version": "0.1.0", "momentum": {"drift_max": 1e-15,
+                                                      "drift_max_relative": 2e-11}}
+    (tmp_path / "summary.json").write_text(json.dumps(old))
+    io.update_summary(tmp_path, {"growth": {"fit": "straight_window"}})
+    s = json.loads((tmp_path / "summary.json").read_text())
+    assert s["schema_version"] == 2
+    assert s["momentum"] == {"error_max": 1e-15, "error_max_relative": 2e-11}
+    assert s["growth"] == {"fit": "straight_window"}
