@@ -19,7 +19,8 @@ import streamsim
 from streamsim.scan.spec import METRIC_PATHS
 
 #: the unit tokens of README ("Units" under summary.json)
-UNIT_TOKENS = ("hz", "rad_s", "per_s", "ns", "s", "cm", "per_cm", "cm3", "statv_cm", "gib")
+UNIT_TOKENS = ("hz", "rad_s", "per_s", "ns", "s", "cm", "per_cm", "cm3", "statv_cm", "statA_cm2",
+               "A_m2", "gib")
 #: the keys of schema 1 that schema 2 renamed or removed (README "Renamed keys")
 OLD_KEYS = {"method", "drift_max", "drift_max_relative", "frequency_cutoff_hz_err",
             "frequency_cutoff_hz_lower_bound", "frequency_cutoff_bound", "t_unity_ns_for_level",
