@@ -19,7 +19,7 @@ from typing import Any, Callable
 import numpy as np
 
 from . import io, resume as _resume, units
-from ._version import __version__
+from ._version import SUMMARY_SCHEMA_VERSION, __version__
 from .control import EnergyWatch, Progress, Signals, StopRequest
 from .checkpointer import Checkpointer
 from .deck import Deck, DeckError, load_deck
@@ -364,6 +364,7 @@ def _run_summary(ctx: RunContext, warnings, *, status, wall, steps_done) -> dict
     total_charge = float(sum(s.charge * s.density for s in deck.species))
     return {
         "streamsim_version": __version__,
+        "schema_version": SUMMARY_SCHEMA_VERSION,
         "deck_title": deck.title,
         "method": deck.method,
         "status": status,

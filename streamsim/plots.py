@@ -6,6 +6,7 @@ never from a recomputation, so a figure always shows the numbers in summary.json
 """
 from __future__ import annotations
 
+import warnings
 from pathlib import Path
 
 __all__ = ["plt", "message_figure", "draw_figures", "Painter"]
@@ -48,8 +49,10 @@ def draw_figures(results, data, folder) -> list[Path]:
     for res in results.values():
         for f in res.figures:
             try:
-                fig = f.draw(res, data)
-                paths.append(save_figure(fig, out / f.file))
+                with warnings.catch_warnings():   # matplotlib's complaints (an empty log axis)
+                    warnings.simplefilter("ignore")   # never reach the terminal
+                    fig = f.draw(res, data)
+                    paths.append(save_figure(fig, out / f.file))
             finally:
                 _pyplot().close("all")
     return paths

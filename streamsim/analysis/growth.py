@@ -242,7 +242,7 @@ def fit_field_energy(t, field_energy, theory_growth: float | None = None, **kw) 
 
 
 # -- noise-seeded runs --------------------------------------------------------------------------
-#: method names reported as growth.method / modes[].method
+#: method names reported as growth.fit / modes[].fit
 STRAIGHT = "straight_window"
 EIGENMODE = "eigenmode"     # prefix: "eigenmode+straight_window", "eigenmode+noise_floor"
 NOISE_FLOOR = "noise_floor"
@@ -274,7 +274,7 @@ def fit_modes_noise(t, mode_amplitude, length, theory_growth: dict[int, float] |
     See :mod:`streamsim.analysis.noise_growth`.
     A straight window's ``measured_err`` here adds its ``systematic`` (half the difference of the
     half-window slopes) in quadrature to the statistical error (kept as ``statistical_err``).
-    Each row carries ``method``; a row without a rate carries ``reason`` (in numbers) and
+    Each row carries ``fit``; a row without a rate carries ``reason`` (in numbers) and
     ``particles_per_cell_needed`` (shot-noise law) for :data:`noise_growth.TARGET_EFOLDS`.
     """
     from . import noise_growth as ng
@@ -287,7 +287,7 @@ def fit_modes_noise(t, mode_amplitude, length, theory_growth: dict[int, float] |
         g_th = finite_or_none(th.get(m))
         row = {"mode": m, "k": k, "measured": None, "measured_err": None, "systematic": None,
                "theory": g_th, "ratio": None, "window": None, "efolds": None,
-               "status": NO_PHASE, "method": None, "reason": None,
+               "status": NO_PHASE, "fit": None, "reason": None,
                "particles_per_cell_needed": None, "noise_level": None}
         signals = []
         basis = bases.get(m)
@@ -327,7 +327,7 @@ def fit_modes_noise(t, mode_amplitude, length, theory_growth: dict[int, float] |
                 row["statistical_err"] = fit.rate_err
                 row["measured_err"] = math.hypot(fit.rate_err, fit.systematic)
             row["status"] = "fit"
-            row["method"] = method
+            row["fit"] = method
             if g_th is not None and g_th > 0:
                 row["ratio"] = fit.rate / g_th
         else:
@@ -356,7 +356,7 @@ def fit_band_energy(t, mode_amplitude, length, band_modes, theory_growth: float 
     cols = [m - 1 for m in band_modes if 0 < m <= amp.shape[1]]
     out = {"measured": None, "measured_err": None, "window": None, "amplitude_rate": None,
            "amplitude_rate_err": None, "theory": None, "ratio": None, "status": NO_PHASE,
-           "method": NOISE_FLOOR + " (unstable band)", "band_modes": [c + 1 for c in cols]}
+           "fit": NOISE_FLOOR + " (unstable band)", "band_modes": [c + 1 for c in cols]}
     if theory_growth is not None and theory_growth > 0:
         out["theory"] = 2.0 * theory_growth
     if not cols:
@@ -365,7 +365,7 @@ def fit_band_energy(t, mode_amplitude, length, band_modes, theory_growth: float 
     fit = ng.fit_noise_floor(t, w)
     if fit is None:                  # no floor left in the band: the straight window of ln W
         straight = fit_field_energy(t, w, theory_growth)
-        straight["method"] = STRAIGHT + " (unstable band)"
+        straight["fit"] = STRAIGHT + " (unstable band)"
         straight["band_modes"] = out["band_modes"]
         return straight
     if fit is not None:

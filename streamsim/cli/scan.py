@@ -59,6 +59,16 @@ def _fmt(v, spec=".3g") -> str:
     return "-" if v is None else format(v, spec) if isinstance(v, (int, float)) else str(v)
 
 
+_NU, _NU_BOUND = "coherence.frequency_cutoff_hz", "coherence.frequency_cutoff_lower_bound_hz"
+
+
+def _nu_c(r: dict) -> str:
+    """The cutoff frequency of a row, ">=" its lower bound when grid-limited, "-" when none."""
+    if r.get(_NU) is not None:
+        return _fmt(r[_NU])
+    return ">=" + _fmt(r[_NU_BOUND]) if r.get(_NU_BOUND) is not None else "-"
+
+
 def _print_summary(scan, res) -> None:
     lines = [f"{scan.title}: {len(res.rows)} runs ({res.completed} completed, {res.failed} failed"
              + (f", {res.pending} not done" if res.pending else "") + f"); this time ran "
@@ -72,19 +82,17 @@ def _print_summary(scan, res) -> None:
         for r in res.rows:
             table.append([_fmt(r[n]) for n in names] + ([str(r["replica"])] if scan.replicas > 1
                                                         else []) +
-                         [_fmt(r["growth_time_ns"]), _fmt(r["theory_growth_time_ns"]),
-                          _fmt(r["growth_ratio"]), _fmt(r["t_unity_ns"]),
-                          _fmt(r["clump_size_median_cm"]) + ("*" if r.get("clump_grid_limited")
+                         [_fmt(r["growth.growth_time_ns"]),
+                          _fmt(r["growth.theory_growth_time_ns"]),
+                          _fmt(r["growth.ratio"]), _fmt(r["contrast.t_unity_ns"]),
+                          _fmt(r["clumps.size_median_cm"]) + ("*" if r.get("clumps.grid_limited")
                                                              else ""),
-                          _fmt(r["nu_c_hz"]) if r.get("nu_c_hz") is not None else
-                          (">=" + _fmt(r.get("nu_c_lower_bound_hz"))
-                           if r.get("nu_c_lower_bound_hz") is not None else "-"),
+                          _nu_c(r),
                           r["status"] + (f": {r['error']}" if r["status"] == "failed" else "")])
         widths = [max(len(row[j]) for row in table) for j in range(len(head) - 1)]
         for row in table:
             lines.append("  " + "  ".join(c.rjust(w) for c, w in zip(row, widths)) + "  " + row[-1])
-    if any(r.get("clump_grid_limited") or r.get("nu_c_lower_bound_hz") is not None
-           for r in res.rows):
+    if any(r.get("clumps.grid_limited") or r.get(_NU_BOUND) is not None for r in res.rows):
         lines.append("  * clump size set by the grid; >= nu_c only a lower bound (grid-limited): "
                      "raise box.cells or give the beams a temperature")
     lines.append(f"  tables: {res.tables[0]}, {res.tables[1]}" if res.tables else "")

@@ -125,9 +125,9 @@ def _line_plot(scan, rows, i, ax, column, err_column, theory_columns, ylabel):
 
 def _growth_vs_axis(scan, rows, i, folder) -> Path:
     fig, ax = plt.subplots(figsize=(9.5, 4.5))
-    _line_plot(scan, rows, i, ax, "growth_time_ns", "growth_time_err_ns",
-               [("theory_growth_time_ns", "-", "theory, same box mode"),
-                ("theory_fastest_growth_time_ns", "--", "theory, fastest mode")],
+    _line_plot(scan, rows, i, ax, "growth.growth_time_ns", "growth.growth_time_err_ns",
+               [("growth.theory_growth_time_ns", "-", "theory, same box mode"),
+                ("theory.fastest.growth_time_ns", "--", "theory, fastest mode")],
                "growth time 1/gamma (ns)")
     fig.suptitle(f"{scan.title}: e-folding time of the field vs {scan.axes[i].name}", fontsize=10)
     return _save(fig, folder / f"growth_time_vs_{_slug(scan.axes[i].name)}.png")
@@ -152,13 +152,13 @@ def _lower_bounds(scan, rows, i, ax, column: str) -> int:
 
 def _nu_c_vs_axis(scan, rows, i, folder) -> Path:
     fig, ax = plt.subplots(figsize=(9.5, 4.5))
-    _line_plot(scan, rows, i, ax, "nu_c_hz", "nu_c_hz_err", [], "coherence cutoff nu_c (Hz)")
-    if _lower_bounds(scan, rows, i, ax, "nu_c_lower_bound_hz"):
+    _line_plot(scan, rows, i, ax, "coherence.frequency_cutoff_hz", "coherence.frequency_cutoff_err_hz", [], "coherence cutoff nu_c (Hz)")
+    if _lower_bounds(scan, rows, i, ax, "coherence.frequency_cutoff_lower_bound_hz"):
         for t in ax.texts:
             if t.get_text() == "no completed run has this value":
                 t.remove()
         ax.legend(fontsize=7, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0)
-    gammas = sorted({r["bulk_gamma"] for r in rows if r.get("bulk_gamma") is not None})
+    gammas = sorted({r["coherence.bulk_gamma"] for r in rows if r.get("coherence.bulk_gamma") is not None})
     g = ", ".join(_fmt(v) for v in gammas) if gammas else "n/a"
     fig.suptitle(f"{scan.title}: nu_c = Gamma c k_c / 2 pi (Gamma = {g}) vs {scan.axes[i].name}",
                  fontsize=10)
@@ -181,8 +181,8 @@ def _map(scan, rows, folder) -> Path | None:
         return None
     order_a = np.argsort(a.values)
     order_b = np.argsort(b.values)
-    stats = replica_stats(rows, "growth_time_ns")
-    ratio = replica_stats(rows, "growth_ratio")
+    stats = replica_stats(rows, "growth.growth_time_ns")
+    ratio = replica_stats(rows, "growth.ratio")
     point_of = {}
     for r in rows:
         point_of[(r[f"{a.name}#index"], r[f"{b.name}#index"])] = r["point"]

@@ -60,24 +60,23 @@ FORBIDDEN_KEYS = {"output.folder": "the scan gives every run its own folder",
 RUN_COLUMNS = ("run", "point", "replica", "status", "error", "hash", "folder", "random_seed",
                "shared_run")
 
-#: run-level columns (not from an analysis block): name -> (unit, meaning, summary.json path)
-_RUN_METRICS = {
-    "density_cm3": ("cm^-3", "reference density units.density_cm3",
-                    ("normalization", "density_cm3")),
-}
-_TAIL_METRICS = {
-    "energy_error_max": ("", "maximum relative energy error", ("energy", "relative_error_max")),
-    "wall_s": ("s", "wall time of the run", ("wall_s",)),
-}
+#: run-level columns (not from an analysis block): (unit, meaning, summary.json path); each
+#: column is named after its path like a block's (analysis.base.column_name)
+_RUN_METRICS = (("cm^-3", "reference density units.density_cm3",
+                 ("normalization", "density_cm3")),)
+_TAIL_METRICS = (("", "maximum relative energy error", ("energy", "relative_error_max")),
+                 ("s", "wall time of the run", ("wall_s",)))
 
 
 def _metric_paths() -> dict[str, tuple[str, str, tuple]]:
     """Every scan column with its unit, meaning and summary.json key path: the run-level ones
-    and every analysis block's ``SCAN_COLUMNS`` (a new block brings its own columns)."""
+    and every analysis block's ``SCAN_COLUMNS`` (a new block brings its own columns). A column
+    is named after the summary.json key it holds (its path joined by dots), never by hand."""
     from ..analysis import scan_columns
-    cols = dict(_RUN_METRICS)
+    from ..analysis.base import column_name
+    cols = {column_name(p): (u, m, p) for u, m, p in _RUN_METRICS}
     cols.update({c.name: (c.unit, c.meaning, c.path) for c in scan_columns()})
-    cols.update(_TAIL_METRICS)
+    cols.update({column_name(p): (u, m, p) for u, m, p in _TAIL_METRICS})
     return cols
 
 

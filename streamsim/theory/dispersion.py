@@ -69,12 +69,11 @@ class Dispersion:
             fast = {"k": f.k, "growth": f.growth, "omega_r": f.omega_r,
                     "wavelength": 2 * math.pi / f.k,
                     "growth_time": 1.0 / f.growth,
-                    "growth_time_ns": None, "growth_time_efold_ns": None,
-                    "energy_growth_time_ns": None, "wavelength_cm": None, "k_per_cm": None,
+                    "growth_time_ns": None, "energy_growth_time_ns": None, "wavelength_cm": None, "k_per_cm": None,
                     "efoldings_in_run": finite_or_none(f.growth * self.time_end) if self.time_end else None}
             if n:
                 t = units.growth_time_ns(f.growth, n)
-                fast.update(growth_time_ns=t, growth_time_efold_ns=t, energy_growth_time_ns=t / 2,
+                fast.update(growth_time_ns=t, energy_growth_time_ns=t / 2,
                             wavelength_cm=units.length_cm(2 * math.pi / f.k, n),
                             k_per_cm=units.wavenumber_per_cm(f.k, n))
         out = {
