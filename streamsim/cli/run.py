@@ -31,8 +31,8 @@ def add_arguments(p) -> None:
     p.add_argument("--no-figures", action="store_true", help="analyse, but draw no figures")
     p.add_argument("--replicas", type=int, default=None, metavar="R",
                    help="run R seeds (random_seed, +1, ...) on the scan machinery and report the "
-                        "mean +- standard error of the fastest growth rate and of contrast.t_unity_ns "
-                        "(every replica in replicas.csv; folder: --out, else the deck's folder "
+                        "mean +- standard error of the fastest growth rate and of "
+                        "contrast.t_unity_ns (every replica in replicas.csv; folder: --out, else the deck's folder "
                         "+ '-replicas')")
     # where the replicas run (as for a scan; only with --replicas)
     add_executor_arguments(p)
