@@ -152,11 +152,12 @@ class Species:
     density: float                # lab-frame density / n_ref
     drift_u: float                # signed gamma*beta of the drift
     theta: float | None           # kT/(m c^2) in the drift frame (derived when temperature_kev was given)
-    distribution: str             # "cold" | "juttner" | "waterbag"
+    distribution: str             # "cold" | "juttner" | "waterbag" | "table"
     spread_u: float               # waterbag half-width in u (drift frame)
     particles_per_cell: int
     loading: str                  # "quiet" | "random"
     temperature_kev: float | None = field(default=None, compare=False)  # kT in keV
+    table: "DistributionTable | None" = None   # distribution = "table": the checked rows f(u)
 
     @property
     def drift_gamma(self) -> float:

@@ -16,6 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .tabulated import TabulatedTerm, is_table, table_seed_beams, table_waterbag
 from .formulas import (equivalent_waterbag_spread, juttner_normalisation, maxwellian_parameters,
                        one_plus_zeta_z, waterbag_edges)
 
@@ -24,7 +25,7 @@ __all__ = [
     "eps_cold", "eps_waterbag", "eps_maxwellian", "eps_juttner",
 ]
 
-MODELS = ("cold", "waterbag", "maxwellian", "juttner")
+MODELS = ("cold", "waterbag", "maxwellian", "juttner", "table")
 
 #: below this temperature a Juttner species is treated as cold (the quadrature window would be
 #: narrower than the resolution of double precision in the rapidity).
@@ -44,9 +45,12 @@ def model_for_species(species) -> str:
 
     "cold" if every species is cold; "waterbag" if any is a waterbag and the rest are cold;
     "juttner" if any species is a warm Juttner (also when waterbags are present: the Juttner model
-    keeps their exact rational terms).  "maxwellian" is only used on request.
+    keeps their exact rational terms); "table" if any species is tabulated (the other species keep
+    their exact terms: Juttner by quadrature, cold and waterbag rational).  "maxwellian" is only used on request.
     """
     species = list(species)
+    if any(is_table(s) for s in species):
+        return "table"
     if any(_is_warm_juttner(s) for s in species):
         return "juttner"
     if any(s.distribution == "waterbag" and s.spread_u > 0 for s in species):
@@ -202,15 +206,34 @@ def _rational_term(s, model: str) -> _Rational:
 
 def _terms(species, model: str) -> list:
     """Susceptibility terms of the species under a model (rational terms of equal poles merged)."""
-    if model not in MODELS:
+    if model not in MODELS and model != "beams":
         raise ValueError(f"unknown model {model!r}; choose one of {', '.join(MODELS)}")
+    if model == "maxwellian" and any(is_table(s) for s in species):
+        raise ValueError("the maxwellian model has no form for a tabulated species; use the "
+                         "table model (growing roots only)")
     out = []
     for s in species:
         warm = _is_warm_juttner(s) and s.theta > THETA_COLD
-        if model == "maxwellian" and warm:
+        if is_table(s):
+            # "table": the exact term; the others are stand-ins that seed its roots (cold: one
+            # beam at the mean u; waterbag: flat of equal mean and rms u; beams: six cold beams
+            # on equal-probability slices)
+            if model == "table":
+                out.append(TabulatedTerm(s.omega_p2, s.table.v, s.table.f))
+            elif model == "beams":
+                out.extend(_Rational(c, v, v) for c, v in table_seed_beams(s))
+            elif model == "cold":
+                m = s.table.moments()[0]
+                g = math.sqrt(1.0 + m * m)
+                out.append(_Rational(s.omega_p2 / g**3, m / g, m / g))
+            else:
+                out.append(_Rational(*table_waterbag(s)))
+        elif model == "beams":
+            out.append(_rational_term(s, "waterbag"))
+        elif model == "maxwellian" and warm:
             a, v, vt = maxwellian_parameters(s)
             out.append(_Maxwell(a, v, vt))
-        elif model == "juttner" and warm:
+        elif model in ("juttner", "table") and warm:
             out.append(_Juttner(s.omega_p2, s.drift_u, s.theta))
         else:
             out.append(_rational_term(s, "cold" if model == "cold" else "waterbag"))

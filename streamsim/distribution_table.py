@@ -1,0 +1,256 @@
+"""A species' momentum distribution given as a table f(u): reading, checking, interpolation,
+moments, cumulative distribution and its inverse.
+
+The table lists lab-frame momenta u = gamma*beta (strictly increasing) and f >= 0 in any
+normalisation.  Between two rows f is interpolated **linearly in the velocity v = u/sqrt(1+u^2)**
+(not in u), and f = 0 outside the rows (so a table whose first or last f is not zero cuts a tail
+there).  Why linear, and why in v:
+
+- linear interpolation keeps f >= 0 and adds no extremum between rows (no overshoot, unlike a
+  spline), so the table's own minima and maxima are the interpolant's: the stability verdict
+  (Penrose 1960) sees exactly the humps the user tabulated;
+- in v, the effective distribution G(v) = sum_s omega_ps^2 f_s(u(v)) of the linear theory is then
+  piecewise linear, whose dielectric function is a finite sum of logarithms (exact, no quadrature
+  error on top of the interpolation; :mod:`streamsim.theory.tabulated`);
+- in u, f linear in v integrates in closed form too: Int (a + b v) du = a u + b gamma (since
+  dv = du/gamma^3 and d gamma/du = v), so the cumulative distribution used for loading is exact
+  and the loading, the theory and the Vlasov start all see one and the same f.
+
+Normalised units: u = gamma*beta, v in c.  The table is normalised here to Int f du = 1 (the
+species' ``density`` stays its lab-frame density).
+"""
+from __future__ import annotations
+
+import hashlib
+import math
+import os
+from dataclasses import dataclass, field
+
+import numpy as np
+
+__all__ = ["MIN_ROWS", "TableError", "DistributionTable", "read_table_csv", "table_from_arrays",
+           "parse_table_text"]
+
+#: fewest rows a table may have.  A hump needs at least its rise, top and fall resolved by a few
+#: rows each, and the stability verdict needs a minimum between two humps flanked by rows, so a
+#: table shorter than this cannot describe a distribution the theory can trust (common practice:
+#: a few points per feature; 8 leaves two humps with two rows per flank).
+MIN_ROWS = 8
+
+
+class TableError(ValueError):
+    """A bad distribution table: one line naming the file and (where it applies) the row."""
+
+
+def _where(source: str, row: int | None) -> str:
+    return f"{source}, row {row}" if row is not None else source
+
+
+def parse_table_text(text: str, source: str):
+    """(u, f, rows) from the text of a table CSV: header ``u,f`` (``#`` comment lines and blank
+    lines allowed), one ``u,f`` pair a line.  ``rows`` holds the 1-based line number of each
+    data row (for messages).  Raises :class:`TableError` naming ``source`` and the line."""
+    header = None
+    u, f, rows = [], [], []
+    for n, line in enumerate(text.splitlines(), start=1):
+        s = line.strip()
+        if not s or s.startswith("#"):
+            continue
+        cells = [c.strip() for c in s.split(",")]
+        if header is None:
+            header = [c.lower() for c in cells]
+            if header != ["u", "f"]:
+                raise TableError(f"{_where(source, n)}: the header must be 'u,f', not {s!r}")
+            continue
+        if len(cells) != 2:
+            raise TableError(f"{_where(source, n)}: expected two values 'u,f', got {s!r}")
+        try:
+            a, b = float(cells[0]), float(cells[1])
+        except ValueError:
+            raise TableError(f"{_where(source, n)}: not a number in {s!r}") from None
+        u.append(a)
+        f.append(b)
+        rows.append(n)
+    if header is None:
+        raise TableError(f"{source}: the file is empty (expected a header 'u,f' and rows)")
+    return np.array(u, float), np.array(f, float), rows
+
+
+def read_table_csv(path: str):
+    """(u, f, sha256 of the file's bytes) of a table CSV; :class:`TableError` if it cannot be read
+    or parsed (the row is named where it applies)."""
+    try:
+        with open(path, "rb") as fh:
+            raw = fh.read()
+    except OSError as exc:
+        raise TableError(f"{path}: cannot read the table ({exc.strerror or exc})") from None
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError:
+        raise TableError(f"{path}: not a text (UTF-8) CSV file") from None
+    u, f, rows = parse_table_text(text, path)
+    check_rows(u, f, path, rows)
+    return u, f, hashlib.sha256(raw).hexdigest()
+
+
+def check_rows(u, f, source: str, rows=None) -> None:
+    """Refuse a bad table with one line naming ``source`` and the row (``rows``: the line number
+    of each entry, else the 1-based entry index)."""
+    u = np.asarray(u, float)
+    f = np.asarray(f, float)
+    rows = list(rows) if rows is not None else list(range(1, u.size + 1))
+    if u.shape != f.shape or u.ndim != 1:
+        raise TableError(f"{source}: u and f must be two 1-D arrays of one length "
+                         f"(got {u.shape} and {f.shape})")
+    if u.size < MIN_ROWS:
+        raise TableError(f"{source}: {u.size} rows; a table needs at least {MIN_ROWS} (a hump "
+                         "needs its rise, top and fall resolved, and the stability verdict a "
+                         "minimum between rows)")
+    for name, a in (("u", u), ("f", f)):
+        bad = np.nonzero(~np.isfinite(a))[0]
+        if bad.size:
+            i = int(bad[0])
+            raise TableError(f"{_where(source, rows[i])}: {name} = {a[i]!r} is not finite")
+    neg = np.nonzero(f < 0)[0]
+    if neg.size:
+        i = int(neg[0])
+        raise TableError(f"{_where(source, rows[i])}: f = {f[i]:g} is negative (f >= 0 needed)")
+    dec = np.nonzero(np.diff(u) <= 0)[0]
+    if dec.size:
+        i = int(dec[0]) + 1
+        raise TableError(f"{_where(source, rows[i])}: u = {u[i]:g} does not exceed the previous "
+                         f"row's u = {u[i - 1]:g} (u must be strictly increasing)")
+    if not np.any(f > 0):
+        raise TableError(f"{source}: f is zero on every row (no particles)")
+
+
+def _velocity(u):
+    return u / np.sqrt(1.0 + np.square(u))
+
+
+@dataclass(frozen=True, eq=False)
+class DistributionTable:
+    """A checked table f(u), normalised to Int f du = 1, with its source and checksum.
+
+    ``u``, ``f``: the rows (f normalised); ``v``: the rows' velocities.  Equality (for decks) is by
+    checksum of the rows, so two decks with the same table data are the same deck.
+    """
+    u: np.ndarray
+    f: np.ndarray
+    source: str = "<arrays>"
+    sha256: str = ""
+    v: np.ndarray = field(init=False, repr=False)
+
+    def __post_init__(self):
+        u = np.ascontiguousarray(self.u, dtype=float)
+        f = np.ascontiguousarray(self.f, dtype=float)
+        v = _velocity(u)
+        mass = float(np.sum(self._segment_integrals(u, v, f)))
+        object.__setattr__(self, "u", u)
+        object.__setattr__(self, "v", v)
+        object.__setattr__(self, "f", f / mass)
+        if not self.sha256:
+            object.__setattr__(self, "sha256", data_sha256(u, f))
+        for a in (self.u, self.v, self.f):
+            a.setflags(write=False)
+
+    def __eq__(self, other):
+        return isinstance(other, DistributionTable) and self.sha256 == other.sha256
+
+    def __hash__(self):
+        return hash(self.sha256)
+
+    # -- interpolant ---------------------------------------------------------------------
+    @staticmethod
+    def _segment_integrals(u, v, f):
+        """Int f du over each interval with f linear in v: a u + b gamma on [u_j, u_j+1]."""
+        g = np.sqrt(1.0 + u * u)
+        b = np.diff(f) / np.diff(v)
+        a = f[:-1] - b * v[:-1]
+        return a * np.diff(u) + b * np.diff(g)
+
+    def f_at(self, u) -> np.ndarray:
+        """f(u) of the interpolant (linear in v between rows, 0 outside)."""
+        return np.interp(_velocity(np.asarray(u, float)), self.v, self.f, left=0.0, right=0.0)
+
+    @property
+    def support(self) -> tuple[float, float]:
+        return float(self.u[0]), float(self.u[-1])
+
+    def cdf_rows(self) -> np.ndarray:
+        """The cumulative distribution at the rows (0 at the first row, 1 at the last)."""
+        c = np.concatenate([[0.0], np.cumsum(self._segment_integrals(self.u, self.v, self.f))])
+        return c / c[-1]
+
+    def inverse_cdf(self, q, iterations: int = 6) -> np.ndarray:
+        """u at quantiles q in [0, 1] of the interpolant: the interval from the row CDF
+        (searchsorted), then Newton's method on a u + b gamma = target inside it (started from
+        the linear-in-u guess, clipped to the interval; the CDF is monotone and convex/concave
+        there, so a few steps reach rounding)."""
+        q = np.asarray(q, float)
+        c = self.cdf_rows()
+        j = np.clip(np.searchsorted(c, q, side="right") - 1, 0, self.u.size - 2)
+        u0, u1 = self.u[j], self.u[j + 1]
+        v0, v1 = self.v[j], self.v[j + 1]
+        f0, f1 = self.f[j], self.f[j + 1]
+        seg = c[j + 1] - c[j]                 # Int f du over the interval (f normalised)
+        t = np.clip(np.where(seg > 0, (q - c[j]) / np.where(seg > 0, seg, 1.0), 0.5), 0.0, 1.0)
+        b = (f1 - f0) / (v1 - v0)
+        a = f0 - b * v0
+        target = t * seg
+        g0 = np.sqrt(1.0 + u0 * u0)
+        x = u0 + t * (u1 - u0)
+        for _ in range(iterations):
+            g = np.sqrt(1.0 + x * x)
+            val = a * (x - u0) + b * (g - g0) - target
+            dens = a + b * x / g              # f(x) >= 0
+            step = np.where(dens > 0, val / np.where(dens > 0, dens, 1.0), 0.0)
+            x = np.clip(x - step, u0, u1)
+        return x
+
+    def moments(self) -> tuple[float, float]:
+        """(mean u, rms spread of u) of the interpolant (fine trapezoid on each interval)."""
+        uu = np.linspace(self.u[0], self.u[-1], 4 * self.u.size + 1)
+        ff = self.f_at(uu)
+        w = np.concatenate([[0.0], 0.5 * (ff[1:] + ff[:-1]) * np.diff(uu)])
+        mid = np.concatenate([[uu[0]], 0.5 * (uu[1:] + uu[:-1])])
+        m0 = w.sum()
+        m1 = float((w * mid).sum() / m0)
+        var = float((w * (mid - m1) ** 2).sum() / m0)
+        return m1, math.sqrt(max(var, 0.0))
+
+    def tail_note(self) -> str | None:
+        """Which tail the table cuts (f at the first or last row above 1e-6 of the peak)."""
+        peak = float(self.f.max())
+        cut = []
+        if self.f[0] > 1e-6 * peak:
+            cut.append(f"below u = {self.u[0]:.6g} (f there {self.f[0] / peak:.2g} of the peak)")
+        if self.f[-1] > 1e-6 * peak:
+            cut.append(f"above u = {self.u[-1]:.6g} (f there {self.f[-1] / peak:.2g} of the peak)")
+        if not cut:
+            return None
+        return "the table cuts the tail " + " and ".join(cut) + "; f = 0 is assumed beyond"
+
+    # -- JSON / deck form ----------------------------------------------------------------
+    def to_dict(self) -> dict:
+        return {"source": os.path.basename(self.source), "sha256": self.sha256,
+                "u": [float(x) for x in self.u], "f": [float(x) for x in self.f]}
+
+
+def data_sha256(u, f) -> str:
+    """sha256 of a table's rows written as the CSV 'u,f' with repr floats (for arrays given
+    through the Python API, where no file exists)."""
+    text = "u,f\n" + "".join(f"{float(a)!r},{float(b)!r}\n" for a, b in zip(u, f))
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+def table_from_arrays(u, f, source: str = "<arrays>", sha256: str = "") -> DistributionTable:
+    """A checked :class:`DistributionTable` from two arrays (the Python API)."""
+    check_rows(u, f, source)
+    return DistributionTable(np.asarray(u, float), np.asarray(f, float), source, sha256)
+
+
+def load_table(path: str) -> DistributionTable:
+    """A checked table from a CSV file (:func:`read_table_csv`)."""
+    u, f, digest = read_table_csv(path)
+    return DistributionTable(u, f, path, digest)
