@@ -182,31 +182,33 @@ class DistributionTable:
         c = np.concatenate([[0.0], np.cumsum(self._segment_integrals(self.u, self.v, self.f))])
         return c / c[-1]
 
-    def inverse_cdf(self, q, iterations: int = 6) -> np.ndarray:
-        """u at quantiles q in [0, 1] of the interpolant: the interval from the row CDF
-        (searchsorted), then Newton's method on a u + b gamma = target inside it (started from
-        the linear-in-u guess, clipped to the interval; the CDF is monotone and convex/concave
-        there, so a few steps reach rounding)."""
-        q = np.asarray(q, float)
+    def cdf_at(self, u) -> np.ndarray:
+        """The cumulative distribution Int_{-inf}^{u} f du of the interpolant (exact: a u + b gamma
+        on each interval), 0 below the rows and 1 above."""
+        u = np.asarray(u, float)
         c = self.cdf_rows()
-        j = np.clip(np.searchsorted(c, q, side="right") - 1, 0, self.u.size - 2)
-        u0, u1 = self.u[j], self.u[j + 1]
-        v0, v1 = self.v[j], self.v[j + 1]
-        f0, f1 = self.f[j], self.f[j + 1]
-        seg = c[j + 1] - c[j]                 # Int f du over the interval (f normalised)
-        t = np.clip(np.where(seg > 0, (q - c[j]) / np.where(seg > 0, seg, 1.0), 0.5), 0.0, 1.0)
-        b = (f1 - f0) / (v1 - v0)
-        a = f0 - b * v0
-        target = t * seg
-        g0 = np.sqrt(1.0 + u0 * u0)
-        x = u0 + t * (u1 - u0)
-        for _ in range(iterations):
-            g = np.sqrt(1.0 + x * x)
-            val = a * (x - u0) + b * (g - g0) - target
-            dens = a + b * x / g              # f(x) >= 0
-            step = np.where(dens > 0, val / np.where(dens > 0, dens, 1.0), 0.0)
-            x = np.clip(x - step, u0, u1)
-        return x
+        j = np.clip(np.searchsorted(self.u, u, side="right") - 1, 0, self.u.size - 2)
+        x = np.clip(u, self.u[j], self.u[j + 1])
+        b = (self.f[j + 1] - self.f[j]) / (self.v[j + 1] - self.v[j])
+        a = self.f[j] - b * self.v[j]
+        part = a * (x - self.u[j]) + b * (np.sqrt(1.0 + x * x) - np.sqrt(1.0 + self.u[j] ** 2))
+        return np.clip(c[j] + part, 0.0, 1.0)
+
+    def inverse_cdf(self, q, points: int = 1 << 16) -> np.ndarray:
+        """u at quantiles q in [0, 1]: the exact CDF (:meth:`cdf_at`) on a fine grid — every row,
+        each interval split evenly so the grid holds at least ``points`` nodes — inverted by
+        linear interpolation (np.interp), the scheme of the built-in distributions
+        (:func:`streamsim.loading.juttner_inverse_cdf`; Devroye 1986, ch. 2)."""
+        grid = self._fine_grid(points)
+        c = self.cdf_at(grid)
+        keep = np.concatenate([[True], np.diff(c) > 0])
+        return np.interp(np.asarray(q, float), c[keep], grid[keep])
+
+    def _fine_grid(self, points: int) -> np.ndarray:
+        m = max(1, -(-points // (self.u.size - 1)))
+        t = np.arange(m) / m
+        g = (self.u[:-1, None] + t[None, :] * np.diff(self.u)[:, None]).ravel()
+        return np.append(g, self.u[-1])
 
     def moments(self) -> tuple[float, float]:
         """(mean u, rms spread of u) of the interpolant (fine trapezoid on each interval)."""

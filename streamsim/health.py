@@ -51,6 +51,8 @@ def debye_length(s) -> float:
     """lambda_D,s = v_th,s / omega_ps with v_th^2 = theta c^2 (non-relativistic; in c/omega_p)."""
     if s.distribution == "waterbag":
         vth = s.spread_u / math.sqrt(3.0)     # rms of a flat distribution of half-width D
+    elif s.distribution == "table":
+        vth = s.table.moments()[1]            # rms u of the table (lab frame)
     else:
         vth = math.sqrt(s.theta)
     return vth / math.sqrt(s.omega_p2) if vth > 0 else 0.0
@@ -62,6 +64,9 @@ def velocity_max(s) -> float:
     Cold: |beta_d|. Waterbag: the faster boosted edge of +-spread_u. Juttner: the drift-frame
     momentum six standard deviations out (a fraction ~1e-9 lies beyond), boosted.
     """
+    if s.distribution == "table":
+        lo, hi = s.table.support
+        return max(abs(lo), abs(hi)) / math.sqrt(1.0 + max(lo * lo, hi * hi))
     if s.distribution == "waterbag":
         edge = s.spread_u
     elif s.distribution == "juttner" and s.theta > 0:
