@@ -110,7 +110,7 @@ def check_rows(u, f, source: str, rows=None) -> None:
         bad = np.nonzero(~np.isfinite(a))[0]
         if bad.size:
             i = int(bad[0])
-            raise TableError(f"{_where(source, rows[i])}: {name} = {a[i]!r} is not finite")
+            raise TableError(f"{_where(source, rows[i])}: {name} = {float(a[i])} is not finite")
     neg = np.nonzero(f < 0)[0]
     if neg.size:
         i = int(neg[0])

@@ -1,0 +1,180 @@
+"""Species from a tabulated f(u): the table interpolant, its linear theory, the Penrose verdict and
+the loading, each checked against something outside the table code."""
+import math
+
+import numpy as np
+import pytest
+from scipy import integrate, optimize
+
+from streamsim import loading
+from streamsim.deck import Species
+from streamsim.distribution_table import MIN_ROWS, TableError, check_rows, table_from_arrays
+from streamsim.theory import growth_curve, waterbag_roots
+from streamsim.theory.formulas import juttner_distribution, waterbag_edges
+from streamsim.theory.tabulated import penrose_verdict
+
+
+def juttner(name, charge, drift_u, theta, density=0.5):
+    return Species(name, charge, 1.0, density, drift_u, theta, "juttner", 0.0, 16, "quiet")
+
+
+def waterbag(name, charge, drift_u, spread, density=0.5):
+    return Species(name, charge, 1.0, density, drift_u, 0.0, "waterbag", spread, 16, "quiet")
+
+
+def cold(name, charge, drift_u, density=0.5):
+    return Species(name, charge, 1.0, density, drift_u, 0.0, "cold", 0.0, 16, "quiet")
+
+
+def tabled(name, charge, u, f, density=0.5):
+    t = table_from_arrays(u, f)
+    return Species(name, charge, 1.0, density, t.moments()[0], 0.0, "table", 0.0, 16, "quiet",
+                   table=t)
+
+
+def juttner_rows(drift_u, theta, rows):
+    """A drifting Juttner written as a table: rows uniform in rapidity over the 12-sigma range."""
+    lo, hi = loading.juttner_u_range(drift_u, theta, 12.0)
+    u = np.sinh(np.linspace(math.asinh(lo), math.asinh(hi), rows))
+    return u, juttner_distribution(u, drift_u, theta)
+
+
+# -- the interpolant ------------------------------------------------------------------------
+def test_table_is_normalised_and_its_cdf_is_exact():
+    # f = 1 on [-1, 1] (linear in v of a constant is that constant): CDF(u) = (u + 1)/2 exactly
+    u = np.linspace(-1.0, 1.0, 11)
+    t = table_from_arrays(u, np.full(u.size, 7.0))
+    assert t.f == pytest.approx(np.full(u.size, 0.5), rel=1e-14)
+    q = np.array([0.0, 0.1, 0.37, 0.5, 0.99, 1.0])
+    assert t.cdf_at(2 * q - 1) == pytest.approx(q, abs=1e-14)
+    assert t.inverse_cdf(q) == pytest.approx(2 * q - 1, abs=1e-12)
+    # f linear in v: Int_{u0}^{u1} v du = gamma(u1) - gamma(u0) (d gamma/du = v)
+    u = np.linspace(0.0, 3.0, 9)
+    t = table_from_arrays(u, u / np.sqrt(1 + u * u))
+    assert t.cdf_at(np.array([1.7]))[0] == pytest.approx(
+        (math.sqrt(1 + 1.7**2) - 1) / (math.sqrt(10) - 1), rel=1e-13)
+
+
+@pytest.mark.parametrize("u,f,words", [
+    (np.arange(MIN_ROWS - 1.0), np.ones(MIN_ROWS - 1), f"needs at least {MIN_ROWS}"),
+    (np.arange(10.0), np.r_[np.ones(4), np.nan, np.ones(5)], "row 5: f = nan is not finite"),
+    (np.arange(10.0), np.r_[np.ones(4), -1.0, np.ones(5)], "row 5: f = -1 is negative"),
+    (np.r_[np.arange(5.0), 3.0, np.arange(6.0, 10.0)], np.ones(10), "row 6: u = 3 does not exceed"),
+    (np.arange(10.0), np.zeros(10), "f is zero on every row"),
+])
+def test_bad_rows_are_refused_with_the_row(u, f, words):
+    with pytest.raises(TableError, match=words.replace("(", r"\(")):
+        check_rows(u, f, "mine.csv")
+
+
+# -- theory against the built-in models -----------------------------------------------------
+def test_juttner_table_reproduces_the_juttner_model():
+    # reference: the built-in Juttner model (checked against independent roots in test_theory);
+    # linear interpolation between 2e4 rows is second order: ~1e-6 relative expected
+    J = [juttner("e", -1, 1.0, 0.05), juttner("p", 1, -1.0, 0.05)]
+    T = [tabled("e", -1, *juttner_rows(1.0, 0.05, 20000)),
+         tabled("p", 1, *juttner_rows(-1.0, 0.05, 20000))]
+    k = np.linspace(0.05, 1.2, 24)
+    gj, wj = growth_curve(J, k)
+    gt, wt = growth_curve(T, k, model="table")
+    grow = gj > 1e-4
+    assert grow.sum() > 10
+    assert gt[grow] == pytest.approx(gj[grow], rel=2e-6)
+    assert np.all(gt[gj == 0.0] == 0.0)
+
+
+def test_waterbag_table_reproduces_the_algebraic_dispersion_relation():
+    # a waterbag is flat in lab u between its boosted edges, so its table (f = const on rows
+    # spanning the edges) is the waterbag itself; reference: the roots of the algebraic
+    # waterbag dispersion relation eps = 1 - Sum c_s/((omega - k v1)(omega - k v2)) (companion
+    # matrix), e.g. Berk, Nielsen & Roberts 1970, Phys. Fluids 13, 980 (waterbag model)
+    W = [waterbag("e", -1, 0.6, 0.2), waterbag("p", 1, -0.6, 0.2)]
+    T = []
+    for s in W:
+        u1, u2 = waterbag_edges(s.drift_u, s.spread_u)
+        u = np.linspace(u1, u2, 16)
+        T.append(tabled(s.name, s.charge, u, np.ones(u.size)))
+    k = np.linspace(0.05, 2.0, 30)
+    roots = waterbag_roots(k, W)
+    g_ref = np.max(np.abs(roots.imag), axis=1)
+    g_ref[g_ref < 1e-7] = 0.0
+    gt, _ = growth_curve(T, k, model="table")
+    assert g_ref.max() > 0.1
+    assert gt == pytest.approx(g_ref, rel=1e-9, abs=1e-9)
+
+
+# -- Penrose verdicts -------------------------------------------------------------------------
+def test_single_maxwellian_table_is_stable():
+    # Penrose 1960: a single-humped distribution is stable
+    u = np.linspace(-0.3, 0.3, 601)
+    v = penrose_verdict([tabled("e", -1, u, np.exp(-u * u / (2 * 0.03**2)), 1.0)])
+    assert v.stable
+
+
+def test_two_separated_beams_are_unstable_between_them():
+    T = [tabled("e", -1, *juttner_rows(0.6, 0.005, 4001)),
+         tabled("p", 1, *juttner_rows(-0.6, 0.005, 4001))]
+    v = penrose_verdict(T)
+    assert not v.stable
+    vb = 0.6 / math.sqrt(1 + 0.36)
+    assert v.band[0] == pytest.approx(-vb, rel=1e-2) and v.band[1] == pytest.approx(vb, rel=1e-2)
+    # the built-in Juttner species get the same verdict
+    assert not penrose_verdict([juttner("e", -1, 0.6, 0.005), juttner("p", 1, -0.6, 0.005)]).stable
+
+
+def _double_maxwellian_threshold():
+    """Half-separation a (in thermal speeds) at which two equal Maxwellians at +-a turn unstable:
+    the Penrose integral at the minimum v = 0, P(0) = 2 Int_0^inf (G(v) - G(0))/v^2 dv, computed
+    by scipy.integrate.quad on the analytic G (Penrose 1960) and solved for P(0) = 0."""
+    def p0(a):
+        G = lambda v: math.exp(-(v - a) ** 2 / 2) + math.exp(-(v + a) ** 2 / 2)
+        g2 = (a * a - 1) * 2 * math.exp(-a * a / 2)          # G''(0)
+        f = lambda v: (G(v) - G(0)) / v**2 if v > 1e-4 else 0.5 * g2
+        return integrate.quad(f, 0, 1, limit=200)[0] + integrate.quad(f, 1, 40, limit=200)[0]
+    return optimize.brentq(p0, 1.01, 2.0)
+
+
+def test_double_maxwellian_threshold_matches_the_penrose_integral():
+    a_c = _double_maxwellian_threshold()
+    vt = 0.01                          # c: relativistic corrections ~ vt^2
+    u = np.linspace(-0.2, 0.2, 8001)
+    for a, stable in ((0.98 * a_c, True), (1.02 * a_c, False)):
+        f = np.exp(-(u - a * vt) ** 2 / (2 * vt * vt)) + np.exp(-(u + a * vt) ** 2 / (2 * vt * vt))
+        assert penrose_verdict([tabled("e", -1, u, f, 1.0)]).stable is stable, a / a_c
+
+
+def test_bump_on_tail_growth_sits_in_the_verdicts_band():
+    # a Maxwellian core and a 5% bump: Penrose unstable; the fastest growing root found by the
+    # table model must have its phase velocity inside the band the verdict names
+    u = np.linspace(-0.3, 0.6, 9001)
+    f = np.exp(-u * u / (2 * 0.05**2)) + 0.05 / 0.3 * np.exp(-(u - 0.35) ** 2 / (2 * 0.015**2))
+    s = tabled("e", -1, u, f, 1.0)
+    v = penrose_verdict([s])
+    assert not v.stable
+    k = np.linspace(0.5, 6.0, 120)
+    g, w = growth_curve([s], k, model="table")
+    i = int(np.argmax(g))
+    assert g[i] > 1e-4
+    assert v.band[0] < w[i] / k[i] < v.band[1]
+
+
+def test_cold_rules():
+    assert not penrose_verdict([cold("e", -1, 0.5), cold("p", 1, -0.5)]).stable
+    assert penrose_verdict([cold("e", -1, 0.5, 1.0)]).stable
+    # a cold beam on the slope of a warm plasma: beam-plasma instability
+    assert not penrose_verdict([juttner("e", -1, 0.0, 0.01), cold("b", -1, 0.05, 0.01)]).stable
+
+
+# -- loading ----------------------------------------------------------------------------------
+def test_table_loading_matches_the_juttner_loading():
+    # reference: the built-in Juttner loading (its moments are checked in test_loading)
+    u, f = juttner_rows(1.0, 0.05, 10000)
+    t = tabled("e", -1, u, f)
+    j = juttner("e", -1, 1.0, 0.05)
+    rng = np.random.default_rng(3)
+    a = loading.momenta(j, 1 << 18, True, rng)
+    b = loading.momenta(t, 1 << 18, True, rng)
+    assert b.mean() == pytest.approx(a.mean(), rel=2e-6)
+    assert b.std() == pytest.approx(a.std(), rel=2e-5)
+    c = loading.momenta(t, 1 << 18, False, np.random.default_rng(5))
+    assert c.mean() == pytest.approx(a.mean(), abs=4 * a.std() / math.sqrt(c.size))
