@@ -178,3 +178,19 @@ def test_table_loading_matches_the_juttner_loading():
     assert b.std() == pytest.approx(a.std(), rel=2e-5)
     c = loading.momenta(t, 1 << 18, False, np.random.default_rng(5))
     assert c.mean() == pytest.approx(a.mean(), abs=4 * a.std() / math.sqrt(c.size))
+
+
+# -- damped roots by continuation ---------------------------------------------------------------
+@pytest.mark.parametrize("k_ld,published", [(0.5, complex(1.4157, -0.1534)),
+                                            (0.3, complex(1.1598, -0.0126))])
+def test_maxwellian_table_gives_the_published_landau_root(k_ld, published):
+    # published Landau roots of a Maxwellian (e.g. Canosa 1973, J. Comput. Phys. 13, 158; from
+    # memory, 4 digits); v_th = 0.005 c keeps relativistic corrections ~ v_th^2 below the digits
+    from streamsim.theory import table_damped_root
+    vt = 0.005
+    u = np.linspace(-12 * vt, 12 * vt, 2001)
+    s = tabled("e", -1, u, np.exp(-u * u / (2 * vt * vt)), 1.0)
+    w, fit_err = table_damped_root(k_ld / vt, [s], published.real - 0.1j)
+    assert fit_err < 1e-10
+    assert w.real == pytest.approx(published.real, abs=2e-4)
+    assert w.imag == pytest.approx(published.imag, abs=2e-4)

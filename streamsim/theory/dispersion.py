@@ -228,8 +228,9 @@ def theory_for_deck(deck, model: str | None = None, kmax: float | None = None,
     if model == "table":
         notes.append("table model: f linear in v between the rows, zero outside; growing roots "
                      "only (exact for the interpolant), growth 0.0 where none; damped roots of a "
-                     "table are unavailable (a piecewise-linear f has no unique analytic "
-                     "continuation)")
+                     "table are not in the curve (a piecewise-linear f has no unique analytic "
+                     "continuation): streamsim.theory.table_damped_root gives them from a "
+                     "rational (AAA) fit of G, treating the table as samples of a smooth f")
     verdict = penrose_verdict(species)
     notes.extend(f"stability: {n}" for n in verdict.notes)
     solver = _Solver(species, model)

@@ -20,8 +20,9 @@ and possible jumps G_0, -G_N at the ends.  The Cauchy integral is then exact in 
 C(omega/k)/k^2, dC/dz = Sum_j (g_j - g_{j-1})/(z - v_j) - G_0/(z - v_0)^2 + G_N/(z - v_N)^2.  For
 Im z > 0 this is the exact dielectric function of the interpolant (Landau 1946: the growing roots
 need no contour deformation).  Below the axis the piecewise-linear G has no unique analytic
-continuation, so damped roots of a table are *not* computed ("unavailable"); while Newton's
-method iterates, the continuation of the logarithms (-2 pi i G'(Re z)) is used only to step back.
+continuation, so the growth curve holds growing roots only; while Newton's method iterates, the
+continuation of the logarithms (-2 pi i G'(Re z)) is used only to step back.  Damped roots come
+separately from :func:`table_damped_root`, which continues a rational (AAA) fit of G.
 
 Stability verdict (Penrose 1960, Phys. Fluids 3, 258): a plasma whose effective G is a smooth
 function is unstable iff G has a local minimum at v_m with
@@ -47,7 +48,8 @@ import numpy as np
 
 from .formulas import juttner_normalisation, waterbag_edges
 
-__all__ = ["effective_pieces", "penrose_verdict", "StabilityVerdict", "TabulatedTerm"]
+__all__ = ["effective_pieces", "penrose_verdict", "StabilityVerdict", "TabulatedTerm",
+           "ContinuedTabulatedTerm", "table_damped_root"]
 
 try:                                     # the hot loop of the table's Cauchy sum
     import numba as _nb
@@ -394,3 +396,68 @@ def penrose_verdict(species) -> StabilityVerdict:
     notes.append("growing waves are expected at phase velocities between the maxima of G that "
                  "flank the unstable minima")
     return StabilityVerdict(False, band, tested, notes)
+
+
+# ============================================================================================
+# Damped roots by analytic continuation of a rational fit (AAA)
+# ============================================================================================
+class ContinuedTabulatedTerm(TabulatedTerm):
+    """A tabulated term whose Landau continuation below the real axis uses the analytic
+    continuation of a rational approximation of G (the AAA algorithm, Nakatsukasa, Sete &
+    Trefethen 2018, SIAM J. Sci. Comput. 40, A1494; scipy.interpolate.AAA):
+
+        C(z) = C_int(z) - 2 pi i G'(z)   for Im z < 0  (Landau 1946),
+
+    with C_int the closed-form integral of the table's interpolant (valid on either side of the
+    axis) and G'(z) = -Sum_j r_j/(z - p_j)^2 from the fit's poles p_j and residues r_j.  This
+    treats the table as samples of a smooth (analytic) f; it is checked against the published
+    Landau root of a Maxwellian written as a table.
+    """
+
+    def __init__(self, wp2: float, v, f, nodes: int = 2000, rtol: float = 1e-13):
+        super().__init__(wp2, v, f)
+        from scipy.interpolate import AAA
+        idx = np.unique(np.linspace(0, self.v.size - 1, min(nodes, self.v.size))
+                        .round().astype(int))
+        fit = AAA(self.v[idx], self.G[idx], rtol=rtol, max_terms=120)
+        self.poles = np.asarray(fit.poles(), complex)
+        self.residues = np.asarray(fit.residues(), complex)
+        self.fit_error = float(np.max(np.abs(fit(self.v) - self.G)) / np.max(np.abs(self.G)))
+
+    def cauchy(self, z):
+        z = np.asarray(z, complex).ravel()
+        s0, s1 = _cauchy_sum(np.ascontiguousarray(z.real), np.ascontiguousarray(z.imag),
+                             self.v, self.a)
+        with np.errstate(all="ignore"):
+            d0 = z - self.v0
+            dN = z - self.vN
+            c0 = s0 + self.G0 / d0 - self.GN / dN
+            c1 = s1 - self.G0 / d0**2 + self.GN / dN**2
+            below = z.imag < 0
+            if below.any():
+                d = z[below, None] - self.poles[None, :]
+                g1 = -(self.residues / d**2).sum(axis=1)
+                g2 = 2.0 * (self.residues / d**3).sum(axis=1)
+                c0[below] -= 2j * math.pi * g1
+                c1[below] -= 2j * math.pi * g2
+        return c0, c1
+
+
+def table_damped_root(k: float, species, guess: complex):
+    """A root omega (damped or growing) of eps at one k for a deck with tabulated species, by
+    Newton's method from ``guess`` with the AAA continuation of every table
+    (:class:`ContinuedTabulatedTerm`); returns (omega, largest relative fit error of G), or
+    (None, error) when Newton does not converge."""
+    from .roots import _newton
+    from .susceptibilities import _terms
+    terms = []
+    err = 0.0
+    for t in _terms(list(species), "table"):
+        if isinstance(t, TabulatedTerm):
+            c = ContinuedTabulatedTerm(1.0, t.v, t.G)
+            err = max(err, c.fit_error)
+            terms.append(c)
+        else:
+            terms.append(t)
+    w, ok = _newton(terms, np.array([float(k)]), np.array([complex(guess)]))
+    return (complex(w[0]) if ok[0] else None), err
