@@ -184,8 +184,9 @@ def test_table_loading_matches_the_juttner_loading():
 @pytest.mark.parametrize("k_ld,published", [(0.5, complex(1.4157, -0.1534)),
                                             (0.3, complex(1.1598, -0.0126))])
 def test_maxwellian_table_gives_the_published_landau_root(k_ld, published):
-    # published Landau roots of a Maxwellian (e.g. Canosa 1973, J. Comput. Phys. 13, 158; from
-    # memory, 4 digits); v_th = 0.005 c keeps relativistic corrections ~ v_th^2 below the digits
+    # the widely tabulated Landau roots of a Maxwellian (4 decimals, quoted from memory; the
+    # validation re-derives them with scipy.special.wofz); v_th = 0.005 c keeps relativistic
+    # corrections ~ v_th^2 below those digits
     from streamsim.theory import table_damped_root
     vt = 0.005
     u = np.linspace(-12 * vt, 12 * vt, 2001)
