@@ -236,14 +236,24 @@ class _Solver:
             w = _pick(_rational_roots(self.terms, k))
             return w
         if self.coarse is not None:
-            w0 = self.coarse.best(k, extra=extra, coarse=coarse)
+            if k.size > 2 * coarse and np.all(np.diff(k) > 0) and extra is None:
+                # roots of the coarse G on `coarse` points, interpolated to k: one seed per k
+                kc = np.linspace(k[0], k[-1], coarse)
+                wc = self.coarse.best(kc)
+                j = np.clip(np.searchsorted(kc, k), 1, coarse - 1)
+                t = (k - kc[j - 1]) / (kc[j] - kc[j - 1])
+                w0 = np.where(np.isfinite(wc[j - 1]) & np.isfinite(wc[j]),
+                              wc[j - 1] * (1 - t) + wc[j] * t,
+                              np.where(t < 0.5, wc[j - 1] * k / kc[j - 1], wc[j] * k / kc[j]))
+            else:
+                w0 = self.coarse.best(k, extra=extra, coarse=coarse)
             ok = np.isfinite(w0)
             best = np.full(k.shape, np.nan, complex)
             if ok.any():
-                sol, conv = _newton(self.terms, k[ok], w0[ok])
+                sol, conv = _newton(self.terms, k[ok], w0[ok], maxiter=10)
                 sol = _mirror(sol)
                 best[ok] = np.where(conv & (sol.imag > GROWTH_TOL), sol, np.nan)
-            return self._continue(k, best)
+            return self._continue(k, best, gaps=True)
         seeds = _mirror(np.concatenate([_rational_roots(t, k) for t in self.seed_terms], axis=1))
         if extra is not None:
             seeds = np.concatenate([seeds, _mirror(np.asarray(extra, complex).reshape(k.size, -1))],
@@ -268,9 +278,10 @@ class _Solver:
         best = _pick(w)
         return self._continue(k, best)
 
-    def _continue(self, k, best, reach: int = 1):
+    def _continue(self, k, best, reach: int = 1, gaps: bool = False):
         """Continuation over k: a root seeds Newton at the next ``reach`` k on either side (omega
-        scaled with k), and every improvement seeds again, until nothing improves."""
+        scaled with k), and every improvement seeds again, until nothing improves.  ``gaps``:
+        start only from the roots next to a k without one (the others are polished already)."""
         nk = k.size
         if nk < 2:
             return best
@@ -278,6 +289,12 @@ class _Solver:
             return mask if self.damped else mask & (best.imag > GROWTH_TOL)
 
         changed = sources(np.isfinite(best))
+        if gaps:
+            good = np.isfinite(best)
+            hole = np.zeros(nk, bool)
+            hole[:-1] |= ~good[1:]
+            hole[1:] |= ~good[:-1]
+            changed &= hole
         steps = np.concatenate([-np.arange(1, reach + 1), np.arange(1, reach + 1)])
         for _ in range(nk):
             src = np.nonzero(changed)[0]

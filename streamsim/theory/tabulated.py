@@ -64,7 +64,7 @@ def _cauchy_sum_py(x, y, v, a):
 
 
 if _nb is not None:
-    @_nb.njit(cache=True, fastmath=False)
+    @_nb.njit(cache=True, fastmath=True)
     def _cauchy_sum(x, y, v, a):
         """Sum_j a_j log(z - v_j) and Sum_j a_j / (z - v_j) for z = x + i y (principal log)."""
         m = x.size
@@ -149,7 +149,7 @@ class TabulatedTerm:
         return chi, c1 / k**3, -2.0 * chi / k - w * c1 / k**4
 
 
-def coarse_term(term: TabulatedTerm, nodes: int = 384) -> TabulatedTerm:
+def coarse_term(term: TabulatedTerm, nodes: int = 256) -> TabulatedTerm:
     """A coarser piecewise-linear G through a subset of the rows (every m-th row, ends kept):
     the same distribution at lower resolution, used only to seed the roots of a long table."""
     n = term.v.size
