@@ -148,7 +148,8 @@ class DistributionTable:
         mass = float(np.sum(self._segment_integrals(u, v, f)))
         object.__setattr__(self, "u", u)
         object.__setattr__(self, "v", v)
-        object.__setattr__(self, "f", f / mass)
+        # a table already normalised (e.g. read back from a resolved deck) keeps its bits
+        object.__setattr__(self, "f", f if abs(mass - 1.0) <= 1e-12 else f / mass)
         if not self.sha256:
             object.__setattr__(self, "sha256", data_sha256(u, f))
         for a in (self.u, self.v, self.f):
@@ -235,8 +236,17 @@ class DistributionTable:
 
     # -- JSON / deck form ----------------------------------------------------------------
     def to_dict(self) -> dict:
+        """The resolved deck's inline form: the rows (f normalised), the file's name and the
+        sha256 of its bytes (or of the rows, for arrays), so a run folder reruns without it."""
         return {"source": os.path.basename(self.source), "sha256": self.sha256,
                 "u": [float(x) for x in self.u], "f": [float(x) for x in self.f]}
+
+    def to_csv(self) -> str:
+        """The rows as a table CSV (f normalised), with the source and checksum as comments."""
+        head = (f"# distribution table of streamsim: f(u) normalised to Int f du = 1, linear in "
+                f"v = u/sqrt(1+u^2) between rows, 0 outside\n# source: "
+                f"{os.path.basename(self.source)}\n# sha256 of the source: {self.sha256}\nu,f\n")
+        return head + "".join(f"{a!r},{b!r}\n" for a, b in zip(self.u.tolist(), self.f.tolist()))
 
 
 def data_sha256(u, f) -> str:
@@ -256,3 +266,46 @@ def load_table(path: str) -> DistributionTable:
     """A checked table from a CSV file (:func:`read_table_csv`)."""
     u, f, digest = read_table_csv(path)
     return DistributionTable(u, f, path, digest)
+
+
+# --------------------------------------------------------------------------------------------
+# Deck form: ``table = "FILE"`` (relative to the deck file) or the resolved inline table
+# --------------------------------------------------------------------------------------------
+#: species keys a table excludes (the table is the whole distribution, drift and spread included)
+TABLE_EXCLUSIVE = ("drift_beta", "drift_u", "theta", "temperature_kev", "spread_u")
+#: keys of the inline form
+INLINE_KEYS = ("source", "sha256", "u", "f")
+
+
+def anchor_tables(raw: dict, base_dir) -> dict:
+    """``raw`` (deck data) with every species' relative ``table`` path made absolute against
+    ``base_dir`` (the deck file's folder); modified in place and returned."""
+    if not isinstance(raw, dict) or base_dir is None:
+        return raw
+    for s in raw.get("species") or []:
+        if isinstance(s, dict) and isinstance(s.get("table"), str):
+            path = os.path.expanduser(s["table"])
+            if not os.path.isabs(path):
+                s["table"] = os.path.normpath(os.path.join(str(base_dir), path))
+    return raw
+
+
+def table_from_deck_value(value) -> DistributionTable:
+    """The table a species' ``table`` key names: a CSV path (absolute, see :func:`anchor_tables`;
+    a relative one is taken from the working folder) or the inline form of a resolved deck
+    ({source, sha256, u, f}).  Raises :class:`TableError` (one line, file and row)."""
+    if isinstance(value, str):
+        return load_table(value)
+    if isinstance(value, dict):
+        extra = [k for k in value if k not in INLINE_KEYS]
+        if extra or "u" not in value or "f" not in value:
+            raise TableError("an inline table is {u = [...], f = [...]} (optionally source, "
+                             f"sha256); got keys {sorted(value)}")
+        src = str(value.get("source") or "<inline table>")
+        try:
+            u = np.asarray(value["u"], dtype=float)
+            f = np.asarray(value["f"], dtype=float)
+        except (TypeError, ValueError):
+            raise TableError(f"{src}: u and f must be lists of numbers") from None
+        return table_from_arrays(u, f, src, str(value.get("sha256") or ""))
+    raise TableError('must be a CSV file path (a string) or an inline table {u = [...], f = [...]}')

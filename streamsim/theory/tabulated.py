@@ -31,7 +31,9 @@ function is unstable iff G has a local minimum at v_m with
 
 Rules used here: a minimum of the table's piecewise-linear G at a single row is taken as the
 parabola through that row and its two neighbours (a linear corner would make P diverge, though
-the tabulated f is meant to sample a smooth one); a flat stretch (equal values, e.g. a gap where G
+the tabulated f is meant to sample a smooth one); a table whose end value is below 1e-6 of the
+peak falls to 0 over one more row spacing (a tail that has nearly ended; larger end values are
+steps, as for a waterbag); a flat stretch (equal values, e.g. a gap where G
 = 0 between two humps) is a minimum, tested at its middle and quarter points; the stretches
 outside all species' support are not minima.  Cold species are delta functions in G: two cold
 species with different velocities are unstable (the cold two-stream dispersion relation has
@@ -228,6 +230,22 @@ def effective_pieces(species):
 def _sum_pieces(pieces):
     """(v, G) of Sum of the pieces on the union of their nodes; a jump at a piece's end becomes a
     step over a relative width of 1e-12 (so the sum is one piecewise-linear function)."""
+    peak = max(float(np.max(np.abs(G))) for _, G in pieces)
+    clean = []
+    for v, G in pieces:
+        # an end value below 1e-6 of the peak is a tail that has nearly ended, not a cut: it
+        # falls to 0 over one more row spacing (a step of that size would be a corner minimum
+        # with P = +inf beside any rising part of G, an artefact of where the table stops)
+        v = np.asarray(v, float)
+        G = np.asarray(G, float)
+        if G.size > 2 and 0 < abs(G[0]) <= 1e-6 * peak:
+            v = np.concatenate([[v[0] - (v[1] - v[0])], v])
+            G = np.concatenate([[0.0], G])
+        if G.size > 2 and 0 < abs(G[-1]) <= 1e-6 * peak:
+            v = np.concatenate([v, [v[-1] + (v[-1] - v[-2])]])
+            G = np.concatenate([G, [0.0]])
+        clean.append((v, G))
+    pieces = clean
     nodes = [np.asarray(p[0], float) for p in pieces]
     for v, G in pieces:
         eps = 1e-12 * max(1e-6, float(v[-1] - v[0]))
