@@ -314,6 +314,9 @@ class Deck:
             d = {"name": s.name, "charge": s.charge, "mass": s.mass, "density": s.density,
                  "drift_u": s.drift_u, "theta": s.theta, "distribution": s.distribution,
                  "particles_per_cell": s.particles_per_cell, "loading": s.loading}
+            if s.distribution == "table":       # the rows inline: reruns without the file
+                del d["drift_u"], d["theta"]
+                d["table"] = s.table.to_dict()
             if s.distribution == "waterbag":
                 d["spread_u"] = s.spread_u
             species.append(d)
@@ -419,7 +422,9 @@ _SPECIES = {
     "drift_u": _Key("float", None, lambda v: None if math.isfinite(v) else "must be finite"),
     "theta": _Key("float", 0.0, _finite_nonneg),
     "temperature_kev": _Key("float", None, _finite_nonneg),
-    "distribution": _Key("str", None, choices=("cold", "juttner", "waterbag")),
+    "distribution": _Key("str", None, choices=("cold", "juttner", "waterbag", "table")),
+    # a CSV file "u,f" (relative to the deck file) or, in a resolved deck, {source, sha256, u, f}
+    "table": _Key("table", None),
     "spread_u": _Key("float", 0.0, _finite_nonneg),
     "particles_per_cell": _Key("int", 64, lambda v: None if 1 <= v <= 1 << 20 else "must be between 1 and 1048576"),
     "loading": _Key("str", "quiet", choices=("quiet", "random")),
@@ -568,6 +573,10 @@ def _coerce(path: str, spec: _Key, value: Any) -> Any:
             raise DeckError(path, f"must be an integer (write {int(value)}, not {value!r})", value)
         if isinstance(value, bool) or not isinstance(value, int):
             raise DeckError(path, "must be an integer", value)
+    elif kind == "table":
+        if not isinstance(value, (str, dict)):
+            raise DeckError(path, "must be a CSV file path (a string) or an inline table "
+                            "{u = [...], f = [...]}", value)
     elif kind == "str":
         if not isinstance(value, str):
             raise DeckError(path, "must be a string (in quotes)", value)
@@ -651,6 +660,8 @@ def _species(i: int, raw: Any) -> Species:
     if not isinstance(raw, dict):
         raise DeckError(label, "must be a table ([[species]])", raw)
     d = _table(label, raw, _SPECIES, "species")
+    if d["table"] is not None or d["distribution"] == "table":
+        return _table_species(label, raw, d)
     if d["drift_beta"] is not None and d["drift_u"] is not None:
         raise DeckError(f"{label}.drift_u", "give drift_beta or drift_u, not both", d["drift_u"])
     kev = d["temperature_kev"]
@@ -683,6 +694,31 @@ def _species(i: int, raw: Any) -> Species:
                    distribution=dist, spread_u=d["spread_u"] if dist == "waterbag" else 0.0,
                    particles_per_cell=d["particles_per_cell"], loading=d["loading"],
                    temperature_kev=kev)
+
+
+def _table_species(label: str, raw: dict, d: dict) -> Species:
+    """A species whose distribution is a table f(u) (streamsim.distribution_table): the table is
+    the whole lab-frame distribution, so drift and temperature keys are refused; drift_u is
+    derived (the table's mean u), theta = 0."""
+    from .distribution_table import TABLE_EXCLUSIVE, TableError, table_from_deck_value
+    if d["distribution"] not in (None, "table"):
+        raise DeckError(f"{label}.table", f'a table needs distribution = "table", not '
+                        f'"{d["distribution"]}"', d["table"])
+    if d["table"] is None:
+        raise DeckError(f"{label}.distribution", 'distribution = "table" needs table = "FILE.csv" '
+                        "(a CSV with the header u,f)", "table")
+    given = [k for k in TABLE_EXCLUSIVE if k in raw]
+    if given:
+        raise DeckError(f"{label}.{given[0]}", "a table species takes its drift and spread from "
+                        "the table; remove " + ", ".join(given), raw[given[0]])
+    try:
+        table = table_from_deck_value(d["table"])
+    except TableError as ex:
+        raise DeckError(f"{label}.table", str(ex)) from None
+    return Species(name=d["name"], charge=d["charge"], mass=d["mass"], density=d["density"],
+                   drift_u=table.moments()[0], theta=0.0, distribution="table", spread_u=0.0,
+                   particles_per_cell=d["particles_per_cell"], loading=d["loading"],
+                   temperature_kev=0.0, table=table)
 
 
 def validate(raw: dict) -> Deck:
@@ -1076,6 +1112,9 @@ def load_deck(source: str | Path | dict | Deck | None = None, overrides: list[st
         raw = read_toml(source)
     if overrides:
         raw = apply_overrides(raw, list(overrides))
+    if isinstance(source, (str, Path)):         # table paths are relative to the deck file
+        from .distribution_table import anchor_tables
+        anchor_tables(raw, Path(source).resolve().parent)
     return resolve(validate(raw))
 
 

@@ -416,6 +416,9 @@ def _run_locked(deck, folder, dispersion, theory, findings, warnings, say, *, qu
     if folder is not None:
         io.write_text(folder / io.FILES["deck"], deck.to_toml())
         io.write_json(folder / io.FILES["theory"], theory)
+        for s in deck.species:                  # a copy of each table beside the deck
+            if s.table is not None:
+                io.write_text(folder / f"table-{s.name}.csv", s.table.to_csv())
 
     step0 = sim.step
     bar = Progress(sim) if ((not quiet and sys.stderr.isatty()) if progress is None
