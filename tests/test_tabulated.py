@@ -4,6 +4,8 @@ import math
 
 import numpy as np
 import pytest
+import tomllib
+
 from scipy import integrate, optimize
 
 from streamsim import loading
@@ -195,3 +197,90 @@ def test_maxwellian_table_gives_the_published_landau_root(k_ld, published):
     assert fit_err < 1e-10
     assert w.real == pytest.approx(published.real, abs=2e-4)
     assert w.imag == pytest.approx(published.imag, abs=2e-4)
+
+
+# -- the deck: bad tables, one line each, exit 2, no run folder --------------------------------
+GOOD = [(u, math.exp(-u * u / 0.02)) for u in np.linspace(-0.5, 0.5, 21)]
+GOOD_ROWS = "".join(f"{u:.6g},{f:.6g}\n" for u, f in GOOD)
+
+
+def csv_with(i: int, line: str, head: str = "u,f\n") -> str:
+    """The good table with data row i replaced by ``line`` (file line = i + 1 + head lines)."""
+    rows = [f"{u:.6g},{f:.6g}" for u, f in GOOD]
+    rows[i] = line
+    return head + "\n".join(rows) + "\n"
+
+
+PAIR_DECK = """title = "table deck"
+[box]
+length = 10.0
+cells = 32
+[time]
+end = 1.0
+[[species]]
+name = "electrons"
+charge = -1.0
+density = 0.5
+distribution = "table"
+table = "e.csv"
+particles_per_cell = 4
+{extra}
+[[species]]
+name = "positrons"
+charge = 1.0
+density = 0.5
+particles_per_cell = 4
+"""
+
+
+def _run_table_deck(tmp_path, capsys, csv: str | None, extra: str = ""):
+    from streamsim.cli import main
+    (tmp_path / "d").mkdir()
+    if csv is not None:
+        (tmp_path / "d" / "e.csv").write_text(csv)
+    deck = tmp_path / "d" / "deck.toml"
+    deck.write_text(PAIR_DECK.format(extra=extra))
+    out = tmp_path / "out"
+    rc = main(["run", str(deck), "--quiet", "--out", str(out)])
+    return rc, capsys.readouterr().err.strip().splitlines(), out
+
+
+@pytest.mark.parametrize("csv,extra,words", [
+    (None, "", "e.csv: cannot read the table"),
+    ("x,y\n1,2\n", "", "e.csv, row 1: the header must be 'u,f'"),
+    ("u,f\n" + "".join(f"{i},1\n" for i in range(MIN_ROWS - 1)), "",
+     f"rows; a table needs at least {MIN_ROWS}"),
+    (csv_with(4, "-0.3,inf", "# a comment line\nu,f\n"), "", "e.csv, row 7: f = inf is not finite"),
+    (csv_with(4, "-0.3,-0.5"), "", "e.csv, row 6: f = -0.5 is negative"),
+    (csv_with(4, "-0.36,0.01"), "", "e.csv, row 6: u = -0.36 does not exceed"),
+    (csv_with(4, "-0.3;0.01"), "", "e.csv, row 6: expected two values"),
+    ("u,f\n" + "".join(f"{i},0\n" for i in range(10)), "", "e.csv: f is zero on every row"),
+    ("u,f\n" + GOOD_ROWS, "drift_u = 0.3", "a table species takes its drift and spread from the table"),
+    ("u,f\n" + GOOD_ROWS, "temperature_kev = 5.0", "remove temperature_kev"),
+])
+def test_bad_table_gives_one_line_exit_2_no_folder(tmp_path, capsys, csv, extra, words):
+    rc, lines, out = _run_table_deck(tmp_path, capsys, csv, extra)
+    assert rc == 2
+    assert len(lines) == 1, lines
+    assert lines[0].startswith("deck error: species.electrons."), lines[0]
+    assert words in lines[0], lines[0]
+    assert not out.exists()
+
+
+def test_table_deck_round_trips_and_differs_by_table(tmp_path):
+    from streamsim.deck import load_deck
+    (tmp_path / "e.csv").write_text("# a comment\nu,f\n" + GOOD_ROWS)
+    deck_file = tmp_path / "deck.toml"
+    deck_file.write_text(PAIR_DECK.format(extra=""))
+    a = load_deck(deck_file)
+    assert a.species[0].distribution == "table"
+    # the resolved deck carries the rows and the file's checksum: it loads back without the file
+    (tmp_path / "e.csv").unlink()
+    b = load_deck(tomllib.loads(a.to_toml()))
+    assert b == a and b.to_dict() == a.to_dict()
+    import hashlib
+    assert a.species[0].table.sha256 == hashlib.sha256(
+        ("# a comment\nu,f\n" + GOOD_ROWS).encode()).hexdigest()
+    # another table is another deck
+    (tmp_path / "e.csv").write_text(csv_with(10, "0,2"))
+    assert load_deck(deck_file) != a
