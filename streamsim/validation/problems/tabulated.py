@@ -140,7 +140,14 @@ def measure(p, run) -> Outcome:
                         theory_dev, None, 0.0, "independent quadrature above", 1e-5, "absolute",
                         why="rows linear in v between nodes: second-order interpolation error, "
                             "~1e-6 at these row counts"))
-    return Outcome(checks, {"points": pts})
+    ks = np.linspace(0.1, 1.15, 22)
+    curve = [ref.symmetric_juttner_growth(x, 0.5, JT_U, JT_THETA, upper=0.3) or 0.0 for x in ks]
+    kw = np.linspace(0.1, 1.6, 31)
+    wb = [waterbag_growth(x, WB_U, WB_SPREAD, 0.5) for x in kw]
+    return Outcome(checks, {"points": [q for q in pts if "growth" in q],
+                            "waterbag": [q for q in pts if "waterbag_table" in q],
+                            "k": ks.tolist(), "curve": curve, "waterbag_k": kw.tolist(),
+                            "waterbag_curve": wb})
 
 
 PROBLEM = Problem(
