@@ -284,3 +284,48 @@ def test_table_deck_round_trips_and_differs_by_table(tmp_path):
     # another table is another deck
     (tmp_path / "e.csv").write_text(csv_with(10, "0,2"))
     assert load_deck(deck_file) != a
+
+
+def _inline_deck(tables, method="pic"):
+    from streamsim.deck import load_deck
+    sps = [{"name": n, "charge": q, "density": 0.5, "distribution": "table", "particles_per_cell": 4,
+            "table": {"u": [float(x) for x in u], "f": [float(x) for x in f]}}
+           for n, q, (u, f) in zip(("electrons", "positrons"), (-1.0, 1.0), tables)]
+    return load_deck({"title": "t", "box": {"length": 20.0, "cells": 64}, "time": {"end": 1.0},
+                      "species": sps, "method": method})
+
+
+def test_stable_table_deck_says_so_without_a_root_search():
+    # Penrose 1960: a single-humped G is stable; both species share one Maxwellian at rest
+    from streamsim import theory
+    u = np.linspace(-0.3, 0.3, 301)
+    f = np.exp(-u * u / (2 * 0.05**2))
+    d = theory.theory_for_deck(_inline_deck([(u, f), (u, f)])).to_dict()
+    assert d["model"] == "table" and d["stability"]["stable"]
+    assert d["fastest"] is None and not d["unstable_bands"]
+    assert any("no growing root searched for" in n for n in d["notes"])
+
+
+def test_vlasov_start_from_a_table_matches_the_juttner_profile():
+    # reference: the built-in Juttner profile of the Vlasov start (cell-centre values)
+    from streamsim.vlasov.grid import MomentumGrid, momentum_profile
+    u, f = juttner_rows(0.5, 0.02, 20001)
+    t = tabled("e", -1, u, f)
+    g = MomentumGrid(-1.0, 2.0, 512, True)
+    a = momentum_profile(t, g)
+    b = momentum_profile(juttner("e", -1, 0.5, 0.02), g)
+    assert a.sum() * g.du == pytest.approx(1.0, abs=1e-12)
+    # cell average vs cell-centre value: differ by du^2 f''/24, ~1e-3 of the peak here
+    assert np.max(np.abs(a - b)) < 3e-3 * b.max()
+
+
+def test_vlasov_grid_spans_the_table_and_warns_when_the_core_is_unresolved():
+    from streamsim import health
+    from streamsim.vlasov.grid import momentum_grid
+    u = np.linspace(-0.05, 30.0, 4000)
+    f = np.exp(-(u - 0.5) ** 2 / (2 * 0.02**2)) + 1e-3 / (1 + u * u)
+    d = _inline_deck([(u, f), (-u[::-1], f[::-1])], method="vlasov")
+    g = momentum_grid(d, d.species[0])
+    assert g.u_min <= -0.05 and g.u_max >= 30.0
+    found = [x for x in health.check_deck(d) if x.rule == "table support"]
+    assert found and "vlasov.momentum_cells >=" in found[0].message
