@@ -295,7 +295,7 @@ class StabilityVerdict:
 
     def to_dict(self) -> dict:
         return {"stable": bool(self.stable), "text": self.text(),
-                "phase_velocity_band": list(self.band) if self.band else None,
+                "phase_velocity_band": [float(x) for x in self.band] if self.band else None,
                 "minima": [{"v": float(v), "penrose_integral": (float(p) if math.isfinite(p)
                                                                 else None)}
                            for v, p in self.minima],
