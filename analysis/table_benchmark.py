@@ -38,7 +38,9 @@ def pair(rows: int):
     out = []
     for name, q, d in (("electrons", -1.0, DRIFT_U), ("positrons", 1.0, -DRIFT_U)):
         t = table_from_arrays(u, juttner_distribution(u, d, THETA))
-        out.append(Species(name, q, 1.0, 0.5, d, 0.0, "table", 0.0, 16, "quiet", table=t))
+        out.append(Species(name=name, charge=q, mass=1.0, density=0.5, drift_u=d, theta=0.0,
+                           distribution="table", spread_u=0.0, particles_per_cell=16,
+                           loading="quiet", table=t))
     return out
 
 
@@ -71,7 +73,9 @@ def main(argv=None):
           f"{t_theory:.3f} s (target < 2 s); fastest k = {fast[0]:.6g}, growth = "
           f"{fast[1].imag:.6g} omega_p, band {bands}")
 
-    jut = Species("electrons", -1.0, 1.0, 0.5, DRIFT_U, THETA, "juttner", 0.0, 16, "quiet")
+    jut = Species(name="electrons", charge=-1.0, mass=1.0, density=0.5, drift_u=DRIFT_U,
+                  theta=THETA, distribution="juttner", spread_u=0.0, particles_per_cell=16,
+                  loading="quiet")
     tab = species[0]
     rng = np.random.default_rng(1)
     t_j = best_of(lambda: loading.momenta(jut, a.particles, True, rng), a.repeat)

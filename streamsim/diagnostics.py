@@ -10,9 +10,14 @@ A handler is a small object with a cadence (``every``, in steps; 0 = never) and 
 - ``finish(sim)``: the last time level t_N (no particle moves).
 
 Handlers that hold data say so with ``state()`` / ``restore()`` (arrays, exact in a checkpoint)
-and ``meta()`` / ``restore_meta()`` (JSON). Arrays are preallocated, so a run's memory for
-diagnostics is fixed at the start. Adding a recorded quantity is one handler (here, or in its
-own module) and one line in :func:`standard_handlers`.
+and ``meta()`` / ``restore_meta()`` (JSON). Arrays are preallocated from the handler's
+``layout(deck, every)``, so a run's memory for diagnostics is fixed at the start and known from
+the deck alone (``nbytes(deck)``, which :mod:`streamsim.memory` sums before anything is
+allocated). What a handler gives ``series_arrays()`` reaches the run's ``TimeSeries`` (and so
+timeseries.h5 and the analysis); what it gives ``run_summary(deck)`` joins summary.json. A run
+extended to a later end restores the arrays into arrays sized for the new end (:func:`restore_rows`).
+Adding a recorded quantity is one handler (here, or in its own module) and one entry in its
+method's list of handler classes (:data:`PIC_HANDLERS`, or the Vlasov one).
 """
 from __future__ import annotations
 
@@ -24,7 +29,8 @@ from . import fields
 from .rundata import DensitySnapshots, ParticleSnapshot, PhaseSpace, TimeSeries
 
 __all__ = ["Handler", "Sampler", "SeriesRecorder", "FieldSnapshots", "PhaseSpaceSampler", "PeakSnapshot",
-           "stride", "record_steps", "contrast", "standard_handlers"]
+           "stride", "record_steps", "restore_rows", "contrast", "standard_handlers", "make_handlers",
+           "PIC_HANDLERS", "layout_bytes", "collect_series", "handler_classes"]
 
 
 def stride(interval: float, dt: float) -> int:
@@ -40,6 +46,19 @@ def record_steps(steps: int, every: int) -> int:
     return n
 
 
+def restore_rows(dst: np.ndarray, src: np.ndarray | None, where: str) -> None:
+    """Copy the checkpointed records ``src`` into the preallocated ``dst``: the same shape, or
+    fewer rows when the run is extended to a later end (``dst`` is then sized for the new end
+    and its remaining rows are still to be filled). Raises ValueError for anything else."""
+    if (src is None or src.ndim != dst.ndim or src.shape[1:] != dst.shape[1:]
+            or (src.ndim and src.shape[0] > dst.shape[0])):
+        raise ValueError(f"checkpoint does not match this deck (diagnostic {where})")
+    if src.ndim:
+        dst[:src.shape[0]] = src
+    else:
+        dst[...] = src
+
+
 def contrast(density: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """max and rms over the grid of delta n/n = n(x)/<n> - 1, per row of ``density`` (S, N) and
     for the sum of all rows (the pair total) as the last entry."""
@@ -49,10 +68,59 @@ def contrast(density: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return dn.max(axis=1), np.sqrt(np.mean(dn * dn, axis=1))
 
 
+def layout_bytes(layout: dict) -> int:
+    """Bytes of a layout {name: (shape, dtype)}."""
+    return int(sum(math.prod(shape) * np.dtype(dtype).itemsize
+                   for shape, dtype in layout.values()))
+
+
+def allocate(layout: dict) -> dict[str, np.ndarray]:
+    """Zeroed arrays of a layout {name: (shape, dtype)}."""
+    return {k: np.zeros(shape, dtype) for k, (shape, dtype) in layout.items()}
+
+
 class Handler:
-    """Base of the cadenced handlers; subclasses override what they use."""
+    """Base of the cadenced handlers; subclasses override what they use.
+
+    Class attributes for the memory check: ``memory_item`` (the estimate's line it joins),
+    ``cadence_key`` (the ``output.*`` cadence that sets its size) and ``what`` (its name in a
+    refusal)."""
     name = "handler"
     every = 0
+    memory_item = "diagnostics"
+    cadence_key = "diagnostics_interval"
+    what = "the diagnostics"
+    #: which handler's energy error the energy watch and summary.json ``energy`` report: the
+    #: one of highest rank (the series: conservation; a driven run's drive: the balance)
+    energy_rank = 0
+
+    @classmethod
+    def every_for(cls, deck) -> int:
+        """The handler's cadence in steps for a (resolved) deck."""
+        return stride(getattr(deck.output, cls.cadence_key), deck.time.dt)
+
+    @classmethod
+    def layout(cls, deck, every: int) -> dict:
+        """The arrays it preallocates, {name: (shape, dtype)} (none by default)."""
+        return {}
+
+    @classmethod
+    def nbytes(cls, deck) -> int:
+        """Bytes it will preallocate for a (resolved) deck, before any simulation exists."""
+        return layout_bytes(cls.layout(deck, cls.every_for(deck)))
+
+    @classmethod
+    def start_lines(cls, deck) -> list[str]:
+        """Lines printed before the run starts (not quiet)."""
+        return []
+
+    def series_arrays(self) -> dict[str, np.ndarray]:
+        """Arrays for the run's TimeSeries (timeseries.h5), first axis time."""
+        return {}
+
+    def run_summary(self, deck) -> dict:
+        """Entries for summary.json (merged one level deep, in handler order)."""
+        return {}
 
     def due(self, n: int) -> bool:
         return bool(self.every) and n % self.every == 0
@@ -80,10 +148,12 @@ class Handler:
 
 
 class _Arrays(Handler):
-    """A handler that fills preallocated arrays row by row."""
+    """A handler that fills preallocated arrays (its ``layout``) row by row."""
 
-    def __init__(self):
-        self.arrays: dict[str, np.ndarray] = {}
+    def __init__(self, deck=None, every: int = 0):
+        self.every = every
+        self.arrays: dict[str, np.ndarray] = allocate(self.layout(deck, every)) \
+            if deck is not None else {}
         self.count = 0
 
     def _put(self, values: dict) -> None:
@@ -97,10 +167,7 @@ class _Arrays(Handler):
 
     def restore(self, arrays):
         for k, dst in self.arrays.items():
-            src = arrays.get(k)
-            if src is None or src.shape != dst.shape:
-                raise ValueError(f"checkpoint does not match this deck (diagnostic {self.name}/{k})")
-            dst[...] = src
+            restore_rows(dst, arrays.get(k), f"{self.name}/{k}")
         self.count = int(arrays["count"])
 
     def _view(self, key):
@@ -133,16 +200,22 @@ class SeriesRecorder(_Arrays):
     Kinetic energy and momentum at t_n are the averages of the sums over u^{n-1/2} and
     u^{n+1/2} (second order at t_n)."""
     name = "series"
+    memory_item = "time_series"
+    what = "the time series"
+    energy_rank = 1
+
+    @classmethod
+    def layout(cls, deck, every):
+        S, M = len(deck.species), deck.output.recorded_modes
+        n = record_steps(deck.time.steps, every)
+        return {"t": ((n,), float), "kinetic": ((n, S), float), "field_energy": ((n,), float),
+                "momentum": ((n, S), float), "mode_amplitude": ((n, M), complex),
+                "contrast_max": ((n, S + 1), float), "contrast_rms": ((n, S + 1), float),
+                "density_modes": ((n, S, M), complex)}
 
     def __init__(self, sim, every: int):
-        super().__init__()
-        self.every = every
-        S, M = len(sim.names), sim.deck.output.modes
-        n = record_steps(sim.steps, every)
-        self.arrays = {"t": np.zeros(n), "kinetic": np.zeros((n, S)), "field_energy": np.zeros(n),
-                       "momentum": np.zeros((n, S)), "mode_amplitude": np.zeros((n, M), complex),
-                       "contrast_max": np.zeros((n, S + 1)), "contrast_rms": np.zeros((n, S + 1)),
-                       "density_modes": np.zeros((n, S, M), complex)}
+        super().__init__(sim.deck, every)
+        S, M = len(sim.names), sim.deck.output.recorded_modes
         self.w_m = np.array(sim.weights) * sim.masses
         self.modes = M
         self.dx = sim.deck.box.dx
@@ -184,7 +257,19 @@ class SeriesRecorder(_Arrays):
                                       abs(float(momentum.sum()) - self.momentum0))
 
     def series(self) -> TimeSeries:
-        return TimeSeries(**{k: self._view(k) for k in self.arrays})
+        return TimeSeries(**self.series_arrays())
+
+    def series_arrays(self):
+        return {k: self._view(k) for k in self.arrays}
+
+    def run_summary(self, deck):
+        tol = deck.analysis.energy_tolerance
+        scale = self.momentum_scale
+        return {"energy": {"relative_error_max": self.energy_err_max, "tolerance": tol,
+                           "warning": self.energy_err_max > tol},
+                "momentum": {"drift_max": self.momentum_drift_max,
+                             "drift_max_relative": self.momentum_drift_max / scale
+                             if scale else None}}
 
     def meta(self):
         return {"energy0": self.energy0, "energy_err_max": self.energy_err_max,
@@ -199,13 +284,18 @@ class SeriesRecorder(_Arrays):
 class FieldSnapshots(Sampler):
     """Densities per species and E on the grid every ``output.fields_interval``."""
     name = "fields"
+    memory_item = "field_snapshots"
+    cadence_key = "fields_interval"
+    what = "the field snapshots"
+
+    @classmethod
+    def layout(cls, deck, every):
+        S, N = len(deck.species), deck.box.cells
+        n = record_steps(deck.time.steps, every)
+        return {"t": ((n,), float), "density": ((n, S, N), float), "efield": ((n, N), float)}
 
     def __init__(self, sim, every: int):
-        super().__init__()
-        self.every = every
-        S, N = len(sim.names), sim.deck.box.cells
-        n = record_steps(sim.steps, every)
-        self.arrays = {"t": np.zeros(n), "density": np.zeros((n, S, N)), "efield": np.zeros((n, N))}
+        super().__init__(sim.deck, every)
 
     def _take(self, sim, t):
         self._put({"t": t, "density": sim.density, "efield": sim.efield})
@@ -218,17 +308,28 @@ class FieldSnapshots(Sampler):
 class PhaseSpaceSampler(Sampler):
     """(x, u) of a fixed random subsample of each species every ``output.phase_space_interval``."""
     name = "phase"
+    memory_item = "phase_space"
+    cadence_key = "phase_space_interval"
+    what = "the phase-space samples"
+
+    @classmethod
+    def layout(cls, deck, every):
+        n = record_steps(deck.time.steps, every)
+        out = {"t": ((n,), float)}
+        for s in deck.species:   # the subsample the simulation draws: min(k, particles)
+            size = min(deck.output.phase_space_particles, s.particles_per_cell * deck.box.cells)
+            out[f"x/{s.name}"] = ((n, size), float)
+            out[f"u/{s.name}"] = ((n, size), float)
+        return out
 
     def __init__(self, sim, every: int):
-        super().__init__()
-        self.every = every
+        super().__init__(sim.deck, every)
         self.names = sim.names
         self.sub = sim.subsample
-        n = record_steps(sim.steps, every)
-        self.arrays = {"t": np.zeros(n)}
         for name, idx in zip(self.names, self.sub):
-            self.arrays[f"x/{name}"] = np.zeros((n, idx.size))
-            self.arrays[f"u/{name}"] = np.zeros((n, idx.size))
+            if self.arrays[f"x/{name}"].shape[1] != idx.size:
+                raise ValueError(f"phase-space subsample of {name}: {idx.size} particles, the "
+                                 f"layout says {self.arrays[f'x/{name}'].shape[1]}")
 
     def _take(self, sim, t):
         row = {"t": t}
@@ -251,8 +352,16 @@ class PeakSnapshot(Handler):
     copies of the positions; above it every new maximum is taken, so the snapshot is at the
     maximum itself."""
     name = "peak"
+    memory_item = "particles"
+    what = "the particles"
     EXACT_ABOVE = 0.1
     RETAKE = 2.0
+
+    @classmethod
+    def layout(cls, deck, every):
+        """One copy of every species' positions."""
+        return {f"x/{i}": ((s.particles_per_cell * deck.box.cells,), float)
+                for i, s in enumerate(deck.species)}
 
     def __init__(self, sim, every: int):
         self.every = every
@@ -301,10 +410,41 @@ class PeakSnapshot(Handler):
         self.value = -math.inf if v is None else float(v)
 
 
+def _drive_recorder(deck):
+    if deck.drive is None:
+        return []
+    from .drive_diagnostics import DriveRecorder
+    return [DriveRecorder]
+
+
+#: the recording handlers of a PIC run, in the order they are called: classes, or functions of
+#: the deck giving a list of classes (a handler that only some decks have). Add a recorded
+#: series here.
+PIC_HANDLERS = (PeakSnapshot, FieldSnapshots, PhaseSpaceSampler, SeriesRecorder, _drive_recorder)
+
+
+def handler_classes(deck, entries=PIC_HANDLERS) -> list[type]:
+    """The handler classes a deck's run has, from a method's list of entries."""
+    out = []
+    for e in entries:
+        out += [e] if isinstance(e, type) else list(e(deck))
+    return out
+
+
+def make_handlers(sim, entries=PIC_HANDLERS) -> list[Handler]:
+    """The handlers of ``entries`` for a simulation, each at its own cadence for the deck."""
+    return [cls(sim, cls.every_for(sim.deck)) for cls in handler_classes(sim.deck, entries)]
+
+
+def collect_series(handlers) -> TimeSeries:
+    """The run's TimeSeries: every handler's ``series_arrays()``, in handler order."""
+    arrays: dict[str, np.ndarray] = {}
+    for h in handlers:
+        arrays.update(h.series_arrays())
+    return TimeSeries(**arrays)
+
+
 def standard_handlers(sim) -> list[Handler]:
-    """The recording handlers every run has, at the deck's cadences (in this order)."""
-    o, dt = sim.deck.output, sim.dt
-    diag = stride(o.diagnostics_interval, dt)
-    return [PeakSnapshot(sim, diag), FieldSnapshots(sim, stride(o.fields_interval, dt)),
-            PhaseSpaceSampler(sim, stride(o.phase_space_interval, dt)),
-            SeriesRecorder(sim, diag)]
+    """The recording handlers of a PIC run (a driven run's drive recorder included), at the
+    deck's cadences (in this order)."""
+    return make_handlers(sim, PIC_HANDLERS)

@@ -38,7 +38,7 @@ def external_current(drive, t: float) -> float:
 
     - ``constant``: J_ext = current for t >= 0;
     - ``ramp``: J_ext = current * min(t / ramp_time, 1), a linear rise;
-    - ``sine``: J_ext = current * sin(frequency * t + phase).
+    - ``sine``: J_ext = current * sin(angular_frequency * t + phase).
 
     Before t = 0 (the initial half step) J_ext = 0."""
     if t < 0:
@@ -47,7 +47,7 @@ def external_current(drive, t: float) -> float:
         return drive.current
     if drive.profile == "ramp":
         return drive.current * min(t / drive.ramp_time, 1.0)
-    return drive.current * math.sin(drive.frequency * t + drive.phase)
+    return drive.current * math.sin(drive.angular_frequency * t + drive.phase)
 
 
 def max_abs_current(drive, t_end: float) -> float:
@@ -57,7 +57,7 @@ def max_abs_current(drive, t_end: float) -> float:
         return j
     if drive.profile == "ramp":
         return j * min(t_end / drive.ramp_time, 1.0)
-    a, b = drive.phase, drive.frequency * t_end + drive.phase   # the phase range covered
+    a, b = drive.phase, drive.angular_frequency * t_end + drive.phase   # the phase range covered
     # |sin| reaches 1 at pi/2 + m pi; is such a point inside [a, b]?
     m = math.ceil((a - 0.5 * math.pi) / math.pi)
     if 0.5 * math.pi + m * math.pi <= b:

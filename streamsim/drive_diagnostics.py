@@ -29,7 +29,7 @@ import numpy as np
 
 from . import drive as _drive
 from . import fields
-from .diagnostics import Handler, record_steps, stride
+from .diagnostics import Handler, allocate, record_steps, restore_rows, stride
 
 __all__ = ["DriveRecorder", "GAMMA_HIST_EDGES", "drive_handlers"]
 
@@ -62,20 +62,28 @@ def _histogram(u: np.ndarray) -> np.ndarray:
 class DriveRecorder(Handler):
     """E0, <J>, J_ext, the work of the imposed current and the Lorentz factors (module
     docstring); also the running error of the energy balance W - W0 = L int J_ext E0 dt, which
-    the energy watch reads as ``energy_err_max`` in a driven run."""
+    the energy watch and summary.json ``energy`` report in a driven run (``energy_rank``)."""
     name = "drive"
+    memory_item = "drive"
+    what = "the drive series"
+    energy_rank = 2
 
-    def __init__(self, sim, every: int, hist_every: int):
-        self.every, self.hist_every = every, hist_every
-        S = len(sim.names)
-        n = record_steps(sim.steps, every)
-        nf = record_steps(sim.steps, hist_every)
+    @classmethod
+    def layout(cls, deck, every):
+        S = len(deck.species)
+        n = record_steps(deck.time.steps, every)
+        nf = record_steps(deck.time.steps, stride(deck.output.fields_interval, deck.time.dt))
         B = GAMMA_HIST_EDGES.size - 1
-        self.arrays = {"drive_e0": np.zeros(n), "drive_current": np.zeros(n),
-                       "drive_current_ext": np.zeros(n), "drive_work": np.zeros(n),
-                       **{f"drive_gamma_{k}": np.zeros((n, S)) for k in ("mean", "rms", "max",
-                                                                          "bulk")},
-                       "drive_gamma_hist_t": np.zeros(nf), "drive_gamma_hist": np.zeros((nf, S, B))}
+        return {"drive_e0": ((n,), float), "drive_current": ((n,), float),
+                "drive_current_ext": ((n,), float), "drive_work": ((n,), float),
+                **{f"drive_gamma_{k}": ((n, S), float) for k in ("mean", "rms", "max", "bulk")},
+                "drive_gamma_hist_t": ((nf,), float), "drive_gamma_hist": ((nf, S, B), float)}
+
+    def __init__(self, sim, every: int, hist_every: int | None = None):
+        self.every = every
+        self.hist_every = (stride(sim.deck.output.fields_interval, sim.dt) if hist_every is None
+                           else hist_every)
+        self.arrays = allocate(self.layout(sim.deck, every))
         self.count = self.hist_count = 0
         self.length, self.dx = sim.deck.box.length, sim.deck.box.dx
         self.w_m = np.array(sim.weights) * sim.masses
@@ -156,16 +164,29 @@ class DriveRecorder(Handler):
         out["drive_gamma_hist_edges"] = GAMMA_HIST_EDGES.copy()
         return out
 
+    @classmethod
+    def start_lines(cls, deck):
+        """The imposed current against the carrying limit."""
+        lim = _drive.carrying_limit(deck.species)
+        j = _drive.max_abs_current(deck.drive, deck.time.end)
+        return [f"drive: max |J_ext| = {j:.4g} e n_ref c, carrying_limit = {lim:.4g} e n_ref c, "
+                f"ratio = {j / lim:.4g}" + (" (charge-starved)" if j > lim else "")]
+
+    def run_summary(self, deck):
+        """Energy is not conserved when driven: summary.json ``energy`` reports the balance."""
+        err = self.energy_err_max
+        return {"energy": {"relative_error_max": err,
+                           "warning": err > deck.analysis.energy_tolerance,
+                           "measure": "driven run: max |W - W0 - L int J_ext E0 dt| / "
+                                      "max(|W0|, max |W - W0|)"}}
+
     def state(self):
         return {**self.arrays, "count": np.array(self.count),
                 "hist_count": np.array(self.hist_count)}
 
     def restore(self, arrays):
         for k, dst in self.arrays.items():
-            src = arrays.get(k)
-            if src is None or src.shape != dst.shape:
-                raise ValueError(f"checkpoint does not match this deck (diagnostic {self.name}/{k})")
-            dst[...] = src
+            restore_rows(dst, arrays.get(k), f"{self.name}/{k}")
         self.count, self.hist_count = int(arrays["count"]), int(arrays["hist_count"])
 
     def meta(self):
@@ -178,9 +199,8 @@ class DriveRecorder(Handler):
 
 
 def drive_handlers(sim) -> list[Handler]:
-    """The drive recorder at the deck's cadences, or nothing when the deck has no [drive]."""
+    """The drive recorder at the deck's cadences, or nothing when the deck has no [drive]
+    (:data:`streamsim.diagnostics.PIC_HANDLERS` lists it for a driven deck)."""
     if sim.drive is None:
         return []
-    o = sim.deck.output
-    return [DriveRecorder(sim, stride(o.diagnostics_interval, sim.dt),
-                          stride(o.fields_interval, sim.dt))]
+    return [DriveRecorder(sim, DriveRecorder.every_for(sim.deck))]

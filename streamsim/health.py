@@ -30,16 +30,80 @@ CELLS_PER_WAVELENGTH_WARN = 8
 CELLS_PER_WAVELENGTH_REFUSE = 4
 
 
+#: the stable id of every rule (what code and tests match on) and its printed name
+RULES = {
+    "leapfrog_stability": "leapfrog stability",
+    "time_step_accuracy": "time-step accuracy",
+    "cell_crossing": "cell crossing",
+    "finite_grid_instability": "finite-grid instability",
+    "cold_beam_grid_instability": "cold-beam grid instability",
+    "fastest_mode_resolution": "fastest mode resolution",
+    "fastest_mode_containment": "fastest mode containment",
+    "no_unstable_box_mode": "no unstable box mode",
+    "noise_floor": "noise floor",
+    "table_support": "table support",
+}
+
+
+def _rule_id(name: str) -> str:
+    return name.replace("-", "_").replace(" ", "_")
+
+
 @dataclass(frozen=True)
 class Finding:
+    """One health finding. ``message`` is the number and the fix, without the species it
+    concerns: those are ``species`` (a tuple of names, empty for a deck-wide finding), so that
+    findings alike for several species merge on the fields (:func:`merge_findings`)."""
     level: str        # "warning" | "refusal"
-    rule: str         # short name of the rule
+    rule: str         # printed name of the rule (RULES)
     key: str          # the deck key to change
     message: str      # the number and the fix
     value: object = None  # the key's current value
+    species: tuple[str, ...] = ()
+    id: str = ""      # stable rule id (RULES); derived from ``rule`` when not given
+
+    def __post_init__(self):
+        if not self.id:
+            object.__setattr__(self, "id", _rule_id(self.rule))
+        object.__setattr__(self, "species", tuple(self.species))
+
+    @property
+    def text(self) -> str:
+        """The message as printed and written to summary.json (the species named first)."""
+        if self.species:
+            return f"species {', '.join(self.species)}: {self.message}"
+        return self.message
 
     def __str__(self) -> str:
-        return f"{self.rule}: {self.message}"
+        return f"{self.rule}: {self.text}"
+
+    def entry(self) -> dict:
+        """The summary.json ``health`` entry."""
+        return {"level": self.level, "rule": self.rule, "key": self.key, "message": self.text,
+                "species": list(self.species)}
+
+
+def _finding(level, rule_id, key, message, value=None, species=()) -> Finding:
+    return Finding(level, RULES[rule_id], key, message, value, tuple(species), rule_id)
+
+
+def merge_findings(findings) -> list[str]:
+    """One line per health finding; findings alike but for their species (same rule, level and
+    message) are one line naming them all ("species electrons, positrons: ...")."""
+    groups: dict[tuple, list[str]] = {}
+    first: dict[tuple, Finding] = {}
+    for f in findings:
+        key = (f.id, f.level, f.message, bool(f.species)) + (() if f.species else (id(f),))
+        if key not in groups:
+            groups[key], first[key] = [], f
+        groups[key].extend(f.species)
+    lines = []
+    for key, names in groups.items():
+        f = first[key]
+        suffix = "" if f.level == "warning" else " (run forced)"
+        text = f"species {', '.join(names)}: {f.message}" if names else f.message
+        lines.append(f"{f.rule}: {text}{suffix}")
+    return lines
 
 
 #: fewest momentum cells across the interquartile range of a table species (Vlasov), common
@@ -113,8 +177,10 @@ def auto_dt(box, species, end: float | None = None) -> float:
     return dt
 
 
-def check_deck(deck, theory: dict | None = None) -> list[Finding]:
-    """All health findings for a deck. ``theory``: the deck's theory block (to_dict), if known."""
+def check_deck(deck, dispersion=None) -> list[Finding]:
+    """All health findings for a deck. ``dispersion``: the deck's linear theory
+    (:class:`streamsim.theory.Dispersion`), if known."""
+    from .numbers import finite_or_none
     out: list[Finding] = []
     dt, dx = deck.time.dt, deck.box.dx
     wp = omega_p_total(deck.species)
@@ -122,11 +188,11 @@ def check_deck(deck, theory: dict | None = None) -> list[Finding]:
     # -- time step against the plasma frequency ------------------------------------------
     wdt = wp * dt
     if wdt >= OMEGA_DT_LIMIT:
-        out.append(Finding("refusal", "leapfrog stability", "time.dt", value=dt, message=
+        out.append(_finding("refusal", "leapfrog_stability", "time.dt", value=dt, message=
                            f"omega_p dt = {wdt:.3g} >= 2, the leapfrog limit: the run would blow up; "
                            f"use dt <= {OMEGA_DT_ACCURATE / wp:.3g} (or dt = \"auto\")"))
     elif wdt > OMEGA_DT_WARN:
-        out.append(Finding("warning", "time-step accuracy", "time.dt", value=dt, message=
+        out.append(_finding("warning", "time_step_accuracy", "time.dt", value=dt, message=
                            f"omega_p dt = {wdt:.3g} > {OMEGA_DT_WARN}: frequencies and growth rates "
                            f"carry errors of order (omega_p dt)^2/24 = {wdt**2 / 24:.1e}; use dt <= "
                            f"{OMEGA_DT_ACCURATE / wp:.3g} (or dt = \"auto\")"))
@@ -135,8 +201,8 @@ def check_deck(deck, theory: dict | None = None) -> list[Finding]:
     for s in deck.species:
         v = velocity_max(s)
         if v * dt >= dx:
-            out.append(Finding("warning", "cell crossing", "time.dt", value=dt, message=
-                               f"species {s.name}: v_max dt = {v * dt:.3g} >= dx = {dx:.3g}: particles "
+            out.append(_finding("warning", "cell_crossing", "time.dt", value=dt, species=(s.name,), message=
+                               f"v_max dt = {v * dt:.3g} >= dx = {dx:.3g}: particles "
                                f"skip cells; use dt <= {CELL_CROSSING_AUTO * dx / v:.3g} (or dt = \"auto\")"))
 
     # -- Debye length / finite-grid instability, cold-beam grid instability -------------
@@ -151,21 +217,24 @@ def check_deck(deck, theory: dict | None = None) -> list[Finding]:
             else:
                 continue
             need = math.ceil(deck.box.length / (DX_OVER_DEBYE_WARN * lam))
-            out.append(Finding(level, "finite-grid instability", "box.cells", value=deck.box.cells, message=
-                               f"species {s.name}: dx/lambda_D = {ratio:.3g} > pi: aliasing heats the "
+            out.append(_finding(level, "finite_grid_instability", "box.cells", value=deck.box.cells,
+                                species=(s.name,), message=
+                               f"dx/lambda_D = {ratio:.3g} > pi: aliasing heats the "
                                f"plasma (Birdsall & Langdon 1991, ch. 8); use box.cells >= {need}"))
         elif s.drift_u != 0:
             ratio = math.sqrt(s.omega_p2) * dx / abs(s.drift_beta)
             if ratio > COLD_BEAM_WARN:
                 need = math.ceil(deck.box.length * math.sqrt(s.omega_p2) / abs(s.drift_beta) / COLD_BEAM_WARN)
-                out.append(Finding("warning", "cold-beam grid instability", "box.cells", value=deck.box.cells, message=
-                                   f"species {s.name}: omega_p dx/|v_d| = {ratio:.3g} > 1: a cold beam "
+                out.append(_finding("warning", "cold_beam_grid_instability", "box.cells", value=deck.box.cells,
+                                    species=(s.name,), message=
+                                   f"omega_p dx/|v_d| = {ratio:.3g} > 1: a cold beam "
                                    f"on a coarse grid heats numerically; use box.cells >= {need} or "
                                    f"give the beam a small theta"))
 
     # -- the fastest mode: resolved and contained ----------------------------------------
-    if theory and isinstance(theory.get("fastest"), dict) and theory["fastest"].get("k"):
-        kf = theory["fastest"]["k"]
+    fastest = getattr(dispersion, "fastest", None)
+    if fastest is not None and fastest.k:
+        kf = fastest.k
         lam_f = 2 * math.pi / kf
         cells = lam_f / dx
         if cells < CELLS_PER_WAVELENGTH_REFUSE:
@@ -176,17 +245,18 @@ def check_deck(deck, theory: dict | None = None) -> list[Finding]:
             level = None
         if level:
             need = math.ceil(CELLS_PER_WAVELENGTH_WARN * deck.box.length / lam_f)
-            out.append(Finding(level, "fastest mode resolution", "box.cells", value=deck.box.cells, message=
-                               f"the fastest-growing wavelength {lam_f:.3g} c/omega_p spans only "
-                               f"{cells:.2g} cells; use box.cells >= {need}"))
+            out.append(_finding(level, "fastest_mode_resolution", "box.cells", value=deck.box.cells, message=
+                                f"the fastest-growing wavelength {lam_f:.3g} c/omega_p spans only "
+                                f"{cells:.2g} cells; use box.cells >= {need}"))
         if deck.box.length < lam_f:
-            out.append(Finding("warning", "fastest mode containment", "box.length", value=deck.box.length, message=
+            out.append(_finding("warning", "fastest_mode_containment", "box.length", value=deck.box.length, message=
                                f"the box ({deck.box.length:.3g} c/omega_p) is shorter than the "
                                f"fastest-growing wavelength {lam_f:.3g}; use box.fastest_wavelengths "
                                f">= 1 or box.length >= {lam_f:.3g}"))
-        modes = theory.get("box_modes") or []
-        if modes and not any((m.get("growth") or 0) > 0 for m in modes) and theory["fastest"].get("growth", 0) > 0:
-            out.append(Finding("refusal", "no unstable box mode", "box.length", value=deck.box.length, message=
+        modes = dispersion.box_modes or []
+        if modes and not any((finite_or_none(m.growth) or 0) > 0 for m in modes) \
+                and (finite_or_none(fastest.growth) or 0) > 0:
+            out.append(_finding("refusal", "no_unstable_box_mode", "box.length", value=deck.box.length, message=
                                "none of the box modes lies in the unstable band, so nothing can grow; "
                                "use box.fastest_wavelengths = 8"))
 
@@ -197,8 +267,9 @@ def check_deck(deck, theory: dict | None = None) -> list[Finding]:
             noise = 1.0 / math.sqrt(s.particles_per_cell)   # per-cell shot noise of delta n/n
             if noise > thr / 3.0:
                 need = math.ceil((3.0 / thr) ** 2)
-                out.append(Finding("warning", "noise floor", f"species.{s.name}.particles_per_cell", value=s.particles_per_cell, message=
-                                   f"species {s.name}: random-loading noise delta n/n ~ 1/sqrt(ppc) = "
+                out.append(_finding("warning", "noise_floor", f"species.{s.name}.particles_per_cell",
+                                    value=s.particles_per_cell, species=(s.name,), message=
+                                   f"random-loading noise delta n/n ~ 1/sqrt(ppc) = "
                                    f"{noise:.2g} is within 3x of analysis.clump_threshold = {thr:g}: "
                                    f"noise alone would count as clumps; use particles_per_cell >= {need} "
                                    f"or loading = \"quiet\""))
@@ -215,9 +286,9 @@ def check_deck(deck, theory: dict | None = None) -> list[Finding]:
             cells = (q[1] - q[0]) / du
             if cells < TABLE_CORE_CELLS:
                 need = math.ceil(g.cells * TABLE_CORE_CELLS / max(cells, 1e-300))
-                out.append(Finding("warning", "table support", "vlasov.momentum_cells",
-                                   value=g.cells, message=
-                                   f"species {s.name}: the table spans u in [{s.table.u[0]:.4g}, "
+                out.append(_finding("warning", "table_support", "vlasov.momentum_cells",
+                                    value=g.cells, species=(s.name,), message=
+                                   f"the table spans u in [{s.table.u[0]:.4g}, "
                                    f"{s.table.u[-1]:.4g}] but half its particles lie within "
                                    f"du = {q[1] - q[0]:.3g}, only {cells:.2g} momentum cells; use "
                                    f"vlasov.momentum_cells >= {need}, or cut the table's support "

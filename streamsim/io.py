@@ -11,13 +11,16 @@ Run folder layout::
     summary.json     the contract keys (README, "summary.json")
     theory.json      the linear theory for the deck's box modes
     timeseries.h5    energies, momenta, complex E_k, contrast vs time
-    fields.h5        openPMD 1.1: meshes E, rho, density_<species>; particle subsample
+    openpmd/fields.h5  openPMD 1.1, one groupBased series: meshes E, rho, density_<species>;
+                     particle subsample (the folder holds nothing else, so openPMD readers
+                     open the folder as it is)
     particles.h5     all positions at the time of maximum contrast and at the end (PIC)
     continuum.h5     the densities at maximum contrast and at the end (method = "vlasov")
     checkpoint.h5    full state for --resume
 
 A continuum run's fields.h5 also holds f(x, u) of each species at the field cadence, as the 2D
-mesh records ``f_<species>`` (axes u, x).
+mesh records ``f_<species>`` (axes u, x). Folders written before the openPMD subfolder existed
+hold fields.h5 at the top; :func:`fields_path` finds either.
 """
 from __future__ import annotations
 
@@ -37,9 +40,13 @@ from .numbers import finite_or_none
 from .rundata import DensityProfile, DensitySnapshots, ParticleSnapshot, PhaseSpace, RunData, \
     TimeSeries
 
+#: the subfolder that holds the run's openPMD series and nothing else
+OPENPMD_FOLDER = "openpmd"
 FILES = {"deck": "deck.toml", "summary": "summary.json", "theory": "theory.json",
-         "series": "timeseries.h5", "fields": "fields.h5", "particles": "particles.h5",
-         "checkpoint": "checkpoint.h5"}
+         "series": "timeseries.h5", "fields": f"{OPENPMD_FOLDER}/fields.h5",
+         "particles": "particles.h5", "checkpoint": "checkpoint.h5"}
+#: where run folders written before the openPMD subfolder kept the openPMD series
+LEGACY_FIELDS = "fields.h5"
 #: a continuum run's densities at maximum contrast and at the end (in place of particles.h5)
 CONTINUUM_FILE = "continuum.h5"
 
@@ -512,12 +519,38 @@ def read_checkpoint(path) -> dict:
     return out
 
 
+def read_checkpoint_meta(path) -> dict:
+    """{"step", "meta"} of a checkpoint, without reading its arrays (what a resume checks first)."""
+    try:
+        with h5py.File(path, "r") as f:
+            return {"step": int(f.attrs["step"]), "meta": json.loads(f.attrs["meta"])}
+    except (OSError, KeyError, ValueError) as ex:
+        raise OutputError(f"cannot read checkpoint {path}: {ex}") from None
+
+
 # ----------------------------------------------------------------------------------------------
 # a whole run folder
 # ----------------------------------------------------------------------------------------------
 def is_run_folder(folder) -> bool:
     folder = Path(folder)
     return (folder / FILES["deck"]).is_file() and (folder / FILES["series"]).is_file()
+
+
+def fields_path(folder) -> Path:
+    """The openPMD series of a run folder: ``openpmd/fields.h5``, or ``fields.h5`` at the top of
+    a folder written before the subfolder existed (the new place when neither exists)."""
+    folder = Path(folder)
+    new, old = folder / FILES["fields"], folder / LEGACY_FIELDS
+    return old if old.is_file() and not new.is_file() else new
+
+
+def drop_legacy_fields(folder) -> None:
+    """Remove a top-level fields.h5 once the series is written to the openPMD subfolder (a run
+    resumed in an old folder), so the folder holds one series and readers find the new one."""
+    folder = Path(folder)
+    if (folder / FILES["fields"]).is_file():
+        with contextlib.suppress(FileNotFoundError):
+            (folder / LEGACY_FIELDS).unlink()
 
 
 def read_run(folder) -> RunData:
@@ -532,8 +565,9 @@ def read_run(folder) -> RunData:
     deck = load_deck(folder / FILES["deck"])
     names, series = read_series(folder / FILES["series"])
     cells = deck.box.cells
-    if (folder / FILES["fields"]).exists():
-        snaps, phase = read_openpmd_meshes(folder / FILES["fields"], names)
+    fields = fields_path(folder)
+    if fields.exists():
+        snaps, phase = read_openpmd_meshes(fields, names)
     else:
         snaps = DensitySnapshots(np.zeros(0), np.zeros((0, len(names), cells)),
                                  np.zeros((0, cells)))
@@ -546,8 +580,8 @@ def read_run(folder) -> RunData:
             theory = Dispersion.from_dict(raw)
     profiles = read_profiles(folder / CONTINUUM_FILE)
     extra = {}
-    if deck.method == "vlasov" and (folder / FILES["fields"]).exists():
-        dist = read_distributions(folder / FILES["fields"], names)
+    if deck.method == "vlasov" and fields.exists():
+        dist = read_distributions(fields, names)
         if dist is not None:
             extra["distribution"] = dist
     return RunData(deck=deck, names=names, length=deck.box.length, cells=cells,

@@ -1,21 +1,24 @@
 """How much memory a run will hold, estimated from its deck before anything is allocated.
 
-:func:`estimate` counts the arrays a run keeps for its whole length (float64 = 8 bytes, complex128
-= 16 bytes):
+:func:`estimate` sums what the run's method holds for its own state and what each of its
+recording handlers reports it will preallocate (``Handler.nbytes(deck)``, from the same
+``layout`` the handler allocates), grouped by the handler's ``memory_item``. For a PIC run:
 
-* ``particles``: x and u of every macro-particle, plus the copy of x kept for the peak snapshot;
-* ``time_series``: per diagnostics record t, the kinetic energy and momentum of each species, the
-  field energy, the complex amplitudes of the recorded modes and max/rms delta n/n of each species
-  and of the pair total;
-* ``field_snapshots``: per fields record one row per species density plus the field, each over
-  the cells;
-* ``phase_space``: per phase-space record the (x, u) subsample of every species.
+* ``particles``: x and u of every macro-particle (the method's state), plus the copy of x kept
+  for the peak snapshot;
+* ``time_series``: the series recorder's arrays (energies, momenta, the complex amplitudes of
+  the recorded modes and the complex density modes of every species, max/rms delta n/n);
+* ``field_snapshots``, ``phase_space``: the field snapshots and the phase-space subsample;
+* ``drive``: a driven run's drive series and gamma histograms.
 
-Record counts follow the recorder: ``steps // stride + 2`` (step 0, the last step, and one to
-spare), with ``stride = max(1, round(interval / dt))``.
+A continuum run has ``phase_space_grid`` (f and its work copy) and its handlers' items. Record
+counts are the handlers' own (:func:`streamsim.diagnostics.record_steps`).
 
 :func:`check` refuses a deck whose estimate exceeds the available memory with a
 :class:`MemoryRefusal`, one line naming the largest item and its fix.
+
+The method table sits below this room; :func:`estimate` reaches it by a lazy import (the deck's
+method picks the state and the handlers).
 """
 from __future__ import annotations
 
@@ -23,7 +26,8 @@ import os
 
 from .deck import Deck, DeckError, show_value
 
-__all__ = ["MemoryRefusal", "estimate", "check", "memory_available"]
+__all__ = ["MemoryRefusal", "estimate", "tally", "check", "memory_available", "pic_state_bytes",
+           "pic_refusal"]
 
 F8, C16 = 8, 16
 GIB = float(1 << 30)
@@ -33,34 +37,30 @@ class MemoryRefusal(DeckError):
     """The run would need more memory than the machine has; ``str(err)`` is the one line."""
 
 
-def _stride(interval: float, dt: float) -> int:
-    return max(1, int(round(interval / dt)))
-
-
-def _records(deck: Deck, interval: float) -> int:
-    return deck.time.steps // _stride(interval, deck.time.dt) + 2
-
-
 def _particles(deck: Deck) -> list[int]:
     return [s.particles_per_cell * deck.box.cells for s in deck.species]
 
 
-def estimate(deck: Deck) -> dict[str, int]:
-    """Bytes a run of ``deck`` (resolved) holds: ``particles``, ``time_series``,
-    ``field_snapshots``, ``phase_space`` and their ``total``."""
-    S, N, M = len(deck.species), deck.box.cells, deck.output.modes
-    o = deck.output
-    counts = _particles(deck)
-    particles = sum(counts) * (2 * F8 + F8)           # x, u + peak snapshot of x
-    per_record = F8 * (1 + S + 1 + S + 2 * (S + 1)) + C16 * M
-    series = _records(deck, o.diagnostics_interval) * per_record
-    fields = _records(deck, o.fields_interval) * (F8 * (S + 1) * N + F8)
-    sub = sum(min(o.phase_space_particles, n) for n in counts)
-    phase = _records(deck, o.phase_space_interval) * (2 * F8 * sub + F8)
-    out = {"particles": particles, "time_series": series, "field_snapshots": fields,
-           "phase_space": phase}
+def pic_state_bytes(deck: Deck) -> dict[str, int]:
+    """Bytes of a PIC run's own state: x and u of every macro-particle."""
+    return {"particles": sum(_particles(deck)) * 2 * F8}
+
+
+def tally(deck: Deck, state: dict[str, int], handler_classes) -> dict[str, int]:
+    """The estimate: the method's ``state`` bytes plus every handler's ``nbytes(deck)`` under
+    its ``memory_item``, and their ``total``."""
+    out = dict(state)
+    for cls in handler_classes:
+        out[cls.memory_item] = out.get(cls.memory_item, 0) + cls.nbytes(deck)
     out["total"] = sum(out.values())
     return out
+
+
+def estimate(deck: Deck) -> dict[str, int]:
+    """Bytes a run of ``deck`` (resolved) holds, by item, and their ``total`` (module
+    docstring)."""
+    from .methods import METHODS
+    return METHODS[deck.method].memory(deck)
 
 
 def memory_available() -> int | None:
@@ -84,7 +84,9 @@ def _gib(n: float) -> str:
     return f"{g:.0f}" if g >= 10 else f"{g:.2g}"
 
 
-def _refusal(deck: Deck, item: str, need: int, avail: int) -> MemoryRefusal:
+def pic_refusal(deck: Deck, item: str, need: int, avail: int, handler_classes=()) \
+        -> MemoryRefusal:
+    """The one-line refusal naming ``item`` (the largest of the estimate) and its fix."""
     o, end = deck.output, deck.time.end
     have = f"(available {_gib(avail)} GiB)"
     if item == "particles":
@@ -95,12 +97,9 @@ def _refusal(deck: Deck, item: str, need: int, avail: int) -> MemoryRefusal:
             f"the particles need {_gib(need)} GiB for {n:.3g} macro-particles on "
             f"box.cells = {deck.box.cells} {have}: lower particles_per_cell or box.cells",
             s.particles_per_cell)
-    cadence, what, extra = {
-        "time_series": ("diagnostics_interval", "the time series", ""),
-        "field_snapshots": ("fields_interval", "the field snapshots", ""),
-        "phase_space": ("phase_space_interval", "the phase-space samples",
-                        ", lower output.phase_space_particles"),
-    }[item]
+    cls = next(c for c in handler_classes if c.memory_item == item)
+    cadence, what = cls.cadence_key, cls.what
+    extra = ", lower output.phase_space_particles" if cadence == "phase_space_interval" else ""
     interval = getattr(o, cadence)
     return MemoryRefusal(
         "time.end", f"{what} need {_gib(need)} GiB at output.{cadence} = {show_value(interval)} "
@@ -110,9 +109,11 @@ def _refusal(deck: Deck, item: str, need: int, avail: int) -> MemoryRefusal:
 def check(deck: Deck, available_bytes: int | None = None) -> dict[str, int]:
     """The :func:`estimate` of ``deck``; raises :class:`MemoryRefusal` when its total exceeds
     ``available_bytes`` (default: :func:`memory_available`; unknown memory is not checked)."""
-    est = estimate(deck)
+    from .methods import METHODS
+    method = METHODS[deck.method]
+    est = method.memory(deck)
     avail = memory_available() if available_bytes is None else available_bytes
     if avail is not None and est["total"] > avail:
         item = max((k for k in est if k != "total"), key=est.get)
-        raise _refusal(deck, item, est[item], avail)
+        raise method.memory_refusal(deck, item, est, avail)
     return est

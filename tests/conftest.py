@@ -19,7 +19,7 @@ def plasma_deck(*, cells=64, length=6.283185307179586, ppc=64, theta=0.0, dt=0.0
                 modes=(1,), amplitude=0.01, loading="quiet", shape="cic", solver="spectral",
                 seed=3, diag=None, extra_output=None) -> dict:
     """One electron species on a neutralising background (invented test plasma)."""
-    out = {"diagnostics_interval": diag or dt, "modes": min(8, cells // 2)}
+    out = {"diagnostics_interval": diag or dt, "recorded_modes": min(8, cells // 2)}
     out.update(extra_output or {})
     return {
         "title": "test plasma", "random_seed": seed,
@@ -50,5 +50,5 @@ def pair_deck(*, beta=0.1, cells=128, ppc=64, nwaves=8, dt=0.05, end=40.0, theta
         "box": {"length": nwaves * 2 * math.pi / kfast, "cells": cells, "shape": shape},
         "time": {"dt": dt, "end": end}, "species": species,
         "perturbation": {"modes": [nwaves], "amplitude": amplitude},
-        "output": {"diagnostics_interval": dt, "modes": min(16, cells // 2)},
+        "output": {"diagnostics_interval": dt, "recorded_modes": min(16, cells // 2)},
     }

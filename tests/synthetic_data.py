@@ -126,7 +126,7 @@ def synthetic_run(*, names=("electrons", "positrons"), length=20.0, cells=128, m
         "box": {"length": length, "cells": cells}, "time": {"dt": 0.05, "end": float(t_end)},
         "species": [{"name": nm, "charge": (-1.0) ** (s + 1), "mass": 1.0, "density": 1.0 / S,
                      "particles_per_cell": 1} for s, nm in enumerate(names)],
-        "output": {"modes": modes},
+        "output": {"recorded_modes": modes},
         "analysis": analysis or {"clump_threshold": 0.5, "coherence_drop": 0.5,
                                  "coherence_kmax_factor": 4.0, "bulk_gamma": 1.0,
                                  "energy_tolerance": 0.01}})

@@ -91,8 +91,8 @@ CASES = [
     ("negative seed", mut(lambda r: r.update(random_seed=-1)), "random_seed", ">= 0"),
     ("fractional seed", mut(lambda r: r.update(random_seed=1.5)), "random_seed", "integer"),
     ("empty title", mut(lambda r: r.update(title="  ")), "title", "empty"),
-    ("zero recorded modes", mut(lambda r: r.update(output={"modes": 0})), "output.modes", ">= 1"),
-    ("too many recorded modes", mut(lambda r: r.update(output={"modes": 999})), "output.modes", "cells/2"),
+    ("zero recorded modes", mut(lambda r: r.update(output={"recorded_modes": 0})), "output.recorded_modes", ">= 1"),
+    ("too many recorded modes", mut(lambda r: r.update(output={"recorded_modes": 999})), "output.recorded_modes", "cells/2"),
     ("diagnostics faster than dt", mut(lambda r: r.update(output={"diagnostics_interval": 0.001})), "output.diagnostics_interval", "time.dt"),
     ("negative threads", mut(lambda r: r.update(output={"threads": -1})), "output.threads", ">= 0"),
     ("output key typo", mut(lambda r: r.update(output={"folderr": "x"})), "output.folderr", "did you mean 'folder'"),
@@ -362,10 +362,13 @@ def test_memory_estimate_counts_the_arrays():
     n = 2 * 128 * 256                                   # 2 species x ppc x cells
     assert est["particles"] == n * 3 * 8                # x, u + peak copy of x
     steps = 1200                                        # 60 / 0.05
-    per_record = 8 * (1 + 2 + 1 + 2 + 3 + 3) + 16 * 64   # t, kin, W_E, mom, max, rms, modes
-    assert est["time_series"] == (steps // 2 + 2) * per_record          # every 0.1 = 2 steps
-    assert est["field_snapshots"] == (steps // 60 + 2) * (3 * 256 * 8 + 8)  # every 3.0
-    assert est["phase_space"] == (steps // 150 + 2) * (2 * 8 * 2 * 4096 + 8)
+    # t, kin, W_E, mom, max, rms; the E modes; the density modes of both species
+    per_record = 8 * (1 + 2 + 1 + 2 + 3 + 3) + 16 * 64 + 16 * 2 * 64
+    # records: step 0 and every stride-th step (the last one included when it falls on it)
+    assert est["time_series"] == (steps // 2 + 1) * per_record          # every 0.1 = 2 steps
+    assert est["field_snapshots"] == (steps // 60 + 1) * (3 * 256 * 8 + 8)  # every 3.0
+    assert est["phase_space"] == (steps // 150 + 1) * (2 * 8 * 2 * 4096 + 8)
+    assert "drive" not in est                           # an undriven deck records no drive
     assert est["total"] == sum(v for k, v in est.items() if k != "total")
     assert memory.check(deck, available_bytes=64 * GIB) == est
 
@@ -377,8 +380,8 @@ def test_memory_refusal_for_a_very_long_run(tmp_path, capsys):
         memory.check(deck, available_bytes=23 * GIB)
     line = str(info.value)
     assert isinstance(info.value, DeckError) and "\n" not in line
-    # (2e10 // 2 + 2) records x 1120 bytes = 1.04e4 GiB
-    need = (int(1e9 / 0.05) // 2 + 2) * 1120 / GIB
+    # (2e10 // 2 + 1) records x (1120 + 2048 for the density modes) bytes = 2.95e4 GiB
+    need = (int(1e9 / 0.05) // 2 + 1) * 3168 / GIB
     assert line == (f"time.end = 1e9: the time series need {need:.0f} GiB at "
                     "output.diagnostics_interval = 0.1 (available 23 GiB): raise "
                     "output.diagnostics_interval or shorten time.end")

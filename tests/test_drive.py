@@ -30,7 +30,7 @@ def pair_rest(*, current, cells=16, ppc=8, dt=0.02, end=10.0, profile="constant"
                for n, q in (("electrons", -1.0), ("positrons", 1.0))]
     d = {"title": "driven test plasma", "random_seed": 5, "units": {"density_cm3": 1.0e10},
          "box": {"length": 2 * math.pi, "cells": cells}, "time": {"dt": dt, "end": end},
-         "species": species, "output": {"diagnostics_interval": diag, "modes": 4},
+         "species": species, "output": {"diagnostics_interval": diag, "recorded_modes": 4},
          "drive": {"current": current, "profile": profile, **(extra or {})}}
     if perturb:
         d["perturbation"] = {"modes": [1], "amplitude": 1e-3}
@@ -121,7 +121,7 @@ def test_charge_starved_energy_theorem(starved):
 
 
 @pytest.mark.parametrize("profile,extra", [("ramp", {"ramp_time": 5.0}),
-                                           ("sine", {"frequency": 0.5, "phase": 0.3})])
+                                           ("sine", {"angular_frequency": 0.5, "phase": 0.3})])
 def test_energy_theorem_for_warm_driven_plasmas(profile, extra):
     """Poynting's theorem in 1D ES, d(W_kin + W_field)/dt = L E0 J_ext, holds with k != 0
     fields too (warm, perturbed plasma); 1e-3 of the energy gained."""
@@ -204,8 +204,8 @@ def test_driven_resume_is_bit_identical(tmp_path):
     ({"current": 1.0, "profile": "ramps"}, "drive.profile", "did you mean 'ramp'"),
     ({"current": 1.0, "profile": "ramp"}, "drive.ramp_time", "is required"),
     ({"current": 1.0, "profile": "ramp", "ramp_time": -1.0}, "drive.ramp_time", "> 0"),
-    ({"current": 1.0, "profile": "sine"}, "drive.frequency", "is required"),
-    ({"current": 1.0, "frequency": 0.1}, "drive.frequency", "applies only"),
+    ({"current": 1.0, "profile": "sine"}, "drive.angular_frequency", "is required"),
+    ({"current": 1.0, "angular_frequency": 0.1}, "drive.angular_frequency", "applies only"),
     ({"current": 1.0, "phase": 0.1}, "drive.phase", "applies only"),
     ({"current": 1.0, "theory_time": 1e6}, "drive.theory_time", "time.end"),
     ({"curent": 1.0}, "drive.curent", "did you mean 'current'"),
@@ -254,7 +254,7 @@ def test_unit_conversions_against_the_handbook():
 
 
 def test_profiles_and_the_carrying_limit():
-    d = load_deck(pair_rest(current=-3.0, profile="sine", extra={"frequency": 0.5,
+    d = load_deck(pair_rest(current=-3.0, profile="sine", extra={"angular_frequency": 0.5,
                                                                   "phase": 0.2})).drive
     assert drive.external_current(d, 1.0) == pytest.approx(-3.0 * math.sin(0.7))
     assert drive.max_abs_current(d, 1.0) == pytest.approx(3.0 * math.sin(0.7))

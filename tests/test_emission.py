@@ -157,7 +157,7 @@ def test_converge_command_on_a_tiny_deck(tmp_path):
     deck = tmp_path / "tiny.toml"
     import tomli_w
     raw = pair_deck(cells=32, ppc=16, end=8.0, nwaves=2)
-    raw["output"]["modes"] = 8
+    raw["output"]["recorded_modes"] = 8
     deck.write_text(tomli_w.dumps(raw), encoding="utf-8")
     out = tmp_path / "study"
     assert main(["converge", str(deck), "--levels", "3", "--out", str(out), "--workers", "1",

@@ -11,7 +11,7 @@ from streamsim.pipeline import HealthRefusal, _theory, run
 
 
 def _theory_block(deck):
-    return _theory(deck)[1]
+    return _theory(deck)[0]       # the Dispersion, typed
 from streamsim.health import check_deck
 
 

@@ -94,9 +94,9 @@ def test_summary_json_is_written_once(tmp_path, monkeypatch):
 
 def test_a_warning_that_holds_for_several_species_is_one_line():
     f = [Finding("warning", "cold-beam grid instability", "box.cells",
-                 "species electrons: omega_p dx/|v_d| = 2 > 1: use box.cells >= 9"),
+                 "omega_p dx/|v_d| = 2 > 1: use box.cells >= 9", species=("electrons",)),
          Finding("warning", "cold-beam grid instability", "box.cells",
-                 "species positrons: omega_p dx/|v_d| = 2 > 1: use box.cells >= 9"),
+                 "omega_p dx/|v_d| = 2 > 1: use box.cells >= 9", species=("positrons",)),
          Finding("warning", "time-step accuracy", "time.dt", "omega_p dt = 0.3 > 0.2")]
     lines = pipeline.merge_findings(f)
     assert lines == ["cold-beam grid instability: species electrons, positrons: "

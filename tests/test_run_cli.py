@@ -50,14 +50,14 @@ def test_summary_contract_keys(small_run):
 
 def test_openpmd_validator_zero_errors_zero_warnings(small_run, capsys):
     check_h5 = pytest.importorskip("openpmd_validator.check_h5")
-    errors, warnings = check_h5.check_file(str(small_run / "fields.h5"))
+    errors, warnings = check_h5.check_file(str(small_run / io.FILES["fields"]))
     assert (errors, warnings) == (0, 0)
 
 
 def test_openpmd_fields_are_in_si_via_unitSI(small_run):
     """rho * unitSI integrates to zero net charge (neutral pair plasma); E unitSI = m_e c omega_p/e."""
     import scipy.constants as sc
-    with h5py.File(small_run / "fields.h5", "r") as f:
+    with h5py.File(small_run / io.FILES["fields"], "r") as f:
         it = sorted(f["data"], key=int)[0]
         e = f[f"data/{it}/meshes/E"]
         wp = 5.64e4 * 1e5  # NRL, rad/s

@@ -66,7 +66,7 @@ linspace = { start = 32, stop = 64, num = 3 }
     d = scan.points[5].deck
     assert d.units.density_cm3 == pytest.approx(1e10) and d.box.cells == 64
     zipped = write_scan(tmp_path, """
-mode = "zip"
+combine = "zip"
 [[axis]]
 key = "units.density_cm3"
 values = [1.0e9, 1.0e11]
@@ -121,7 +121,13 @@ def test_hash_ignores_folder_and_threads_only(tmp_path):
 
 
 @pytest.mark.parametrize("body, words", [
-    ('mode = "zipp"\n[[axis]]\nkey = "box.cells"\nvalues = [32]\n', ["mode", "zipp"]),
+    ('combine = "zipp"\n[[axis]]\nkey = "box.cells"\nvalues = [32]\n', ["combine", "zipp"]),
+    # renamed scan-file and deck keys name their new names
+    ('mode = "zip"\n[[axis]]\nkey = "box.cells"\nvalues = [32]\n', ["mode", "renamed; use combine"]),
+    ('[[axis]]\nkey = "output.modes"\nvalues = [4]\n',
+     ["output.modes", "renamed; use output.recorded_modes"]),
+    ('[[axis]]\nkey = "drive.frequency"\nvalues = [0.5]\n',
+     ["drive.frequency", "renamed; use drive.angular_frequency"]),
     ('bse = 1\n', ["bse", "did you mean 'base'"]),
     ('[[axis]]\nkey = "units.densty_cm3"\nvalues = [1.0]\n', ["densty_cm3", "density_cm3"]),
     ('[[axis]]\nkey = "species.ions.theta"\nvalues = [1.0]\n', ["no species named 'ions'"]),
@@ -131,7 +137,7 @@ def test_hash_ignores_folder_and_threads_only(tmp_path):
     ('[[axis]]\nkey = "output.folder"\nvalues = ["a"]\n', ["output.folder", "cannot be scanned"]),
     ('[[axis]]\nkey = "box.cells"\nvalue = [32]\n', ["value", "did you mean 'values'"]),
     ('[[axis]]\nkeys = ["box.cells", "time.end"]\nscale = [1.0]\nvalues = [32]\n', ["scale"]),
-    ('mode = "zip"\n[[axis]]\nkey = "box.cells"\nvalues = [32, 64]\n'
+    ('combine = "zip"\n[[axis]]\nkey = "box.cells"\nvalues = [32, 64]\n'
      '[[axis]]\nkey = "time.end"\nvalues = [10.0]\n', ["same number of values"]),
     ('[[axis]]\nkey = "box.cells"\nvalues = [32, 32]\n', ["same deck"]),
     ('[[axis]]\nkey = "box.cells"\nvalues = [1]\n', ["every run", "box.cells"]),

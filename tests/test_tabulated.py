@@ -16,22 +16,28 @@ from streamsim.theory.formulas import juttner_distribution, waterbag_edges
 from streamsim.theory.tabulated import penrose_verdict
 
 
+def _species(name, charge, density, distribution, drift_u=0.0, theta=0.0, spread_u=0.0,
+             table=None):
+    return Species(name=name, charge=charge, mass=1.0, density=density, drift_u=drift_u,
+                   theta=theta, distribution=distribution, spread_u=spread_u,
+                   particles_per_cell=16, loading="quiet", table=table)
+
+
 def juttner(name, charge, drift_u, theta, density=0.5):
-    return Species(name, charge, 1.0, density, drift_u, theta, "juttner", 0.0, 16, "quiet")
+    return _species(name, charge, density, "juttner", drift_u, theta)
 
 
 def waterbag(name, charge, drift_u, spread, density=0.5):
-    return Species(name, charge, 1.0, density, drift_u, 0.0, "waterbag", spread, 16, "quiet")
+    return _species(name, charge, density, "waterbag", drift_u, spread_u=spread)
 
 
 def cold(name, charge, drift_u, density=0.5):
-    return Species(name, charge, 1.0, density, drift_u, 0.0, "cold", 0.0, 16, "quiet")
+    return _species(name, charge, density, "cold", drift_u)
 
 
 def tabled(name, charge, u, f, density=0.5):
     t = table_from_arrays(u, f)
-    return Species(name, charge, 1.0, density, t.moments()[0], 0.0, "table", 0.0, 16, "quiet",
-                   table=t)
+    return _species(name, charge, density, "table", t.moments()[0], table=t)
 
 
 def juttner_rows(drift_u, theta, rows):

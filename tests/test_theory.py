@@ -317,8 +317,8 @@ def test_default_deck_to_dict_contract():
     for key in ("k", "growth", "omega_r", "growth_time_ns", "wavelength_cm"):
         assert isinstance(d["fastest"][key], float)
     assert len(d["unstable_band"]) == 2
-    assert len(d["box_modes"]) == deck.output.modes
-    assert [m["mode"] for m in d["box_modes"]] == list(range(1, deck.output.modes + 1))
+    assert len(d["box_modes"]) == deck.output.recorded_modes
+    assert [m["mode"] for m in d["box_modes"]] == list(range(1, deck.output.recorded_modes + 1))
     for m in d["box_modes"]:
         assert set(m) >= {"mode", "k", "growth", "omega_r"}
         assert m["k"] == pytest.approx(2 * math.pi * m["mode"] / deck.box.length)
@@ -352,7 +352,7 @@ def test_maxwellian_box_modes_give_landau_damping():
     vt = 0.01
     raw = {"title": "landau", "box": {"length": 2 * math.pi * vt / 0.4, "cells": 32},
            "species": [{"name": "e", "charge": -1.0, "density": 1.0, "theta": vt**2}],
-           "output": {"modes": 2}}
+           "output": {"recorded_modes": 2}}
     deck = load_deck(raw)
     d = theory.theory_for_deck(deck, model="maxwellian").to_dict()
     assert d["fastest"] is None and d["unstable_band"] is None

@@ -67,7 +67,7 @@ def test_pair_beams_deck_equals_default():
 
 def test_table_lists_every_growing_mode_from_m1():
     deck = load_deck(None)
-    n = growing_box_modes(deck.box.length, deck.output.modes)
+    n = growing_box_modes(deck.box.length, deck.output.recorded_modes)
     assert n <= MAX_ROWS
     proc = cli()
     assert proc.returncode == 0, proc.stderr
@@ -80,7 +80,7 @@ def test_table_lists_every_growing_mode_from_m1():
 def test_table_cap_says_what_is_cut_and_all_lists_every_mode():
     length = 50.0
     deck = load_deck(None, overrides=[f"box.length={length}"])
-    nmodes = deck.output.modes
+    nmodes = deck.output.recorded_modes
     n = growing_box_modes(length, nmodes)
     assert n > MAX_ROWS
     proc = cli("--set", f"box.length={length}")
@@ -148,7 +148,7 @@ def test_plot_arrays_weak_beam_keeps_the_growing_root_frequency():
 def test_plot_arrays_stable_deck_keeps_its_root():
     deck = load_deck({"title": "t", "box": {"length": 2 * math.pi, "cells": 32},
                       "species": [{"name": "e", "charge": -1.0, "density": 1.0}],
-                      "output": {"modes": 4}})
+                      "output": {"recorded_modes": 4}})
     a = plot_arrays(theory.theory_for_deck(deck))
     # cold plasma oscillation omega = omega_p at every k (Tonks & Langmuir, Phys. Rev. 33, 195
     # (1929)): nothing grows, so the one root is drawn everywhere

@@ -79,7 +79,7 @@ def plasma_deck(kl, *, amplitude, end, cells=64, momentum_cells=256, dt=0.05):
             "species": [{"name": "electrons", "charge": -1.0, "density": 1.0, "theta": THETA,
                          "distribution": "juttner"}],
             "perturbation": {"modes": [1], "amplitude": amplitude},
-            "output": {"diagnostics_interval": dt, "modes": 2, "fields_interval": end / 2,
+            "output": {"diagnostics_interval": dt, "recorded_modes": 2, "fields_interval": end / 2,
                        "phase_space_interval": end},
             "vlasov": {"momentum_cells": momentum_cells}}
 
@@ -93,7 +93,7 @@ def pair_deck(k, *, drift_u, theta, amplitude, end, cells=32, momentum_cells=256
             "box": {"length": 2 * math.pi / k, "cells": cells}, "time": {"dt": dt, "end": end},
             "species": species,
             "perturbation": {"modes": [1], "amplitude": amplitude, "species": ["electrons"]},
-            "output": {"diagnostics_interval": dt, "modes": 2, "fields_interval": end / 4,
+            "output": {"diagnostics_interval": dt, "recorded_modes": 2, "fields_interval": end / 4,
                        "phase_space_interval": end},
             "vlasov": {"momentum_cells": momentum_cells, "widen": widen}}
 
@@ -251,7 +251,7 @@ def small_run(tmp_path_factory):
 def test_run_writes_the_pic_files_and_the_f_meshes(small_run):
     from streamsim import io
     out, res, warnings = small_run
-    for name in ("deck.toml", "summary.json", "theory.json", "timeseries.h5", "fields.h5",
+    for name in ("deck.toml", "summary.json", "theory.json", "timeseries.h5", io.FILES["fields"],
                  "checkpoint.h5", io.CONTINUUM_FILE):
         assert (out / name).is_file(), name
     assert any("ignores species.electrons.particles_per_cell" in w for w in warnings)
@@ -260,16 +260,17 @@ def test_run_writes_the_pic_files_and_the_f_meshes(small_run):
     for key in ("growth", "contrast", "clumps", "coherence", "energy", "momentum", "vlasov"):
         assert key in s, key
     assert s["coherence"]["noise_floor"] == 0.0
-    dist = io.read_distributions(out / "fields.h5", ["electrons", "positrons"])
+    dist = io.read_distributions(out / io.FILES["fields"], ["electrons", "positrons"])
     assert dist["f"][0].shape == (4, 64, 32)                 # t = 0, 4, 8, 12
     du = dist["du"][0]
-    dens = io.read_openpmd_meshes(out / "fields.h5", ["electrons", "positrons"])[0].density
+    dens = io.read_openpmd_meshes(out / io.FILES["fields"], ["electrons", "positrons"])[0].density
     np.testing.assert_allclose(dist["f"][0].sum(axis=1) * du, dens[:, 0], rtol=1e-12)
 
 
 def test_fields_file_passes_the_openpmd_validator(small_run):
+    from streamsim import io
     check_h5 = pytest.importorskip("openpmd_validator.check_h5")
-    errors, warnings = check_h5.check_file(str(small_run[0] / "fields.h5"))
+    errors, warnings = check_h5.check_file(str(small_run[0] / io.FILES["fields"]))
     assert (errors, warnings) == (0, 0)
 
 

@@ -8,7 +8,8 @@ A block is one module in :mod:`streamsim.analysis.blocks` with
 
 A :class:`BlockResult` carries everything that leaves the block: its summary.json entries, its
 named tables (written as CSV and HDF5 by :mod:`streamsim.analysis.writers`), its figures (drawn
-from the tables and the summary entries, never recomputed) and its terminal lines. The package
+from the tables and the summary entries, never recomputed), its terminal lines and the typed
+values a later block reads (``values``; a later block never parses an earlier one's summary). The package
 loops over :data:`streamsim.analysis.registry.BLOCKS`; nothing else needs to know a block exists.
 """
 from __future__ import annotations
@@ -70,6 +71,9 @@ class BlockResult:
     figures: list[Figure] = field(default_factory=list)
     lines: list[str] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
+    #: typed values a later block reads from ``ctx.results[NAME].values`` (never written to a
+    #: file: what leaves the analysis is ``summary`` and ``tables``)
+    values: dict[str, Any] = field(default_factory=dict)
 
     def table(self, name: str) -> Table | None:
         return self.tables.get(name)

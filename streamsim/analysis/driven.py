@@ -1,6 +1,7 @@
 """Driven-state analysis: the flow's mean four-velocity from the recorded series, the energy
-balance of a driven run, the rate of E0 under charge starvation, and the coherence cutoff with
-the measured bulk Lorentz factor (``analysis.bulk_gamma = "measured"``).
+balance of a driven run, the rate of E0 under charge starvation, and the measured bulk Lorentz
+factor (:class:`BulkGamma`) that the coherence block takes as its Gamma when
+``analysis.bulk_gamma = "measured"``.
 
 Mean four-velocity of species s at t_n, from the standard series (time-centred sums of
 w m (gamma - 1) and w m u, total weight sum_j w_j = n_s L):
@@ -13,16 +14,14 @@ drift four-velocity of that frame is Gamma_s beta.
 """
 from __future__ import annotations
 
-import dataclasses
-import math
-import sys
+from dataclasses import dataclass
 
 import numpy as np
 
 from ..drive import bulk_lorentz_factor
 
 __all__ = ["mean_four_velocity", "bulk_gamma_at", "bulk_drift_u", "energy_balance",
-           "late_rate", "is_measured", "coherence_with_measured_gamma"]
+           "late_rate", "is_measured", "BulkGamma", "measured_bulk_gamma"]
 
 
 def mean_four_velocity(data) -> tuple[np.ndarray, np.ndarray]:
@@ -40,10 +39,7 @@ def bulk_drift_u(mean_gamma, mean_u):
 
 def bulk_gamma_at(data, t: float) -> dict[str, float]:
     """Bulk Lorentz factor of every species at time t (linear interpolation in the series)."""
-    g, u = mean_four_velocity(data)
-    G = np.atleast_2d(bulk_lorentz_factor(g, u))
-    tt = np.asarray(data.series.t, float)
-    return {n: float(np.interp(t, tt, G[:, i])) for i, n in enumerate(data.names)}
+    return measured_bulk_gamma(data).at(t)
 
 
 def energy_balance(series) -> tuple[np.ndarray, float | None]:
@@ -67,59 +63,36 @@ def late_rate(t, y, fraction: float = 0.25) -> float | None:
     return float(np.polyfit(t[-n:], y[-n:], 1)[0])
 
 
-# -- analysis.bulk_gamma = "measured" for the coherence block ----------------------------------
+# -- analysis.bulk_gamma = "measured": a typed input of the coherence block ---------------------
 def is_measured(options) -> bool:
     return getattr(options, "bulk_gamma", None) == "measured"
 
 
-def coherence_with_measured_gamma(ctx, compute):
-    """The coherence block's result with nu_c = Gamma_s c k_c / 2 pi for the measured bulk
-    Lorentz factor Gamma_s of each species at each snapshot's time. The block is computed with
-    Gamma = 1 (nu_c is linear in Gamma) and its frequencies rescaled; the headline Gamma is that
-    of the species that sets k_c at the snapshot used (the largest over the species when none
-    does), and the summary says so."""
-    from .base import Context
-    sub = Context(data=ctx.data, options=dataclasses.replace(ctx.options, bulk_gamma=1.0),
-                  max_particles=ctx.max_particles, results=ctx.results)
-    res = compute(sub)
-    data = ctx.data
-    for head in res.summary.values():
-        if not isinstance(head, dict):
-            continue
-        t = head.get("t")
-        if t is None:
-            head["bulk_gamma_source"] = "measured: no particle snapshot"
-            continue
-        gam = bulk_gamma_at(data, float(t))
-        for name, r in (head.get("by_species") or {}).items():
-            if isinstance(r, dict) and name in gam:
-                r["bulk_gamma"] = gam[name]
-                if r.get("frequency_cutoff_hz") is not None:
-                    r["frequency_cutoff_hz"] *= gam[name]
-        who = head.get("species")
-        G = gam[who] if who in gam else max(gam.values())
-        head["bulk_gamma"] = G
-        head["bulk_gamma_measured"] = gam
-        if head.get("frequency_cutoff_hz") is not None:
-            head["frequency_cutoff_hz"] *= G
-            head["frequency_cutoff_ghz"] = head["frequency_cutoff_hz"] / 1e9
-        end = head.get("end")
-        if isinstance(end, dict) and end.get("t") is not None:
-            ge = bulk_gamma_at(data, float(end["t"]))
-            end["bulk_gamma"] = ge.get(end.get("species"), max(ge.values()))
-            if end.get("frequency_cutoff_hz") is not None:
-                end["frequency_cutoff_hz"] *= end["bulk_gamma"]
-        head["bulk_gamma_source"] = (
-            "measured: bulk Lorentz factor of " + (f"species {who}, which sets k_c," if who in gam
-                                                   else "the species with the largest one")
-            + f" at t = {float(t):.4g}/omega_p (snapshot {head.get('snapshot')}), from the mean "
-            f"four-velocity Gamma = <gamma>/sqrt(<gamma>^2 - <u>^2)")
-    mod = sys.modules.get(getattr(compute, "__module__", ""))
-    for head in res.summary.values():
-        if isinstance(head, dict) and "bulk_gamma_source" in head:
-            if mod is not None and hasattr(mod, "_lines"):
-                res.lines = list(mod._lines(head))
-            res.lines.append(f"  bulk Gamma = {head['bulk_gamma']:.4g} {head['bulk_gamma_source']}"
-                             if math.isfinite(head.get("bulk_gamma", math.nan))
-                             else f"  {head['bulk_gamma_source']}")
-    return res
+@dataclass(frozen=True)
+class BulkGamma:
+    """The measured bulk Lorentz factor Gamma_s(t) of every species over the run (from the mean
+    four-velocity, module docstring), for nu_c = Gamma c k_c / 2 pi of the coherence block."""
+    t: np.ndarray               # (n,) the series times, 1/omega_p
+    names: tuple[str, ...]
+    gamma: np.ndarray           # (n, S)
+
+    def at(self, t: float) -> dict[str, float]:
+        """Gamma of every species at time t (linear interpolation in the series)."""
+        return {n: float(np.interp(t, self.t, self.gamma[:, i]))
+                for i, n in enumerate(self.names)}
+
+    @staticmethod
+    def source(who: str | None, t: float, snapshot: str | None) -> str:
+        """What the headline Gamma is, for the summary (``bulk_gamma_source``)."""
+        return ("measured: bulk Lorentz factor of "
+                + (f"species {who}, which sets k_c," if who is not None
+                   else "the species with the largest one")
+                + f" at t = {float(t):.4g}/omega_p (snapshot {snapshot}), from the mean "
+                "four-velocity Gamma = <gamma>/sqrt(<gamma>^2 - <u>^2)")
+
+
+def measured_bulk_gamma(data) -> BulkGamma:
+    """The :class:`BulkGamma` of a run's recorded series."""
+    g, u = mean_four_velocity(data)
+    return BulkGamma(t=np.asarray(data.series.t, float), names=tuple(data.names),
+                     gamma=np.atleast_2d(bulk_lorentz_factor(g, u)))

@@ -3,13 +3,15 @@ from ``ctx.results``). Adding a block: one module in :mod:`streamsim.analysis.bl
 line here."""
 from __future__ import annotations
 
-from .blocks import clumps, coherence, contrast, drive, growth, oscillation, phase_space
+from .blocks import bulk_gamma, clumps, coherence, contrast, drive, growth, oscillation, \
+    phase_space
 
 BLOCKS = (
     growth,
     oscillation,
     contrast,
     clumps,
+    bulk_gamma,
     coherence,
     phase_space,
     drive,

@@ -1,9 +1,11 @@
 """`streamsim` command line: a thin layer over the Python API.
 
 Each subcommand lives in its own module ``streamsim.cli.<name>`` exposing
-``HELP`` (one line), ``add_arguments(parser)`` and ``main(args) -> int`` (the exit status).
-Exit statuses: 0 ok, 1 a check failed (validate), 2 bad input (deck, scan file, arguments),
-3 the run stopped on numerical trouble, 4 an output/IO error, 130 interrupted.
+``HELP`` (one line), ``add_arguments(parser)`` and ``main(args) -> int`` (0, or 1 when a
+validation check failed). Every other outcome is an exception that :func:`main` maps to its one
+line and exit status through the one table ``streamsim.cli.common.EXIT_STATUSES``: 2 bad input
+(deck, scan file, arguments, run folder), 3 the run stopped on numerical trouble, 4 an
+output/IO error, 130 interrupted.
 """
 from __future__ import annotations
 
@@ -51,23 +53,11 @@ def main(argv: list[str] | None = None) -> int:
     if not getattr(args, "_main", None):
         parser.print_help()
         return 2
+    from streamsim.cli.common import report
     try:
         return int(args._main(args) or 0)
-    except KeyboardInterrupt:
-        print("interrupted", file=sys.stderr)
-        return 130
-    except BrokenPipeError:
-        return 0
-    except MemoryError:
-        print("streamsim: out of memory: use fewer particles_per_cell or cells", file=sys.stderr)
-        return 4
-    except Exception as ex:  # noqa: BLE001 - no traceback for users; STREAMSIM_DEBUG=1 shows it
-        import os
-        if os.environ.get("STREAMSIM_DEBUG"):
-            raise
-        print(f"streamsim: internal error ({ex.__class__.__name__}: {ex}); please report it, "
-              f"and rerun with STREAMSIM_DEBUG=1 for the traceback", file=sys.stderr)
-        return 1
+    except (Exception, KeyboardInterrupt) as ex:  # noqa: BLE001 - one line, one status each
+        return report(ex, args)
 
 
 if __name__ == "__main__":

@@ -4,7 +4,7 @@ from __future__ import annotations
 import json
 import sys
 
-from streamsim.cli.common import error, output_failure, read_run_folder
+from streamsim.cli.common import ArgumentError, read_run_folder
 
 HELP = "analyse a run folder again: growth fits, density contrast, clumps, coherence cutoff"
 
@@ -41,8 +41,6 @@ def main(args) -> int:
     from streamsim import analysis, io
     from streamsim.deck import DeckError
     folder, data = read_run_folder(args.run_dir)
-    if data is None:
-        return 2
     try:   # the flags are checked by the deck's own key table (one line, as for a deck)
         options = analysis.options_for(data.deck, bulk_gamma=args.bulk_gamma,
                                        clump_threshold=args.clump_threshold,
@@ -50,15 +48,11 @@ def main(args) -> int:
     except DeckError as ex:
         flag = {"analysis.bulk_gamma": "--bulk-gamma", "analysis.clump_threshold":
                 "--clump-threshold", "analysis.coherence_drop": "--coherence-drop"}
-        error("argument", str(ex).replace(ex.key, flag.get(ex.key, ex.key), 1))
-        return 2
-    try:
-        results = analysis.compute(data, options)
-        entries = analysis.summary_entries(results, options)
-        analysis.write_outputs(results, data, folder, figures=not args.no_figures)
-        io.update_summary(folder, entries)
-    except OSError as ex:
-        return output_failure(ex, folder)
+        raise ArgumentError("", str(ex).replace(ex.key, flag.get(ex.key, ex.key), 1)) from None
+    results = analysis.compute(data, options)
+    entries = analysis.summary_entries(results, options)
+    analysis.write_outputs(results, data, folder, figures=not args.no_figures)
+    io.update_summary(folder, entries)
     if args.json:
         json.dump(entries, sys.stdout, indent=2, allow_nan=False)
         sys.stdout.write("\n")

@@ -34,16 +34,15 @@ def add_arguments(p) -> None:
 
 def main(args) -> int:
     from streamsim import bench
-    from streamsim.cli.common import error
+    from streamsim.cli.common import ArgumentError
     import numba
     particles = args.particles or list(bench.DEFAULT_PARTICLES)
     threads = args.threads
     if threads is not None and any(t < 1 or t > numba.config.NUMBA_NUM_THREADS for t in threads):
-        error("arguments", f"--threads must be between 1 and {numba.config.NUMBA_NUM_THREADS}")
-        return 2
+        raise ArgumentError("", f"--threads must be between 1 and "
+                            f"{numba.config.NUMBA_NUM_THREADS}")
     if args.steps < 1 or args.repeats < 1 or args.whole_run_repeats < 1:
-        error("arguments", "--steps, --repeats and --whole-run-repeats must be >= 1")
-        return 2
+        raise ArgumentError("", "--steps, --repeats and --whole-run-repeats must be >= 1")
 
     def progress(row):
         if not args.json:

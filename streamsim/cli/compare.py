@@ -2,9 +2,8 @@
 from __future__ import annotations
 
 import json
-import sys
 
-from streamsim.cli.common import error, warn
+from streamsim.cli.common import ArgumentError, warn
 
 HELP = ("run a deck with method = \"pic\" and method = \"vlasov\" and compare the nonlinear "
         "outputs side by side (compare.json, overlaid figures)")
@@ -27,27 +26,11 @@ def add_arguments(p) -> None:
 
 def main(args) -> int:
     from streamsim import io
-    from streamsim.deck import DeckError
-    from streamsim.pipeline import Interrupted, NumericalError
     from streamsim.vlasov.compare import FILE, compare
     if args.threads is not None and args.threads < 0:
-        error("argument", f"--threads must be >= 0 (0 = all cores), got {args.threads}")
-        return 2
-    try:
-        c = compare(args.deck, out=args.out, overrides=args.overrides, threads=args.threads,
-                    quiet=True, warn=warn, force=args.force)
-    except DeckError as ex:
-        error("deck", str(ex))
-        return 2
-    except NumericalError as ex:
-        error("numerical", str(ex))
-        return 3
-    except Interrupted as ex:
-        print(f"interrupted: {ex}", file=sys.stderr)
-        return 130
-    except io.OutputError as ex:
-        error("output", str(ex))
-        return 4
+        raise ArgumentError("", f"--threads must be >= 0 (0 = all cores), got {args.threads}")
+    c = compare(args.deck, out=args.out, overrides=args.overrides, threads=args.threads,
+                quiet=True, warn=warn, force=args.force)
     if args.json:
         print(json.dumps(io.jsonable(c.contract()), indent=2, allow_nan=False))
     else:

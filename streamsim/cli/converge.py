@@ -3,10 +3,9 @@
 from __future__ import annotations
 
 import json
-import sys
 from pathlib import Path
 
-from streamsim.cli.common import add_executor_arguments, error, run_scan_or_exit, warn
+from streamsim.cli.common import ArgumentError, add_executor_arguments, warn
 
 HELP = ("resolution study: the deck at several levels of cells and particles per cell, with the "
         "change, observed order, Richardson estimate and a verdict for each headline output")
@@ -33,57 +32,41 @@ def add_arguments(p) -> None:
 
 
 def main(args) -> int:
-    from streamsim import io
-    from streamsim.deck import DeckError
-    from streamsim.scan import ScanError
+    from streamsim.pipeline import Interrupted
+    from streamsim.scan import SchedulerError, run_scan
     from streamsim.scan import converge as cv
     if not 0 < args.tolerance < 1:
-        error("argument", f"--tolerance {args.tolerance:g}: must be in (0, 1)")
-        return 2
-    try:
-        scan, deck, levels, reps = cv.build_study(args.deck, factor=args.factor,
-                                                  levels=args.levels, replicas=args.replicas,
-                                                  overrides=args.overrides)
-    except DeckError as ex:
-        error("deck", str(ex))
-        return 2
-    except ScanError as ex:
-        error("argument", str(ex))
-        return 2
+        raise ArgumentError("", f"--tolerance {args.tolerance:g}: must be in (0, 1)")
+    scan, deck, levels, reps = cv.build_study(args.deck, factor=args.factor,
+                                              levels=args.levels, replicas=args.replicas,
+                                              overrides=args.overrides)
     if args.replicas and args.replicas > 1 and reps == 1:
         warn("every species has quiet loading and the phases are not random, so replicas "
              "would be the same run; running 1 per level")
     stem = Path(args.deck).stem if args.deck else "default"
     out = Path(args.out or Path("runs") / "out" / f"converge-{stem}")
     old = cv.read_manifest_scan(out)
+    if old is not None and "mode" in old:   # a study written before the scan key was renamed
+        old["combine"] = old.pop("mode")
     if old is not None and old != scan.to_dict():
-        error("argument", f"{out} holds another study or scan; choose another --out")
-        return 2
-    res, rc = run_scan_or_exit(scan=scan, out=out, workers=args.workers,
-                               scheduler=args.scheduler, local_cluster=args.local_cluster,
-                               resume=True, progress=None if not args.quiet else False,
-                               quiet=args.quiet, figures=False)
-    if res is None:
-        return rc
+        raise ArgumentError("", f"{out} holds another study or scan; choose another --out")
+    res = run_scan(scan=scan, out=out, workers=args.workers, scheduler=args.scheduler,
+                   local_cluster=args.local_cluster, resume=True,
+                   progress=None if not args.quiet else False, quiet=args.quiet, figures=False)
     for w in res.warnings:
         warn(w)
     study = cv.collect_study(scan, out, levels, args.factor, reps, args.tolerance)
-    try:
-        cv.write_study(study, out)
-    except io.OutputError as ex:
-        error("output", str(ex))
-        return 4
+    cv.write_study(study, out)
     if args.json:
+        from streamsim import io
         print(json.dumps(io.jsonable(study), indent=2, allow_nan=False))
     elif not args.quiet:
         print(table(study, res, out))
     if res.interrupted:
-        print(f"interrupted; continue with the same command (resumes {out})", file=sys.stderr)
-        return 130
+        raise Interrupted(f"continue with the same command (resumes {out})")
     if res.lost:
-        error("dask", f"lost the scheduler with {res.lost} run(s) left; run the same command "
-                      "again to continue")
-        return 4
+        raise SchedulerError(f"lost the scheduler with {res.lost} run(s) left; run the same "
+                             "command again to continue")
     return 0
 
 

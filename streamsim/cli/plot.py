@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import json
 
-from streamsim.cli.common import output_failure, read_run_folder
+from streamsim.cli.common import read_run_folder
 
 HELP = "redraw the figures of a run folder into RUN_DIR/figures/"
 
@@ -31,13 +31,7 @@ def main(args) -> int:
     from streamsim import analysis
     from streamsim.plots import draw_figures
     folder, data = read_run_folder(args.run_dir)
-    if data is None:
-        return 2
-    try:
-        results = analysis.compute(data, _last_options(folder, data))
-        paths = draw_figures(results, data, folder)
-    except OSError as ex:
-        return output_failure(ex, folder)
-    for p in paths:
+    results = analysis.compute(data, _last_options(folder, data))
+    for p in draw_figures(results, data, folder):
         print(p)
     return 0

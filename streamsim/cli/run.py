@@ -2,12 +2,10 @@
 [--replicas R [--workers N] [--scheduler ADDRESS | --local-cluster]]`."""
 from __future__ import annotations
 
-import sys
 from pathlib import Path
 
-from streamsim.cli.common import (add_deck_arguments, add_executor_arguments, error,
-                                  run_scan_or_exit, warn)
-from streamsim.deck import DeckError, load_deck
+from streamsim.cli.common import ArgumentError, add_deck_arguments, add_executor_arguments, warn
+from streamsim.deck import load_deck
 
 HELP = "run a deck (none: the built-in symmetric pair-beam demo) and analyse it"
 
@@ -20,8 +18,10 @@ def add_arguments(p) -> None:
                    help="no progress bar and no summary (warnings and refusals still go to "
                         "stderr)")
     p.add_argument("--resume", nargs="?", const=True, default=None, metavar="RUN_DIR",
-                   help="continue an interrupted run from its checkpoint (RUN_DIR, else --out, "
-                        "else the deck's folder; with no DECK the run folder's deck.toml is used)")
+                   help="continue an interrupted run from its checkpoint, or extend a run to a "
+                        "later end with --set time.end=T, keeping its cadences (RUN_DIR, else "
+                        "--out, else the deck's folder; with no DECK the run folder's deck.toml "
+                        "is used)")
     p.add_argument("--threads", type=int, default=None, metavar="T",
                    help="numba threads (default: the deck's output.threads, 0 = all cores)")
     p.add_argument("--no-analysis", action="store_true", help="write the raw outputs only")
@@ -41,50 +41,31 @@ def add_arguments(p) -> None:
 def main(args) -> int:
     from streamsim import io
     if args.threads is not None and args.threads < 0:
-        error("argument", f"--threads must be >= 0 (0 = all cores), got {args.threads}")
-        return 2
+        raise ArgumentError("", f"--threads must be >= 0 (0 = all cores), got {args.threads}")
     folder = args.out
     deck_src = args.deck
     if isinstance(args.resume, str):
         folder = args.resume
         if not (Path(folder) / io.FILES["checkpoint"]).is_file():
-            error("output", f"nothing to resume: {folder} holds no {io.FILES['checkpoint']}")
-            return 4
+            raise io.OutputError(f"nothing to resume: {folder} holds no "
+                                 f"{io.FILES['checkpoint']}")
         if deck_src is None:
             deck_src = str(Path(args.resume) / io.FILES["deck"])
-    try:
-        deck = load_deck(deck_src, args.overrides)
-    except DeckError as ex:
-        error("deck", str(ex))
-        return 2
+    deck = load_deck(deck_src, args.overrides)
     if args.replicas is not None:
         return _replicas(args, deck, deck_src)
     for flag, given in (("--workers", args.workers is not None), ("--scheduler", args.scheduler),
                         ("--local-cluster", args.local_cluster)):
         if given:
-            error("argument", f"{flag} places the runs of --replicas R; a single run uses "
-                              "--threads")
-            return 2
+            raise ArgumentError("", f"{flag} places the runs of --replicas R; a single run "
+                                "uses --threads")
     if args.resume and folder is None:
         folder = deck.output.folder
-    from streamsim.pipeline import Interrupted, NumericalError, run
-    try:
-        result = run(deck, out=folder, quiet=args.quiet, resume=bool(args.resume),
-                     analyze=not args.no_analysis, threads=args.threads, force=args.force,
-                     figures=not args.no_figures, warn=warn)
-    except DeckError as ex:
-        error("deck", str(ex))
-        return 2
-    except NumericalError as ex:
-        error("numerical", f"{ex}; the last good checkpoint (if any) and the diagnostics so far "
-                           f"are in {folder or deck.output.folder}")
-        return 3
-    except Interrupted as ex:
-        print(f"interrupted: {ex}", file=sys.stderr)
-        return 130
-    except io.OutputError as ex:
-        error("output", str(ex))
-        return 4
+    from streamsim.pipeline import run
+    args.run_folder = folder or deck.output.folder   # named by a numerical error
+    result = run(deck, out=folder, quiet=args.quiet, resume=bool(args.resume),
+                 analyze=not args.no_analysis, threads=args.threads, force=args.force,
+                 figures=not args.no_figures, warn=warn)
     if not args.quiet:
         _print_summary(result)
     return 0
@@ -93,18 +74,14 @@ def main(args) -> int:
 def _replicas(args, deck, deck_src) -> int:
     from streamsim.scan.replicas import run_replicas
     if args.replicas < 2:
-        error("argument", f"--replicas must be >= 2 for an error bar, got {args.replicas}")
-        return 2
+        raise ArgumentError("", f"--replicas must be >= 2 for an error bar, got {args.replicas}")
     if isinstance(args.resume, str):
-        error("argument", "--replicas continues its folder with --resume (no RUN_DIR)")
-        return 2
+        raise ArgumentError("", "--replicas continues its folder with --resume (no RUN_DIR)")
     out = args.out or f"{deck.output.folder}-replicas"
-    res, rc = run_scan_or_exit(run_replicas, deck_src=deck_src, overrides=args.overrides,
-                               replicas=args.replicas, out=out, threads=args.threads,
-                               quiet=args.quiet, resume=bool(args.resume), workers=args.workers,
-                               scheduler=args.scheduler, local_cluster=args.local_cluster)
-    if res is None:
-        return rc
+    res = run_replicas(deck_src=deck_src, overrides=args.overrides, replicas=args.replicas,
+                       out=out, threads=args.threads, quiet=args.quiet,
+                       resume=bool(args.resume), workers=args.workers,
+                       scheduler=args.scheduler, local_cluster=args.local_cluster)
     for w in res.warnings:
         warn(w)
     if not args.quiet:

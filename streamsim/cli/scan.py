@@ -2,9 +2,7 @@
 [--scheduler tcp://HOST:PORT | --local-cluster] [--resume] [--retry-failed] [--set k=v ...]`."""
 from __future__ import annotations
 
-import sys
-
-from streamsim.cli.common import add_executor_arguments, error, run_scan_or_exit, warn
+from streamsim.cli.common import ArgumentError, add_executor_arguments, warn
 
 HELP = "run a parameter scan (a base deck over axes of deck keys) locally or on Dask"
 
@@ -29,36 +27,29 @@ def add_arguments(p) -> None:
 
 
 def main(args) -> int:
-    from streamsim.scan import ScanError, default_out, load_scan
+    from streamsim.scan import SchedulerError, default_out, load_scan, run_scan
     if args.retry_failed and not args.resume:
-        error("argument", "--retry-failed needs --resume")
-        return 2
-    try:
-        scan = load_scan(args.scan, args.overrides)
-    except ScanError as ex:
-        error("scan", str(ex))
-        return 2
+        raise ArgumentError("", "--retry-failed needs --resume")
+    scan = load_scan(args.scan, args.overrides)
     for w in scan.warnings:
         warn(w)
     out = args.out or str(default_out(scan))
-    res, rc = run_scan_or_exit(scan=scan, out=out, workers=args.workers, threads=args.threads,
-                               scheduler=args.scheduler, local_cluster=args.local_cluster,
-                               resume=args.resume, retry_failed=args.retry_failed,
-                               progress=None if not args.quiet else False, quiet=args.quiet,
-                               figures=not args.no_figures)
-    if res is None:
-        return rc
+    res = run_scan(scan=scan, out=out, workers=args.workers, threads=args.threads,
+                   scheduler=args.scheduler, local_cluster=args.local_cluster,
+                   resume=args.resume, retry_failed=args.retry_failed,
+                   progress=None if not args.quiet else False, quiet=args.quiet,
+                   figures=not args.no_figures)
     for w in res.warnings[len(scan.warnings):]:
         warn(w)
     if not args.quiet:
         _print_summary(scan, res)
     if res.interrupted:
-        print(f"interrupted: {res.completed + res.failed} of {len(res.rows)} runs done; continue "
-              f"with: streamsim scan {args.scan} --out {out} --resume", file=sys.stderr)
-        return 130
+        from streamsim.pipeline import Interrupted
+        raise Interrupted(f"{res.completed + res.failed} of {len(res.rows)} runs done; continue "
+                          f"with: streamsim scan {args.scan} --out {out} --resume")
     if res.lost:
-        error("dask", f"lost the scheduler with {res.lost} run(s) left; continue with --resume")
-        return 4
+        raise SchedulerError(f"lost the scheduler with {res.lost} run(s) left; continue with "
+                             "--resume")
     return 0
 
 

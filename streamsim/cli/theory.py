@@ -5,7 +5,7 @@ import json
 import math
 import sys
 
-from streamsim.cli.common import add_deck_arguments, deck_from_args, error
+from streamsim.cli.common import ArgumentError, TheoryFailure, add_deck_arguments, deck_from_args
 
 HELP = "linear theory of a deck: growth rate gamma(k), fastest mode, unstable band, box modes"
 
@@ -218,29 +218,24 @@ def _plot(disp, path: str, title: str) -> None:
 
 def main(args) -> int:
     deck = deck_from_args(args)
-    if deck is None:
-        return 2
     if args.kmax is not None and not (math.isfinite(args.kmax) and args.kmax > 0):
-        error("argument", f"--kmax must be a finite number > 0 (got {args.kmax:g})")
-        return 2
+        raise ArgumentError("", f"--kmax must be a finite number > 0 (got {args.kmax:g})")
     if args.nk < 8:
-        error("argument", f"--nk must be at least 8 (got {args.nk})")
-        return 2
+        raise ArgumentError("", f"--nk must be at least 8 (got {args.nk})")
     from streamsim import theory
     try:
         disp = theory.theory_for_deck(deck, model=args.model, kmax=args.kmax, nk=args.nk)
     except (ValueError, ArithmeticError) as ex:
-        error("theory", str(ex))
-        return 2
+        raise TheoryFailure("", str(ex)) from None
     d = disp.to_dict()
     if args.plot:
         try:
             _plot(disp, args.plot, deck.title)
         except OSError as ex:
             from streamsim.io import OutputError
-            error("output", str(ex) if isinstance(ex, OutputError)
-                  else f"cannot write {args.plot}: {ex.strerror or ex}")
-            return 4
+            if isinstance(ex, OutputError):
+                raise
+            raise OutputError(f"cannot write {args.plot}: {ex.strerror or ex}") from None
     if args.json:
         print(json.dumps(d, allow_nan=False))
     else:

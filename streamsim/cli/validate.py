@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import sys
 
-from streamsim.cli.common import error
+from streamsim.cli.common import ArgumentError
 
 HELP = ("run the validation problems against published references, print the table, write a "
         "report; exit 1 if any check fails")
@@ -35,8 +35,8 @@ def main(args) -> int:
         return 0
     unknown = [k for k in args.only if k not in PROBLEM_KEYS]
     if unknown:
-        error("argument", f"unknown problem {', '.join(unknown)}; known: {', '.join(PROBLEM_KEYS)}")
-        return 2
+        raise ArgumentError("", f"unknown problem {', '.join(unknown)}; known: "
+                            f"{', '.join(PROBLEM_KEYS)}")
     say = lambda msg: print(msg, file=sys.stderr, flush=True)  # noqa: E731
     say(f"streamsim validate --{args.level}: {len(args.only) or len(PROBLEMS)} problems")
     v = run_validation(args.level, problems=args.only or None, progress=say)
@@ -48,8 +48,8 @@ def main(args) -> int:
     try:
         path = v.write_report(args.report)
     except OSError as ex:
-        error("output", f"cannot write the report into {args.report}: {ex}")
-        return 4
+        from streamsim.io import OutputError
+        raise OutputError(f"cannot write the report into {args.report}: {ex}") from None
     print(f"report: {path}")
     sys.stdout.flush()
     return 0 if v.passed else 1

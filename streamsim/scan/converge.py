@@ -115,7 +115,7 @@ def build_study(deck_path, *, factor: float = 2.0, levels: int = 3, replicas: in
                      "values": [v["particles_per_cell"][s.name] for v in lev]})
     if not deck.time.dt_auto:
         axes.append({"name": "dt", "key": "time.dt", "values": [v["dt"] for v in lev]})
-    raw = {"title": title or f"resolution study of {deck.title}", "mode": "zip",
+    raw = {"title": title or f"resolution study of {deck.title}", "combine": "zip",
            "replicas": max(reps, 1), "set": list(overrides or []), "axis": axes}
     if reps < 2:
         raw["replicas"] = 1

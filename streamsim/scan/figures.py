@@ -203,7 +203,7 @@ def make_figures(scan, rows: list[dict], folder) -> list[Path]:
             continue
         written.append(_growth_vs_axis(scan, rows, i, folder))
         written.append(_nu_c_vs_axis(scan, rows, i, folder))
-    if len(scan.axes) == 2 and scan.mode == "product":
+    if len(scan.axes) == 2 and scan.combine == "product":
         m = _map(scan, rows, folder)
         if m is not None:
             written.append(m)

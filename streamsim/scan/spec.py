@@ -6,7 +6,7 @@ A scan file is TOML::
     base = "pair-beams.toml"            # deck path, relative to the scan file (or absolute);
                                         # omitted: the built-in default deck
     set = ["time.end=30.0"]             # optional --set overrides applied to the base first
-    mode = "product"                    # or "zip" (all axes the same length, walked together)
+    combine = "product"                 # or "zip" (all axes the same length, walked together)
     replicas = 1                        # runs per point, random_seed = seed + replica index
     run_figures = false                 # also draw each run's own figures (slower)
 
@@ -98,7 +98,9 @@ METRICS = {k: (unit, meaning) for k, (unit, meaning, _) in METRIC_PATHS.items()}
 #: every column name an axis may not take
 RESERVED_COLUMNS = frozenset(RUN_COLUMNS) | frozenset(METRICS) | {"error_kind"}
 
-_TOP_KEYS = ("title", "description", "base", "set", "mode", "replicas", "run_figures", "axis")
+_TOP_KEYS = ("title", "description", "base", "set", "combine", "replicas", "run_figures", "axis")
+#: scan-file keys of earlier versions -> their new names (a one-line "renamed; use ..." error)
+RENAMED_SCAN_KEYS = {"mode": "combine"}
 _AXIS_KEYS = ("name", "key", "keys", "scale", "values", "linspace", "logspace")
 _SPACE_KEYS = ("start", "stop", "num")
 MAX_POINTS = 100_000
@@ -168,7 +170,7 @@ class Scan:
     description: str
     base: Path | None
     base_set: tuple[str, ...]
-    mode: str
+    combine: str                   # "product" | "zip": how the axes combine
     replicas: int
     run_figures: bool
     axes: tuple[Axis, ...]
@@ -176,10 +178,11 @@ class Scan:
     text: str = ""                 # the scan file as written
     warnings: list[str] = field(default_factory=list)
 
+
     @property
     def shape(self) -> tuple[int, ...]:
         """Number of values per axis (product) or (n,) (zip)."""
-        if self.mode == "zip":
+        if self.combine == "zip":
             return (len(self.axes[0].values),) if self.axes else ()
         return tuple(len(a.values) for a in self.axes)
 
@@ -187,7 +190,7 @@ class Scan:
         return {"title": self.title, "description": self.description,
                 "scan_file": str(self.path) if self.path else None,
                 "base": str(self.base) if self.base else None, "set": list(self.base_set),
-                "mode": self.mode, "replicas": self.replicas, "run_figures": self.run_figures,
+                "combine": self.combine, "replicas": self.replicas, "run_figures": self.run_figures,
                 "axes": [{"name": a.name, "keys": list(a.keys), "scale": list(a.scale),
                           "values": list(a.values), "spacing": a.spacing} for a in self.axes]}
 
@@ -399,6 +402,8 @@ def load_scan(source: str | Path | dict, overrides: list[str] | None = None, *,
 
 def _validate(raw: dict, path, here: Path, text: str, cli_set: list[str], resolve: bool) -> Scan:
     for k in raw:
+        if k in RENAMED_SCAN_KEYS:
+            raise ScanError(k, f"renamed; use {RENAMED_SCAN_KEYS[k]}", raw[k])
         if k not in _TOP_KEYS:
             hint = " (axes are written [[axis]])" if k in ("axes", "axis_") else ""
             if "species" in raw or "box" in raw:
@@ -410,9 +415,9 @@ def _validate(raw: dict, path, here: Path, text: str, cli_set: list[str], resolv
     description = raw.get("description", "")
     if not isinstance(description, str):
         raise ScanError("description", "must be a string")
-    mode = raw.get("mode", "product")
-    if mode not in ("product", "zip"):
-        raise ScanError("mode", "must be \"product\" or \"zip\"", mode)
+    combine = raw.get("combine", "product")
+    if combine not in ("product", "zip"):
+        raise ScanError("combine", "must be \"product\" or \"zip\"", combine)
     replicas = raw.get("replicas", 1)
     if isinstance(replicas, bool) or not isinstance(replicas, int) or not 1 <= replicas <= 10_000:
         raise ScanError("replicas", "must be an integer from 1 to 10000", replicas)
@@ -477,18 +482,18 @@ def _validate(raw: dict, path, here: Path, text: str, cli_set: list[str], resolv
                     raise ScanError(f"axis[{i}]", f"the key {k} says what {other} of "
                                                   f"axis[{seen[other]}] says; scan one of them")
             seen[k] = i
-    if mode == "zip" and axes:
+    if combine == "zip" and axes:
         lens = {len(a.values) for a in axes}
         if len(lens) > 1:
-            raise ScanError("mode", "= \"zip\" walks the axes together, so they need the same "
+            raise ScanError("combine", "= \"zip\" walks the axes together, so they need the same "
                                     "number of values; they have " +
                             ", ".join(f"{a.name}: {len(a.values)}" for a in axes))
-    n_comb = (len(axes[0].values) if mode == "zip" else math.prod(len(a.values) for a in axes)) \
+    n_comb = (len(axes[0].values) if combine == "zip" else math.prod(len(a.values) for a in axes)) \
         if axes else 1
     if n_comb * replicas > MAX_POINTS:
         raise ScanError("axis", f"{n_comb * replicas} runs is more than {MAX_POINTS}; split the scan")
     scan = Scan(path=path, title=title.strip(), description=description, base=base_path,
-                base_set=tuple(base_set) + tuple(cli_set), mode=mode, replicas=replicas,
+                base_set=tuple(base_set) + tuple(cli_set), combine=combine, replicas=replicas,
                 run_figures=run_figures, axes=axes, text=text)
     if resolve:
         scan.points = _expand(scan, base_raw)
@@ -498,7 +503,7 @@ def _validate(raw: dict, path, here: Path, text: str, cli_set: list[str], resolv
 def _combinations(scan: Scan):
     if not scan.axes:
         yield ()
-    elif scan.mode == "zip":
+    elif scan.combine == "zip":
         for i in range(len(scan.axes[0].values)):
             yield tuple(i for _ in scan.axes)
     else:
@@ -506,7 +511,7 @@ def _combinations(scan: Scan):
 
 
 def _expand(scan: Scan, base_raw: dict) -> list[Point]:
-    default_seed = _deck._TOP["random_seed"].default
+    default_seed = _deck.TOP["random_seed"].default
     points: list[Point] = []
     by_hash: dict[str, int] = {}
     for p, idx in enumerate(_combinations(scan)):

@@ -138,7 +138,7 @@ def _write_h5(scan: Scan, path: Path, rows: list[dict], cols: list[str]) -> None
                               "/axes the scanned values; /grid the metrics on the axis grid "
                               "(product scans), shape (axis lengths..., replicas)")
         f.attrs["title"] = scan.title
-        f.attrs["mode"] = scan.mode
+        f.attrs["combine"] = scan.combine
         f.attrs["replicas"] = scan.replicas
         f.attrs["streamsim_version"] = __version__
         f.attrs["scan"] = json.dumps(scan.to_dict(), default=str)
@@ -157,7 +157,7 @@ def _write_h5(scan: Scan, path: Path, rows: list[dict], cols: list[str]) -> None
             d.attrs["scale"] = np.array(a.scale, dtype=np.float64)
             d.attrs["spacing"] = a.spacing
             d.attrs["order"] = i
-        if scan.mode == "product" and scan.axes:
+        if scan.combine == "product" and scan.axes:
             shape = scan.shape + (scan.replicas,)
             grid = f.create_group("grid")
             grid.attrs["dims"] = json.dumps([a.name for a in scan.axes] + ["replica"])

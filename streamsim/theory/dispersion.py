@@ -197,7 +197,7 @@ def _time_from_efoldings(efoldings, growth: float) -> float | None:
 def theory_for_deck(deck, model: str | None = None, kmax: float | None = None,
                     nk: int = 400) -> Dispersion:
     """Linear theory for a deck: growth curve on nk points in (0, kmax], fastest mode, unstable
-    band and the box modes k_m = 2 pi m / L, m = 1..deck.output.modes.
+    band and the box modes k_m = 2 pi m / L, m = 1..deck.output.recorded_modes.
 
     ``model`` defaults to :func:`model_for_species`; ``kmax`` (omega_p/c) to 1.5 x the top of the
     cold unstable band.

@@ -3,9 +3,10 @@
 f_s(x, u) of every species on a periodic-x x bounded-u grid, stepped by Strang splitting of the
 1D1V relativistic Vlasov-Poisson system (Cheng & Knorr 1976, J. Comput. Phys. 22, 330) with the
 positive, flux-conservative advection of Filbet, Sonnendrucker & Bertrand 2001 (J. Comput. Phys.
-172, 166). :func:`streamsim.pipeline.run` chooses :class:`VlasovSimulation` when the deck's
-``method`` is ``"vlasov"``; the handlers, files and analysis blocks are the PIC run's, with the
-density at maximum contrast in place of particle positions.
+172, 166). The ``"vlasov"`` entry of :data:`streamsim.methods.METHODS` hands the pipeline
+:class:`VlasovSimulation`, :data:`VLASOV_HANDLERS`, :func:`health_findings`, :func:`state_bytes`,
+:func:`run_data`, :func:`summary_block` and :func:`notes`; the series, files and analysis blocks
+are the PIC run's, with the density at maximum contrast in place of particle positions.
 
     from streamsim import run
     res = run("runs/warm-pair-beams-vlasov.toml")
@@ -19,18 +20,18 @@ from __future__ import annotations
 import numpy as np
 
 from .grid import MomentumGrid, momentum_grid
-from .handlers import NORM_SERIES, vlasov_handlers
+from .handlers import NORM_SERIES, VLASOV_HANDLERS, vlasov_handlers
 from .simulation import VlasovSimulation
 
 __all__ = ["VlasovSimulation", "MomentumGrid", "momentum_grid", "vlasov_handlers",
-           "health_findings", "check_memory", "run_data", "summary_block", "notes",
-           "PIC_ONLY_RULES", "NORM_SERIES"]
+           "VLASOV_HANDLERS", "health_findings", "state_bytes", "memory_refusal", "check_memory",
+           "run_data", "summary_block", "notes", "PIC_ONLY_RULES", "NORM_SERIES"]
 
 #: health rules of :mod:`streamsim.health` that concern particles, not a continuum: particles
 #: crossing cells, the finite-grid (aliasing) heating of macro-particles, the cold-beam grid
 #: instability (no cold species reach a continuum run) and shot noise
-PIC_ONLY_RULES = ("cell crossing", "finite-grid instability", "cold-beam grid instability",
-                  "noise floor", "leapfrog stability")
+PIC_ONLY_RULES = ("cell_crossing", "finite_grid_instability", "cold_beam_grid_instability",
+                  "noise_floor", "leapfrog_stability")
 
 #: relative mass at the momentum grid's edges above which a run warns (f reaches the edge)
 EDGE_WARN = 1.0e-6
@@ -39,7 +40,7 @@ EDGE_WARN = 1.0e-6
 def health_findings(deck, findings) -> list:
     """The health findings that apply to a continuum run (the PIC-only rules removed: the
     semi-Lagrangian advections have no CFL limit and there are no particles)."""
-    return [f for f in findings if f.rule not in PIC_ONLY_RULES]
+    return [f for f in findings if f.id not in PIC_ONLY_RULES]
 
 
 def notes(deck) -> list[str]:
@@ -51,43 +52,45 @@ def notes(deck) -> list[str]:
     return out
 
 
-def estimate_bytes(deck) -> int:
-    """Bytes a continuum run holds: f, its work copy and its snapshots at the field cadence, plus
-    the series and density snapshots (as :mod:`streamsim.memory` counts them)."""
-    from ..diagnostics import record_steps, stride
+def state_bytes(deck) -> dict[str, int]:
+    """Bytes of a continuum run's own state: f of every species and its work copy (the
+    recorded arrays are the handlers' own, :data:`VLASOV_HANDLERS`)."""
     cells = deck.box.cells * deck.vlasov.momentum_cells * len(deck.species)
-    n_f = record_steps(deck.time.steps, stride(deck.output.fields_interval, deck.time.dt))
-    n_d = record_steps(deck.time.steps, stride(deck.output.diagnostics_interval, deck.time.dt))
-    S = len(deck.species)
-    return 8 * (cells * (2 + n_f) + n_f * (S + 1) * deck.box.cells
-                + n_d * (4 * S + 4 + 2 * deck.output.modes + 5 * S))
+    return {"phase_space_grid": 8 * 2 * cells}
+
+
+def memory_refusal(deck, item: str, need: int, avail: int):
+    """The one-line refusal of a continuum deck whose arrays exceed the available memory
+    (``need``: the whole estimate)."""
+    from ..memory import GIB, MemoryRefusal
+    return MemoryRefusal("vlasov.momentum_cells", f"the phase-space grid and its snapshots "
+                         f"need {need / GIB:.2g} GiB (available {avail / GIB:.2g} GiB): lower "
+                         f"vlasov.momentum_cells or box.cells, or raise output.fields_interval",
+                         deck.vlasov.momentum_cells)
 
 
 def check_memory(deck) -> None:
     """Refuse a continuum deck whose arrays exceed the available memory (one line)."""
-    from ..memory import GIB, MemoryRefusal, memory_available
-    need, avail = estimate_bytes(deck), memory_available()
-    if avail is not None and need > avail:
-        raise MemoryRefusal("vlasov.momentum_cells", f"the phase-space grid and its snapshots "
-                            f"need {need / GIB:.2g} GiB (available {avail / GIB:.2g} GiB): lower "
-                            f"vlasov.momentum_cells or box.cells, or raise output.fields_interval",
-                            deck.vlasov.momentum_cells)
+    from .. import memory
+    memory.check(deck)
 
 
-def run_data(sim, by_name, dispersion):
+def run_data(sim, handlers, dispersion):
     """The RunData of a continuum run (no particles; the densities at maximum contrast and at
-    the end; the norms of f added to the series; f snapshots in ``extra["distribution"]``)."""
-    from ..rundata import DensityProfile, PhaseSpace, RunData, TimeSeries
+    the end; every handler's series, the norms of f among them; f snapshots in
+    ``extra["distribution"]``)."""
+    from ..diagnostics import FieldSnapshots, collect_series
+    from ..rundata import DensityProfile, PhaseSpace, RunData
+    from .handlers import DistributionSnapshots, PeakDensity
     deck = sim.deck
-    series = by_name["series"].series()
-    arrays = dict(series.arrays)
-    arrays.update(by_name["vlasov_norms"].series())
+    one = {type(h): h for h in handlers}
     return RunData(deck=deck, names=sim.names, length=deck.box.length, cells=deck.box.cells,
-                   dt=sim.dt, series=TimeSeries(**arrays), snapshots=by_name["fields"].snapshots(),
+                   dt=sim.dt, series=collect_series(handlers),
+                   snapshots=one[FieldSnapshots].snapshots(),
                    phase_space=PhaseSpace(t=np.zeros(0), x={}, u={}), peak=None, end=None,
                    theory=dispersion,
-                   extra={"distribution": by_name["distribution"].snapshots()},
-                   peak_density=by_name["peak"].profile(),
+                   extra={"distribution": one[DistributionSnapshots].snapshots()},
+                   peak_density=one[PeakDensity].profile(),
                    end_density=DensityProfile(t=float(sim.step * sim.dt),
                                               density=sim.density.copy()))
 

@@ -13,11 +13,11 @@ import math
 import numpy as np
 
 from ..diagnostics import FieldSnapshots, Handler, Sampler, SeriesRecorder, _Arrays, contrast, \
-    record_steps, stride
+    make_handlers, record_steps
 from ..rundata import DensityProfile
 
 __all__ = ["PeakDensity", "DistributionSnapshots", "NormRecorder", "vlasov_handlers",
-           "NORM_SERIES"]
+           "NORM_SERIES", "VLASOV_HANDLERS"]
 
 #: the series names the norms are written under in timeseries.h5, (n, S) each
 NORM_SERIES = ("vlasov_mass", "vlasov_l1", "vlasov_l2", "vlasov_f_min", "vlasov_edge_mass")
@@ -27,6 +27,12 @@ class PeakDensity(Handler):
     """Every species' density at the diagnostics time of the largest max delta n/n of any
     species (the continuum's stand-in for the PIC peak positions)."""
     name = "peak"
+    memory_item = "peak_density"
+    what = "the density at maximum contrast"
+
+    @classmethod
+    def layout(cls, deck, every):
+        return {"density": ((len(deck.species), deck.box.cells), float)}
 
     def __init__(self, sim, every: int):
         self.every = every
@@ -75,14 +81,24 @@ class DistributionSnapshots(Sampler):
     """f_s(x, u) of every species every ``output.fields_interval`` (the times of the field
     snapshots)."""
     name = "distribution"
+    memory_item = "distribution"
+    cadence_key = "fields_interval"
+    what = "the f snapshots"
+
+    @classmethod
+    def layout(cls, deck, every):
+        n = record_steps(deck.time.steps, every)
+        out = {"t": ((n,), float)}
+        for s in range(len(deck.species)):
+            out[f"f/{s}"] = ((n, deck.vlasov.momentum_cells, deck.box.cells), float)
+        return out
 
     def __init__(self, sim, every: int):
-        super().__init__()
-        self.every = every
-        n = record_steps(sim.steps, every)
-        self.arrays = {"t": np.zeros(n)}
+        super().__init__(sim.deck, every)
         for s, f in enumerate(sim.f):
-            self.arrays[f"f/{s}"] = np.zeros((n,) + f.shape)
+            if self.arrays[f"f/{s}"].shape[1:] != f.shape:
+                raise ValueError(f"f of species {s} has the shape {f.shape}, the layout says "
+                                 f"{self.arrays[f'f/{s}'].shape[1:]}")
         self.grids = sim.grids
 
     def _take(self, sim, t):
@@ -99,13 +115,16 @@ class NormRecorder(_Arrays):
     """Mass, L1 and L2 norms, min f and the mass at the u edges of every species, at the
     diagnostics times of the series (before step n and at the end, as the series records)."""
     name = "vlasov_norms"
+    memory_item = "time_series"
+    what = "the time series"
+
+    @classmethod
+    def layout(cls, deck, every):
+        n = record_steps(deck.time.steps, every)
+        return {k: ((n, len(deck.species)), float) for k in NORM_SERIES}
 
     def __init__(self, sim, every: int):
-        super().__init__()
-        self.every = every
-        S = len(sim.names)
-        n = record_steps(sim.steps, every)
-        self.arrays = {k: np.zeros((n, S)) for k in NORM_SERIES}
+        super().__init__(sim.deck, every)
 
     def _take(self, sim):
         v = sim.norms()
@@ -118,15 +137,18 @@ class NormRecorder(_Arrays):
     def finish(self, sim):
         self._take(sim)
 
-    def series(self) -> dict[str, np.ndarray]:
+    def series_arrays(self) -> dict[str, np.ndarray]:
         return {k: self._view(k) for k in NORM_SERIES}
+
+    series = series_arrays
+
+
+#: the recording handlers of a continuum run, in the order they are called; the series and field
+#: snapshots are the PIC run's own handlers. Add a recorded series here.
+VLASOV_HANDLERS = (PeakDensity, FieldSnapshots, DistributionSnapshots, SeriesRecorder,
+                   NormRecorder)
 
 
 def vlasov_handlers(sim) -> list[Handler]:
-    """The recording handlers of a continuum run, at the deck's cadences; the series and field
-    snapshots are the PIC run's own handlers."""
-    o, dt = sim.deck.output, sim.dt
-    diag = stride(o.diagnostics_interval, dt)
-    fevery = stride(o.fields_interval, dt)
-    return [PeakDensity(sim, diag), FieldSnapshots(sim, fevery),
-            DistributionSnapshots(sim, fevery), SeriesRecorder(sim, diag), NormRecorder(sim, diag)]
+    """The recording handlers of a continuum run, at the deck's cadences."""
+    return make_handlers(sim, VLASOV_HANDLERS)

@@ -182,7 +182,8 @@ def compute(ctx: Context) -> BlockResult:
         units={"k": "omega_p/c", "k_per_cm": "1/cm"})
     return BlockResult(NAME, {"clumps": head}, tables,
                        [Figure("clumps.png", "clump size spectrum and density power spectrum "
-                               "P(k)", _draw)], _lines(head, n_cm3))
+                               "P(k)", _draw)], _lines(head, n_cm3),
+                       values={"grid_limited": bool(head.get("grid_limited"))})
 
 
 def _lines(cl: dict, n_cm3: float) -> list[str]:

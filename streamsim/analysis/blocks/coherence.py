@@ -34,10 +34,10 @@ SCAN_COLUMNS = [
 
 
 def compute(ctx: Context) -> BlockResult:
-    if _driven.is_measured(ctx.options):  # analysis.bulk_gamma = "measured"
-        return _driven.coherence_with_measured_gamma(ctx, compute)
     data, n_cm3, opt = ctx.data, ctx.density_cm3, ctx.options
-    drop, bulk, kmf = opt.coherence_drop, opt.bulk_gamma, opt.coherence_kmax_factor
+    drop, kmf = opt.coherence_drop, opt.coherence_kmax_factor
+    measured = _measured_gamma(ctx)     # analysis.bulk_gamma = "measured": Gamma_s(t), typed
+    bulk = 1.0 if measured is not None else opt.bulk_gamma
     modes = _co.form_factor_modes(data.cells, kmf)
     skin = units.skin_depth_cm(n_cm3)
     per = {}
@@ -53,19 +53,24 @@ def compute(ctx: Context) -> BlockResult:
             continue
         entry = {"t": float(snap.t), "t_ns": units.time_ns(float(snap.t), n_cm3),
                  "by_species": {}}
+        # each species' Gamma at this snapshot's time: every frequency below scales with it
+        gam = measured.at(float(snap.t)) if measured is not None else None
         k = None
         for s, name in enumerate(data.names):
+            G = gam[name] if gam is not None else bulk
             if continuum:
                 r = _cn.density_coherence(snap.density[s], data.length, modes, drop=drop,
-                                          density_cm3=n_cm3, bulk_gamma=bulk,
+                                          density_cm3=n_cm3, bulk_gamma=G,
                                           bins_per_decade=opt.coherence_bins_per_decade, seed=s)
             else:
                 x = snap.x.get(name)
                 if x is None or len(x) == 0:
                     continue
                 r = _co.species_coherence(x, data.length, modes, drop=drop, density_cm3=n_cm3,
-                                          bulk_gamma=bulk, max_particles=ctx.max_particles, seed=s,
+                                          bulk_gamma=G, max_particles=ctx.max_particles, seed=s,
                                           bins_per_decade=opt.coherence_bins_per_decade)
+            if gam is not None:
+                r["bulk_gamma"] = G
             k = r.pop("k")
             kb, Eb, nb = r.pop("envelope")
             r["envelope"] = {"k": kb, "mean_F2": Eb, "modes": nb}
@@ -93,6 +98,10 @@ def compute(ctx: Context) -> BlockResult:
                           "noise_floor": max(fl) if fl else None, "species": None,
                           "lower_bound": False, "status": "no cutoff above the noise floor"
                           if fl else "no particle positions"})
+        if gam is not None:   # the headline Gamma: of the species that sets k_c, else the largest
+            who = entry["species"]
+            entry["bulk_gamma"] = gam[who] if who in gam else max(gam.values())
+            entry["bulk_gamma_measured"] = gam
         per[label] = entry
     src = "peak" if "peak" in per else ("end" if "end" in per else None)
     head = {"k_cutoff": None, "k_cutoff_err": None, "frequency_cutoff_hz": None,
@@ -101,7 +110,8 @@ def compute(ctx: Context) -> BlockResult:
     if src:
         head.update(per[src])
     head.update(_grid_limit(head, ctx))
-    head.update({"bulk_gamma": bulk, "snapshot": src, "drop": drop,
+    head.update({"bulk_gamma": head["bulk_gamma"] if measured is not None else bulk,
+                 "snapshot": src, "drop": drop,
                  "noise_safety": _co.NOISE_SAFETY, "k_max": 2 * math.pi * modes / data.length,
                  "kmax_factor": kmf, "assumption": _co.ASSUMPTION,
                  "bins_per_decade": opt.coherence_bins_per_decade,
@@ -130,6 +140,11 @@ def compute(ctx: Context) -> BlockResult:
     if src == "peak" and "end" in per:
         head["end"] = {k: per["end"][k] for k in ("t", "k_cutoff", "frequency_cutoff_hz",
                                                   "noise_floor", "species", "status")}
+        if measured is not None:
+            head["end"]["bulk_gamma"] = per["end"]["bulk_gamma"]
+    if measured is not None:
+        head["bulk_gamma_source"] = ("measured: no particle snapshot" if src is None else
+                                     measured.source(head.get("species"), head["t"], src))
     k_all = np.asarray(cols["k"], float)
     table = Table("form_factor", {
         "snapshot": np.array(cols["snapshot"], dtype=object),
@@ -143,14 +158,23 @@ def compute(ctx: Context) -> BlockResult:
                                "cutoff and the noise floor", _draw)], _lines(head))
 
 
+def _measured_gamma(ctx: Context):
+    """The typed measured Gamma_s(t) (:class:`streamsim.analysis.driven.BulkGamma`) of the
+    ``bulk_gamma`` block, or None when ``analysis.bulk_gamma`` is a number."""
+    if not _driven.is_measured(ctx.options):
+        return None
+    res = ctx.results.get("bulk_gamma")
+    found = res.values.get("bulk_gamma") if res is not None else None
+    return found if found is not None else _driven.measured_bulk_gamma(ctx.data)
+
+
 def _grid_limit(head: dict, ctx: Context) -> dict:
     """coherence.grid_limited and why (see :func:`streamsim.analysis.coherence.grid_limited_cutoff`)."""
     data = ctx.data
     kc = head.get("k_cutoff")
     by_k = _co.grid_limited_cutoff(kc, bool(head.get("lower_bound")), data.cells, data.length)
-    cl = (ctx.results.get("clumps").summary.get("clumps", {})
-          if ctx.results.get("clumps") is not None else {})
-    by_clumps = bool(cl.get("grid_limited")) and kc is not None
+    clumps = ctx.results.get("clumps")
+    by_clumps = bool(clumps is not None and clumps.values.get("grid_limited")) and kc is not None
     why = []
     if kc is not None and head.get("lower_bound"):
         why.append("the envelope is still high at the largest k computed")
@@ -165,6 +189,16 @@ def _grid_limit(head: dict, ctx: Context) -> dict:
 
 
 def _lines(co: dict) -> list[str]:
+    out = _main_lines(co)
+    src = co.get("bulk_gamma_source")
+    if src is not None:     # analysis.bulk_gamma = "measured"
+        G = co.get("bulk_gamma")
+        out.append(f"  bulk Gamma = {G:.4g} {src}" if G is not None and math.isfinite(G)
+                   else f"  {src}")
+    return out
+
+
+def _main_lines(co: dict) -> list[str]:
     G = co.get("bulk_gamma", 1.0)
     if co.get("frequency_cutoff_hz_lower_bound") is not None:
         cold = co.get("cold_species") or []

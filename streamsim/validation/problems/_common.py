@@ -64,7 +64,7 @@ class Runner:
 
 def _output(dt: float, modes: int, end: float) -> dict:
     """Every step recorded (fits want it); density snapshots and phase space only at the ends."""
-    return {"diagnostics_interval": dt, "modes": modes, "phase_space_particles": 0,
+    return {"diagnostics_interval": dt, "recorded_modes": modes, "phase_space_particles": 0,
             "fields_interval": end, "phase_space_interval": end}
 
 

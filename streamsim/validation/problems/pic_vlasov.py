@@ -66,7 +66,7 @@ def measure(p, run) -> Outcome:
     lin.update(method="vlasov", box={"length": 2.0 * math.pi / k, "cells": 32},
                time={"dt": c.vlasov.deck.time.dt, "end": 110.0},
                perturbation={"modes": [1], "amplitude": 1e-8, "species": ["electrons"]},
-               output={"modes": 1, "fields_interval": 110.0})
+               output={"recorded_modes": 1, "fields_interval": 110.0})
     ls = run(lin).series
     g_v = four_efold_rate(ls.t, np.abs(ls.mode_amplitude[:, 0]))
     name = "PIC vs Vlasov"

@@ -1,0 +1,137 @@
+"""Regression baseline for a refactor of the run pipeline (not a physics test).
+
+``tests/data/house_baseline.json`` holds the summary.json numbers of four decks — the built-in
+default deck, runs/warm-pair-beams-vlasov.toml, runs/drive-charge-starved.toml and
+runs/drive-below-limit.toml — recorded from the code BEFORE the pipeline was split into a method
+table, a run context, run-control handlers and a run-folder room (commit bbb7e99), with one
+numba thread. This is the one allowed kind of self-comparison: it guards a refactor that must
+leave every number unchanged. Each test reruns one deck at the deck's own size with one thread
+(the runs are deterministic at a fixed thread count) and compares every number of the baseline:
+the growth rates to 1e-4 relative, everything else to 1e-9 relative (strings, flags and
+list lengths exactly). Keys the baseline lacks (added since) are not compared; a key the
+baseline has must still be there (summary.json keys are a contract).
+
+Intentional changes since the baseline are listed in ``SCALED_BY_MEASURED_GAMMA``: with
+``analysis.bulk_gamma = "measured"`` the baseline code scaled only the coherence block's main
+frequency by the measured bulk Lorentz factor Gamma; every coherence frequency now scales
+(nu_c = Gamma c k_c / 2 pi for all of them), so those entries are compared with baseline x Gamma.
+
+Do not re-record the baseline to make this test pass: it must come from the code before the
+change it guards.
+"""
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import pytest
+
+from streamsim import pipeline
+
+BASELINE = Path(__file__).parent / "data" / "house_baseline.json"
+ROOT = Path(__file__).resolve().parent.parent
+DECKS = {"default": None,
+         "warm-pair-beams-vlasov": ROOT / "runs" / "warm-pair-beams-vlasov.toml",
+         "drive-charge-starved": ROOT / "runs" / "drive-charge-starved.toml",
+         "drive-below-limit": ROOT / "runs" / "drive-below-limit.toml"}
+#: what changes from run to run of the same deck (timing, version)
+VOLATILE = {"wall_s", "particle_steps_per_s", "streamsim_version", "cell_steps_per_s"}
+#: top-level blocks compared at 1e-4 relative
+GROWTH = {"growth", "modes", "field_energy_growth"}
+#: coherence entries that the baseline code left unscaled by the measured Gamma (see docstring)
+SCALED_BY_MEASURED_GAMMA = (
+    (("drive-below-limit", "coherence", "frequency_cutoff_hz_err"), ("coherence", "bulk_gamma")),
+    (("drive-below-limit", "coherence", "frequency_cutoff_hz_lower_bound"),
+     ("coherence", "bulk_gamma")),
+    *((("drive-below-limit", "coherence", "by_species", s, "frequency_cutoff_hz_err"),
+       ("coherence", "by_species", s, "bulk_gamma")) for s in ("electrons", "positrons")),
+)
+
+
+def trimmed(summary: dict) -> dict:
+    """The summary without volatile entries; of the (large) theory block only ``fastest``."""
+    out = {k: v for k, v in summary.items() if k not in VOLATILE}
+    if isinstance(out.get("theory"), dict):
+        out["theory"] = {"fastest": out["theory"].get("fastest")}
+    return json.loads(json.dumps(out, default=str))
+
+
+def run_deck(name: str, folder: Path) -> dict:
+    res = pipeline.run(DECKS[name], out=folder, threads=1, figures=False, force=True)
+    return trimmed(res.summary)
+
+
+def compare(expected, got, path: str, rtol: float, errors: list) -> None:
+    if isinstance(expected, dict):
+        if not isinstance(got, dict):
+            errors.append(f"{path}: expected a dict, got {got!r:.80}")
+            return
+        for k, v in expected.items():
+            if k in VOLATILE:
+                continue
+            if k not in got:
+                errors.append(f"{path}.{k}: missing")
+                continue
+            compare(v, got[k], f"{path}.{k}", rtol, errors)
+    elif isinstance(expected, list):
+        if not isinstance(got, list) or len(got) != len(expected):
+            errors.append(f"{path}: expected a list of {len(expected)}, got {got!r:.80}")
+            return
+        for i, (a, b) in enumerate(zip(expected, got)):
+            compare(a, b, f"{path}[{i}]", rtol, errors)
+    elif isinstance(expected, bool) or expected is None or isinstance(expected, str):
+        if got != expected:
+            errors.append(f"{path}: expected {expected!r:.120}, got {got!r:.120}")
+    elif isinstance(expected, (int, float)):
+        if isinstance(got, bool) or not isinstance(got, (int, float)):
+            errors.append(f"{path}: expected {expected!r}, got {got!r:.80}")
+        elif not math.isclose(got, expected, rel_tol=rtol, abs_tol=0.0):
+            errors.append(f"{path}: expected {expected!r}, got {got!r} (rtol {rtol:g})")
+    else:
+        errors.append(f"{path}: unexpected type {type(expected)}")
+
+
+def get(d: dict, path: tuple):
+    for k in path:
+        d = d[k]
+    return d
+
+
+def put(d: dict, path: tuple, value) -> None:
+    for k in path[:-1]:
+        d = d[k]
+    d[path[-1]] = value
+
+
+@pytest.mark.parametrize("name", list(DECKS))
+def test_numbers_unchanged_by_the_refactor(name, tmp_path):
+    baseline = json.loads(BASELINE.read_text(encoding="utf-8"))[name]
+    got = run_deck(name, tmp_path / name)
+    for path, gamma_path in SCALED_BY_MEASURED_GAMMA:
+        if path[0] == name:
+            old = get(baseline, path[1:])
+            if old is not None:
+                put(baseline, path[1:], old * get(got, gamma_path))
+    errors: list[str] = []
+    for key, value in baseline.items():
+        if key in VOLATILE:
+            continue
+        if key not in got:
+            errors.append(f"{key}: missing")
+            continue
+        compare(value, got[key], key, 1e-4 if key in GROWTH else 1e-9, errors)
+    assert not errors, f"{len(errors)} differences:\n" + "\n".join(errors[:40])
+
+
+def _record(path: Path = BASELINE) -> None:   # pragma: no cover - run once, before a refactor
+    import tempfile
+    out = {}
+    with tempfile.TemporaryDirectory() as tmp:
+        for name in DECKS:
+            out[name] = run_deck(name, Path(tmp) / name)
+    path.write_text(json.dumps(out, indent=0, sort_keys=True) + "\n", encoding="utf-8")
+
+
+if __name__ == "__main__":   # pragma: no cover
+    _record()
