@@ -36,7 +36,8 @@ def plasma_deck(*, cells=64, length=6.283185307179586, ppc=64, theta=0.0, dt=0.0
 def pair_deck(*, beta=0.1, cells=128, ppc=64, nwaves=8, dt=0.05, end=40.0, theta=0.0,
               amplitude=1e-4, shape="cic", loading="quiet", seed=1) -> dict:
     """Symmetric cold (or warm) e-/e+ beams, box = nwaves wavelengths of the analytic fastest
-    cold mode k v0 = (sqrt(3)/2) omega_b (textbook)."""
+    cold mode k v0 = (sqrt(3)/2) omega_b (cold two-stream relation, Birdsall & Langdon 1991;
+    from memory)."""
     import math
     g0 = 1.0 / math.sqrt(1 - beta * beta)
     wb = math.sqrt(0.5 / g0**3)

@@ -55,17 +55,22 @@ def test_random_positions_sit_on_the_one_over_n_floor():
 
 
 def test_cutoff_of_a_gaussian_spectrum():
+    """The production criterion (log-binned envelope, coherence.envelope_cutoff) on an exact
+    Gaussian spectrum; the older coherence_cutoff is only kept for comparison, so not tested."""
     sigma = 0.1
     k = np.linspace(0.05, 60.0, 2000)
     P = np.exp(-(k * sigma) ** 2)
-    c = coherence.coherence_cutoff(k, P, floor=1e-6, drop=0.5)
-    # exp(-k^2 sigma^2) = 1/2 at k = sqrt(ln 2)/sigma (analytic); grid step 0.03
-    assert c["k_cutoff"] == pytest.approx(math.sqrt(math.log(2)) / sigma, abs=0.03)
-    assert not c["lower_bound"]
-    # the same spectrum drowned in the floor: no cutoff
-    assert coherence.coherence_cutoff(k, P, floor=0.5 / 20 * 1.01, drop=0.5)["k_cutoff"] is None
+    c = coherence.envelope_cutoff(k, P, floor=1e-6, drop=0.5, bootstrap=0)
+    # exp(-k^2 sigma^2) = 1/2 at k = sqrt(ln 2)/sigma (analytic); averaging P over a log bin
+    # (8 per decade) pulls the crossing low: measured -1.3 %, checked to 4 %
+    assert c["k_cutoff"] == pytest.approx(math.sqrt(math.log(2)) / sigma, rel=0.04)
+    assert not c["lower_bound"] and c["status"] == "ok"
+    # the same spectrum drowned in the floor (half-peak below 20x the floor): no cutoff
+    assert coherence.envelope_cutoff(k, P, floor=0.5 / 20 * 1.01, drop=0.5,
+                                     bootstrap=0)["k_cutoff"] is None
     # still high at the last k: only a lower bound
-    assert coherence.coherence_cutoff(k, np.ones_like(k), floor=1e-6, drop=0.5)["lower_bound"]
+    assert coherence.envelope_cutoff(k, np.ones_like(k), floor=1e-6, drop=0.5,
+                                     bootstrap=0)["lower_bound"]
 
 
 def test_emission_frequency():

@@ -16,8 +16,8 @@ WPS2 = 0.5          # omega_ps^2 = density * charge^2 / mass = 0.5 for each beam
 
 
 def cold_symmetric_growth(k, v0=V0, wps2=WPS2):
-    """Growth of symmetric cold beams on an array of k, and its maximum w_b/2 (textbook cold
-    two-stream root, Birdsall & Langdon 1991), from streamsim.validation.references."""
+    """Growth of symmetric cold beams on an array of k, and its maximum w_b/2 (cold
+    two-stream root, Birdsall & Langdon 1991; from memory), from streamsim.validation.references."""
     from streamsim.validation.references import cold_symmetric_growth as root
     wb = math.sqrt(wps2 * (1.0 - v0 * v0) ** 1.5)       # w_b^2 = w_ps^2 / gamma_0^3
     return np.array([root(float(kk), v0, wb) for kk in np.atleast_1d(k)]), wb / 2.0
@@ -46,11 +46,12 @@ def test_cold_beams_growth_against_the_cold_root(cold_runs):
     k = 2 * math.pi * np.arange(1, 65) / data.length
     g_cold, g_max = cold_symmetric_growth(k)
     head = fast.summary["growth"]
-    # fastest box mode within 5 % of the analytic cold root (Birdsall & Langdon)
+    # fastest box mode within 3 % of the analytic cold root (Birdsall & Langdon); measured -0.92 %
     m = int(np.argmax(g_cold)) + 1
     assert head["mode"] == m
-    assert head["measured"] == pytest.approx(g_cold[m - 1], rel=0.05)
-    # every box mode with gamma > 0.3 gamma_max within 10 % (same source)
+    assert head["measured"] == pytest.approx(g_cold[m - 1], rel=0.03)
+    # every box mode with gamma > 0.3 gamma_max within 10 % (same source); measured: within 2.3 %
+    # except mode 12 near the band edge, -6.3 %
     checked = 0
     for row_f, row_s in zip(fast.summary["modes"], slow.summary["modes"]):
         mm = row_f["mode"]
@@ -61,7 +62,7 @@ def test_cold_beams_growth_against_the_cold_root(cold_runs):
         assert row["measured"] == pytest.approx(g_cold[mm - 1], rel=0.10), mm
         checked += 1
     assert checked >= 10
-    # field energy at twice the amplitude rate (W ~ |E|^2)
+    # field energy at twice the amplitude rate (W ~ |E|^2); measured -4.4 %
     fe = fast.summary["field_energy_growth"]
     assert fe["measured"] == pytest.approx(2 * g_cold[m - 1], rel=0.05)
 
@@ -83,11 +84,13 @@ def test_density_scaling(demo_runs):
         co = s["coherence"]
         return co["frequency_cutoff_hz"] or co["frequency_cutoff_hz_lower_bound"]
     assert s1["contrast"]["t_unity_ns"] is not None and nu(s1)
-    # omega_p ~ n^(1/2) (NRL Plasma Formulary): 4x the density halves times, doubles frequencies
-    assert s4["contrast"]["t_unity_ns"] == pytest.approx(s1["contrast"]["t_unity_ns"] / 2, rel=0.01)
-    assert nu(s4) == pytest.approx(2 * nu(s1), rel=0.01)
+    # omega_p ~ n^(1/2) (NRL Plasma Formulary): 4x the density halves times, doubles frequencies.
+    # The two decks are one normalised run (README), so only the unit conversion differs:
+    # measured 0 (bit for bit), checked to round-off
+    assert s4["contrast"]["t_unity_ns"] == pytest.approx(s1["contrast"]["t_unity_ns"] / 2, rel=1e-12)
+    assert nu(s4) == pytest.approx(2 * nu(s1), rel=1e-12)
     assert s4["clumps"]["size_median_cm"] == pytest.approx(s1["clumps"]["size_median_cm"] / 2,
-                                                           rel=0.01)
+                                                           rel=1e-12)
 
 
 def test_run_folder_files_and_commands(demo_runs):

@@ -2,6 +2,7 @@
 when no rate can be measured, the field-energy flag, replicas and the warm quiet start."""
 import csv
 import math
+import re
 import statistics
 import warnings
 
@@ -87,7 +88,7 @@ def test_reason_and_particles_needed_follow_the_shot_noise_law():
 # -- the analytic cold eigenvector ---------------------------------------------------------------
 def _symmetric_roots(k, v, wb):
     """The four roots of 1 = wb^2/(w - kv)^2 + wb^2/(w + kv)^2 (symmetric cold beams):
-    w^2 = k^2 v^2 + wb^2 +- wb sqrt(wb^2 + 4 k^2 v^2) (textbook two-stream relation, e.g.
+    w^2 = k^2 v^2 + wb^2 +- wb sqrt(wb^2 + 4 k^2 v^2) (the cold two-stream relation, e.g.
     Birdsall & Langdon 1991 sec. 5.10)."""
     a = k * k * v * v + wb * wb
     b = wb * math.sqrt(wb * wb + 4 * k * k * v * v)
@@ -135,15 +136,16 @@ RANDOM = ['species.electrons.loading="random"', 'species.positrons.loading="rand
 
 def test_random_loading_run_reports_method_and_rate(tmp_path):
     """Small random-loading run of the default deck: the headline rate is measured on the
-    eigenmode within 10 % of the cold symmetric root (textbook relation above)."""
+    eigenmode within 5 % of the cold symmetric root (Birdsall & Langdon 1991; from memory):
+    measured -1.7 % (error 2.3 %)."""
     res = streamsim.run(None, out=None, write=False, figures=False, overrides=RANDOM + ["time.end=30.0"])
     g = res.summary["growth"]
     assert g["method"].startswith("eigenmode")
     v = 0.1
     wb = math.sqrt(0.5 * (1 - v * v) ** 1.5)
     ref = _cold_root_growth(g["k"], v, wb)
-    assert g["measured"] == pytest.approx(ref, rel=0.10)
-    assert abs(g["measured"] - ref) <= 3 * g["measured_err"] + 0.10 * ref
+    assert g["measured"] == pytest.approx(ref, rel=0.05)
+    assert abs(g["measured"] - ref) <= 3 * g["measured_err"]
     assert g["start"] == "noise-seeded"
     fe = res.summary["field_energy_growth"]
     assert "method" in fe and "consistent_with_theory" in fe
@@ -155,11 +157,16 @@ def test_too_few_particles_give_a_reason_and_advice():
         "species.electrons.particles_per_cell=8", "species.positrons.particles_per_cell=8",
         "time.end=6.0"])
     g = res.summary["growth"]
-    if g["measured"] is None:
-        assert "e-folds" in g["reason"]
-        assert g["particles_per_cell_needed"] is None or g["particles_per_cell_needed"] > 8
-    else:                                  # a rate found must still be honest
-        assert g["measured_err"] > 0
+    # 6/omega_p at gamma = 0.35 holds ~2 e-folds at most: no rate can be found (seeded, fixed)
+    assert g["measured"] is None and g["measured_err"] is None
+    m = re.search(r"rises ([\d.]+) e-folds between the noise level ([\d.e+-]+) and saturation "
+                  r"([\d.e+-]+)", g["reason"])
+    assert m, g["reason"]
+    efolds, noise, sat = (float(v) for v in m.groups())
+    # the numbers of the reason agree with each other: e-folds = ln(saturation/noise)
+    assert efolds == pytest.approx(math.log(sat / noise), abs=0.1)
+    assert efolds < 2.5 and "at least 2.5 needed" in g["reason"]
+    assert g["particles_per_cell_needed"] > 8
 
 
 def test_field_energy_flag():
@@ -217,7 +224,8 @@ def test_lattice_start_is_quieter_than_bit_reversed():
             out[start] = float(np.sum(np.abs(s.mode_amplitude[-1]) ** 2))
     finally:
         loading.QUIET_START = old
-    assert out["lattice"] < 1e-3 * out["bit_reversed"]
+    # measured: 1.2e-31 against 6.4e-7, a ratio of 1.9e-25 (README: 20 orders of magnitude)
+    assert out["lattice"] < 6e-25 * out["bit_reversed"]
 
 
 # -- production size (slow) ----------------------------------------------------------------------
@@ -253,7 +261,7 @@ def _warm_root(k, species, guess):
 @pytest.mark.slow
 def test_random_cold_beams_at_a_million_particles():
     """1 048 576 particles (512 per cell, 1024 cells): the fastest box mode within 10 % and 3
-    standard errors of the cold symmetric root (polynomial, textbook relation above)."""
+    standard errors of the cold symmetric root (polynomial, the relation above)."""
     res = streamsim.run(None, out=None, write=False, figures=False, overrides=RANDOM + [
         "box.cells=1024", "species.electrons.particles_per_cell=512",
         "species.positrons.particles_per_cell=512"])

@@ -94,7 +94,7 @@ def test_reference_root_is_the_published_landau_root():
 
 def test_landau_run_reports_damping_beside_the_root():
     """Landau damping at k lambda_D = 0.5 through the engine and the analysis: the summary's
-    'oscillation' row within 2 % (frequency) and 10 % (rate) of the published root
+    'oscillation' row within 0.7 % (frequency) and 6.5 % (rate) of the published root
     1.4157 - 0.1534 i (widely tabulated, quoted from memory; re-derived with scipy.special.wofz
     in tests/test_validate.py)."""
     theta = 1e-4                       # v_th = 0.01 c: relativistic corrections ~1e-4
@@ -104,7 +104,8 @@ def test_landau_run_reports_damping_beside_the_root():
     res = streamsim.run(raw, write=False, quiet=True)
     (row,) = res.summary["oscillation"]
     assert row["mode"] == 1 and row["theory_model"] == "maxwellian"
-    assert abs(row["omega_r"] - LANDAU_05.real) / LANDAU_05.real < 0.02
-    assert abs(row["rate"] - LANDAU_05.imag) / -LANDAU_05.imag < 0.10
+    # measured: omega_r -0.23 %, rate +2.1 % (4000 per cell, seed 3); about 3x that allowed
+    assert abs(row["omega_r"] - LANDAU_05.real) / LANDAU_05.real < 0.007
+    assert abs(row["rate"] - LANDAU_05.imag) / -LANDAU_05.imag < 0.065
     # the fit's errors are honest: the published root lies within 4 sigma
     assert abs(row["omega_r"] - LANDAU_05.real) < 4 * row["omega_r_err"]

@@ -40,8 +40,8 @@ def test_prescribed_content_is_recovered(synthetic):
     g = blocks["growth"]
     # prescribed: mode 4 grows fastest at 0.35 (synthetic_run's parabola)
     assert g["mode"] == 4
-    assert g["measured"] == pytest.approx(0.35, rel=0.01)
-    assert g["ratio"] == pytest.approx(1.0, rel=0.01)
+    assert g["measured"] == pytest.approx(0.35, rel=4e-4)        # measured -1.3e-4
+    assert g["ratio"] == pytest.approx(1.0, rel=4e-4)
     # prescribed: 4 Gaussian bunches per species, 2 species
     assert blocks["clumps"]["count"] == 8
     # quantile bunches of rms 0.3 (prescribed): |F|^2 = f^2 exp(-k^2 sigma^2) at the harmonics
@@ -54,8 +54,9 @@ def test_prescribed_content_is_recovered(synthetic):
     k = 2 * math.pi * m / data.length
     P = np.where(m % 4 == 0, 0.6 ** 2 * np.exp(-(k * 0.3) ** 2), 0.0)
     kc = _co.envelope_cutoff(k, P, floor=1e-12, drop=0.5, bootstrap=0)["k_cutoff"]
-    # rel 1e-3: 6000 quantile-placed particles per bunch are a Gaussian to ~1e-4 in |F|^2
-    assert co["k_cutoff"] == pytest.approx(kc, rel=1e-3)
+    # 6000 quantile-placed particles per bunch are a Gaussian to ~1e-4 in |F|^2: measured
+    # -9.6e-5, checked to 3e-4
+    assert co["k_cutoff"] == pytest.approx(kc, rel=3e-4)
     assert co["noise_floor"] == pytest.approx(1 / 40000)
     assert co["bulk_gamma"] == 1.0
 

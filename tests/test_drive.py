@@ -41,7 +41,8 @@ def pair_rest(*, current, cells=16, ppc=8, dt=0.02, end=10.0, profile="constant"
 # linearised cold response (analytic)
 # ----------------------------------------------------------------------------------------------
 def test_linear_cold_response_matches_the_analytic_solution():
-    """Analytic solution of the linearised cold equations (derived here).
+    """Analytic solution of the linearised cold equations (from memory: cold-fluid motion
+    with Ampere's law for the mean field, worked out below).
 
     Each cold species moves as a whole: du_s/dt = (q_s/m_s) E0 and, for |u| << 1, v_s = u_s.
     Ampere: dE0/dt = J_ext - sum_s q_s n_s v_s. Differentiating once,
@@ -78,17 +79,22 @@ def starved():
 
 def test_charge_starved_field_grows_at_j_ext_minus_limit(starved):
     """Once every carrier moves at |v| -> c, <J> -> limit and Ampere gives dE0/dt -> J_ext -
-    limit (special relativity bounds |v| by c); checked to 1%."""
+    limit (special relativity bounds |v| by c); measured 6.8e-5 (slope) and 3.2e-5 (current),
+    checked to 2e-4 and 1e-4."""
     s = starved.series
     limit = 1.0  # sum_s |q_s| n_s for two unit-charge species of density 0.5
     assert drive.carrying_limit(starved.deck.species) == pytest.approx(limit)
     late = s.t >= 10.0
     slope = np.polyfit(s.t[late], s.drive_e0[late], 1)[0]
-    assert abs(slope - (2.0 - limit)) < 0.01 * (2.0 - limit)
-    assert abs(s.drive_current[-1] - limit) < 0.01 * limit
+    assert abs(slope - (2.0 - limit)) < 2e-4 * (2.0 - limit)
+    assert abs(s.drive_current[-1] - limit) < 1e-4 * limit
     d = starved.summary["drive"]
     assert d["charge_starved"] is True and d["ratio"] == pytest.approx(2.0)
-    assert d["e_parallel_max"] == pytest.approx(np.max(np.abs(s.drive_e0)))
+    # Ampere's law for the mean field, dE0/dt = J_ext - <J>, integrated here (trapezoidal rule)
+    # from the recorded currents, gives the largest |E0| the summary reports
+    e0 = np.concatenate([[0.0], np.cumsum(np.diff(s.t) * 0.5 * (
+        (s.drive_current_ext - s.drive_current)[1:] + (s.drive_current_ext - s.drive_current)[:-1]))])
+    assert d["e_parallel_max"] == pytest.approx(np.max(np.abs(e0)), rel=1e-9)   # measured 5e-11
     for name in ("electrons", "positrons"):
         assert d["gamma_max"][name] > 50 and d["gamma_bulk_final"][name] > 50
 
@@ -104,27 +110,28 @@ def test_charge_starved_momenta_follow_the_uniform_field(starved):
         u = starved.u[name]
         expected = q * integral          # u0 = 0, m = 1
         assert abs(expected) > 50
-        assert np.max(np.abs(u - expected)) < 1e-3 * abs(expected)
+        assert np.max(np.abs(u - expected)) < 2.5e-6 * abs(expected)     # measured 8.0e-7
 
 
 def test_charge_starved_energy_theorem(starved):
-    """W_kin + W_field - W0 = L int J_ext E0 dt to 1e-3 of the energy gained (Poynting's
-    theorem for the 1D electrostatic system)."""
+    """W_kin + W_field - W0 = L int J_ext E0 dt to 2e-6 of the energy gained (Poynting's
+    theorem for the 1D electrostatic system); measured 6.2e-7."""
     err = starved.summary["drive"]["energy_balance_error"]
-    assert err is not None and err < 1e-3
+    assert err is not None and err < 2e-6
     s = starved.series
     W = s.kinetic.sum(axis=1) + s.field_energy
     L = starved.deck.box.length
     work = L * np.concatenate([[0.0], np.cumsum(np.diff(s.t) * 0.5 * (
         (s.drive_current_ext * s.drive_e0)[1:] + (s.drive_current_ext * s.drive_e0)[:-1]))])
-    assert np.max(np.abs(W - W[0] - work)) < 1e-3 * np.max(np.abs(W - W[0]))
+    assert np.max(np.abs(W - W[0] - work)) < 2e-6 * np.max(np.abs(W - W[0]))
 
 
 @pytest.mark.parametrize("profile,extra", [("ramp", {"ramp_time": 5.0}),
                                            ("sine", {"angular_frequency": 0.5, "phase": 0.3})])
 def test_energy_theorem_for_warm_driven_plasmas(profile, extra):
     """Poynting's theorem in 1D ES, d(W_kin + W_field)/dt = L E0 J_ext, holds with k != 0
-    fields too (warm, perturbed plasma); 1e-3 of the energy gained."""
+    fields too (warm, perturbed plasma); measured 1.6e-5 (ramp) and 1.1e-4 (sine) of the energy
+    gained, checked to 3.5e-4."""
     raw = pair_rest(current=0.8, cells=32, ppc=16, end=20.0, profile=profile, extra=extra,
                     theta=1e-2, perturb=True)
     r = streamsim.run(raw, write=False, analyze=False)
@@ -132,9 +139,10 @@ def test_energy_theorem_for_warm_driven_plasmas(profile, extra):
     W = s.kinetic.sum(axis=1) + s.field_energy
     gain = np.max(np.abs(W - W[0]))
     assert gain > 1e-2
-    assert np.max(np.abs(W - W[0] - s.drive_work)) < 1e-3 * gain
-    jx = [drive.external_current(r.deck.drive, t) for t in s.t]
-    assert np.allclose(s.drive_current_ext, jx, rtol=0, atol=0)
+    assert np.max(np.abs(W - W[0] - s.drive_work)) < 3.5e-4 * gain
+    # the profiles written out here: 0.8 min(t/5, 1) and 0.8 sin(0.5 t + 0.3)
+    jx = 0.8 * (np.minimum(s.t / 5.0, 1.0) if profile == "ramp" else np.sin(0.5 * s.t + 0.3))
+    assert np.allclose(s.drive_current_ext, jx, rtol=1e-12, atol=1e-14)
 
 
 # ----------------------------------------------------------------------------------------------
@@ -263,9 +271,13 @@ def test_profiles_and_the_carrying_limit():
     assert drive.external_current(ramp, 1.0) == pytest.approx(0.5)
     assert drive.external_current(ramp, 9.0) == pytest.approx(2.0)
     assert drive.max_abs_current(ramp, 2.0) == pytest.approx(1.0)
-    # a heavy ion species of charge 2: sum |q| n c
-    sp = load_deck(pair_rest(current=1.0)).species
-    assert drive.carrying_limit(sp) == pytest.approx(1.0)
+    # electrons (density 1), positrons (0.5) and an ion species of charge 2 (0.25): sum |q| n c
+    raw = pair_rest(current=1.0)
+    raw["species"].append({"name": "ions", "charge": 2.0, "mass": 1836.0, "density": 0.25,
+                           "particles_per_cell": 8, "loading": "quiet"})
+    raw["species"][0]["density"] = 1.0              # neutral: 2 x 0.25 + 0.5 = 1.0
+    sp = load_deck(raw).species
+    assert drive.carrying_limit(sp) == pytest.approx(1.0 + 0.5 + 0.5)
 
 
 def test_bulk_lorentz_factor_of_simple_flows():

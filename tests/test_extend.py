@@ -26,7 +26,7 @@ T1, T2, T3 = 5.1, 9.0, 11.0
 
 def _raw(end, cadences=True):
     raw = pair_deck(cells=32, ppc=8, end=end, nwaves=2)
-    raw["output"] = {"modes": 8, "phase_space_particles": 64}
+    raw["output"] = {"recorded_modes": 8, "phase_space_particles": 64}
     if cadences:
         raw["output"].update(CADENCES)
     return raw

@@ -54,8 +54,20 @@ def test_quiet_quantiles_are_a_permutation_of_even_quantiles():
     """Quiet start: evenly spaced quantiles (Birdsall & Langdon 1991, ch. 16)."""
     q = loading.bit_reversed_quantiles(1000)
     np.testing.assert_allclose(np.sort(q), (np.arange(1000) + 0.5) / 1000)
-    # bit-reversed order: neighbours in position are far apart in momentum
-    assert np.mean(np.abs(np.diff(q))) > 0.3
+    # bit-reversed (van der Corput, base 2) order, computed here by reversing binary strings:
+    # for n = 2^m, particle i takes quantile (rev_m(i) + 1/2)/n; otherwise the rank of rev(i)
+    # among rev(0..n-1) (Birdsall & Langdon 1991, sec. 16-3; van der Corput 1935)
+    def rev(i, m):
+        return int(format(i, f"0{m}b")[::-1], 2)
+    q = loading.bit_reversed_quantiles(1024)
+    np.testing.assert_array_equal(q, [(rev(i, 10) + 0.5) / 1024 for i in range(1024)])
+    r = [rev(i, 10) for i in range(1000)]
+    rank = {v: j for j, v in enumerate(sorted(r))}
+    np.testing.assert_array_equal(loading.bit_reversed_quantiles(1000),
+                                  [(rank[v] + 0.5) / 1000 for v in r])
+    # so every leading block of 2^j particles fills the 2^j equal quantile bins once each
+    for j in range(1, 11):
+        assert sorted(np.floor(q[: 2**j] * 2**j).astype(int)) == list(range(2**j))
 
 
 def test_displacement_seeds_the_requested_density_wave():

@@ -9,6 +9,7 @@ import subprocess
 import sys
 import time
 
+import pytest
 import tomli_w
 
 from conftest import pair_deck
@@ -51,10 +52,10 @@ def test_a_finished_run_of_another_deck_is_refused_unless_forced(tmp_path, capsy
     deck, raw = _deck_file(tmp_path)
     out = tmp_path / "run"
     assert main(["run", str(deck), "--quiet", "--out", str(out), "--no-figures"]) == 0
-    first = (out / io.FILES["summary"]).read_text()
     # the same deck reruns as before
     assert main(["run", str(deck), "--quiet", "--out", str(out), "--no-figures"]) == 0
     capsys.readouterr()
+    first = {p.relative_to(out): p.read_bytes() for p in sorted(out.rglob("*")) if p.is_file()}
     # another deck (one key changed) is refused, naming that key, and nothing is overwritten
     rc = main(["run", str(deck), "--quiet", "--out", str(out), "--no-figures",
                "--set", "random_seed=7"])
@@ -62,7 +63,8 @@ def test_a_finished_run_of_another_deck_is_refused_unless_forced(tmp_path, capsy
     assert rc == 2
     assert err[-1].startswith("deck error:") and "random_seed differs" in err[-1]
     assert json.loads((out / io.FILES["summary"]).read_text())["status"] == "completed"
-    assert (out / io.FILES["summary"]).read_text() != "" and first
+    after = {p.relative_to(out): p.read_bytes() for p in sorted(out.rglob("*")) if p.is_file()}
+    assert after == first                       # every file byte for byte as before the refusal
     assert main(["run", str(deck), "--quiet", "--out", str(out), "--no-figures",
                  "--set", "random_seed=7", "--force"]) == 0
 
@@ -126,6 +128,10 @@ def test_a_deck_in_physical_units_runs_bit_identically_to_its_normalised_twin():
         s["temperature_kev"] = 0.5                      # theta = 0.5 / 511 keV
     physical = load_deck(raw)
     twin = load_deck(physical.to_dict())
+    # 40 cm over c/omega_p, omega_p = 5.64e4 n^1/2 rad/s (NRL Plasma Formulary) at 1e10 cm^-3, and
+    # theta = 0.5 keV / m_e c^2 with m_e c^2 = 510.99895 keV (CODATA 2018)
+    assert physical.box.length == pytest.approx(40.0 * 5.64e4 * 1e5 / 2.99792458e10, rel=1e-3)
+    assert physical.species[0].theta == pytest.approx(0.5 / 510.99895, rel=1e-8)
     assert twin.box.length == physical.box.length and twin.species[0].theta == physical.species[0].theta
     a = pipeline.run(physical, write=False, analyze=False)
     b = pipeline.run(twin, write=False, analyze=False)

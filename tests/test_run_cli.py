@@ -64,6 +64,19 @@ def test_openpmd_fields_are_in_si_via_unitSI(small_run):
         assert e["x"].attrs["unitSI"] == pytest.approx(sc.m_e * sc.c * wp / sc.e, rel=1e-3)
         dens = f[f"data/{it}/meshes/density_electrons"][()]
         assert dens.mean() == pytest.approx(0.5, rel=1e-12)
+        meshes = [f[f"data/{i}/meshes"] for i in sorted(f["data"], key=int)]
+        meshes = [m for m in meshes if "rho" in m]             # the field-cadence iterations
+        assert len(meshes) > 5
+        for m in meshes:
+            rho = m["rho"]
+            # rho in units of e n_ref: e = 1.602176634e-19 C (SI 2019 exact), n_ref = 1e10 cm^-3
+            assert rho.attrs["unitSI"] == pytest.approx(1.602176634e-19 * 1e10 * 1e6, rel=1e-9)
+            r = rho[()] * rho.attrs["unitSI"]                 # C/m^3
+            # charge density is sum_s q_s n_s (Gauss) and integrates to zero: a neutral pair plasma
+            np.testing.assert_allclose(rho[()], m["density_positrons"][()] - m["density_electrons"][()],
+                                       rtol=0, atol=1e-12)
+            scale = 0.5 * rho.attrs["unitSI"] * r.size          # one species' charge, C/m^3 x cells
+            assert abs(r.sum()) < 1e-12 * scale
 
 
 def test_resolved_deck_reloads_to_the_same_deck(small_run):

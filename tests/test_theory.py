@@ -98,7 +98,7 @@ def test_weak_cold_beam_into_cold_plasma(nb):
     # the same cold dispersion relation solved independently (beam mass gamma_b^3 m: only
     # n_b/gamma_b^3 enters; Bret, Gremillet & Dieckmann 2010)
     assert g == pytest.approx(_weak_beam_exact(nb, beta), rel=1e-7)
-    # classic weak-beam limit: gamma_max -> (sqrt3 / 2^(4/3)) (n_b/n_p)^(1/3) omega_p / gamma_b
+    # weak-beam limit: gamma_max -> (sqrt3 / 2^(4/3)) (n_b/n_p)^(1/3) omega_p / gamma_b
     # (e.g. Krall & Trivelpiece 1973, sec. 9.4; references.weak_beam_law), at k v_b -> omega_p.
     # The limit is approached with a relative correction of order (n_b/n_p)^(1/3) (the next term
     # of the same expansion in delta = omega - omega_p): at n_b/n_p = 1e-3 the exact root lies
@@ -140,7 +140,7 @@ def test_landau_roots(k_lambda):
     # widely tabulated Landau roots (e.g. Canosa, J. Comput. Phys. 13, 158 (1973); from memory)
     assert abs(w.real - tabulated.real) < 1e-3
     assert abs(w.imag - tabulated.imag) < 1e-3
-    # an independent root of the textbook eps with wofz (Fried & Conte 1961), by scipy's secant
+    # an independent root of the Maxwellian eps with wofz (Fried & Conte 1961), by scipy's secant
     # from the tabulated value (references.maxwellian_root)
     root = references.maxwellian_root(k_lambda, guess=tabulated)
     assert abs(w - root) < 1e-9
@@ -366,11 +366,15 @@ def test_maxwellian_box_modes_give_landau_damping():
 
 
 def test_growth_time_units_module():
-    # growth_time_ns is units.growth_time_ns of the rate (one conversion place)
+    # growth_time_ns = 1/(gamma omega_p) with omega_p = 5.64e4 n^1/2 rad/s (NRL Plasma Formulary)
     deck = load_deck(None)
     d = theory.theory_for_deck(deck).to_dict(density_cm3=1e12)
+    wp = 5.64e4 * math.sqrt(1e12)
     assert d["fastest"]["growth_time_ns"] == pytest.approx(
-        units.growth_time_ns(d["fastest"]["growth"], 1e12))
+        1e9 / (d["fastest"]["growth"] * wp), rel=1e-3)
+    # and the rate is the cold symmetric-beam maximum omega_b/2 (Birdsall & Langdon 1991; from
+    # memory), omega_b^2 = omega_ps^2/gamma0^3, for the default deck's beta = 0.1 pair
+    assert d["fastest"]["growth"] == pytest.approx(0.5 * math.sqrt(0.5 * (1 - 0.01) ** 1.5), rel=1e-6)
 
 
 # --------------------------------------------------------------------------------------------

@@ -112,7 +112,7 @@ def four_efold_rate(t, amplitude):
 # ----------------------------------------------------------------------------------------------
 @pytest.mark.parametrize("kl, end", [(0.5, 30.0), (0.3, 80.0)])
 def test_linear_landau_damping_matches_the_wofz_root(kl, end):
-    """A 1e-3 seed rings and damps noise-free; frequency within 0.5 % and damping within 2 % of
+    """A 1e-3 seed rings and damps noise-free; frequency within 0.03 % and damping within 1.2 % of
     the least-damped Maxwellian root (Fried & Conte 1961 Z = i sqrt(pi) wofz, via
     streamsim.validation.references). Fit after t = 10, when the faster-damped roots are gone."""
     from streamsim.analysis.fits import fit_damped_oscillation, wave_signal
@@ -122,20 +122,23 @@ def test_linear_landau_damping_matches_the_wofz_root(kl, end):
     sig = wave_signal(res.series.mode_amplitude[:, 0])
     sel = t > 10.0
     fit = fit_damped_oscillation(t[sel], sig[sel], root.real, root.imag)
-    assert fit.omega == pytest.approx(root.real, rel=5e-3)
-    assert fit.damping == pytest.approx(-root.imag, rel=2e-2)
+    # measured (README, Vlasov checks): omega -0.004 % / -0.010 %, damping -0.10 % / -0.39 %
+    # at k lambda_D = 0.5 / 0.3; about 3x the larger allowed
+    assert fit.omega == pytest.approx(root.real, rel=3e-4)
+    assert fit.damping == pytest.approx(-root.imag, rel=1.2e-2)
 
 
 def test_warm_pair_beam_growth_matches_the_kinetic_root():
     """Symmetric drifting-Juttner beams (u = +-0.5, theta = 0.02) grow from a 1e-8 seed at the
     purely growing root of the relativistic Vlasov dielectric, by independent quadrature
-    (references.symmetric_juttner_growth: scipy quad + brentq), within 1 %."""
+    (references.symmetric_juttner_growth: scipy quad + brentq), within 0.05 % (README, Vlasov
+    checks: measured -0.02 %)."""
     k = 0.5
     g_ref = ref.symmetric_juttner_growth(k, 0.5, 0.5, 0.02, upper=0.5)
     res = run(pair_deck(k, drift_u=0.5, theta=0.02, amplitude=1e-8, end=100.0), write=False,
               analyze=False)
     rate, _ = four_efold_rate(res.series.t, np.abs(res.series.mode_amplitude[:, 0]))
-    assert rate == pytest.approx(g_ref, rel=1e-2)
+    assert rate == pytest.approx(g_ref, rel=5e-4)
 
 
 # ----------------------------------------------------------------------------------------------
