@@ -410,6 +410,11 @@ class PeakSnapshot(Handler):
         self.value = -math.inf if v is None else float(v)
 
 
+def _emission_recorder(deck):
+    from .emission_snapshots import EmissionSnapshots   # one handler in its own module
+    return [EmissionSnapshots]
+
+
 def _drive_recorder(deck):
     if deck.drive is None:
         return []
@@ -420,7 +425,8 @@ def _drive_recorder(deck):
 #: the recording handlers of a PIC run, in the order they are called: classes, or functions of
 #: the deck giving a list of classes (a handler that only some decks have). Add a recorded
 #: series here.
-PIC_HANDLERS = (PeakSnapshot, FieldSnapshots, PhaseSpaceSampler, SeriesRecorder, _drive_recorder)
+PIC_HANDLERS = (PeakSnapshot, FieldSnapshots, PhaseSpaceSampler, SeriesRecorder, _drive_recorder,
+                _emission_recorder)
 
 
 def handler_classes(deck, entries=PIC_HANDLERS) -> list[type]:

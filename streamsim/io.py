@@ -174,6 +174,7 @@ def save_figure(fig, path: str | Path, dpi: int = 110) -> Path:
 
     import matplotlib.pyplot as plt
     buf = _bio.BytesIO()
+    fig.set_dpi(dpi)  # laid out at the resolution it is saved at: each text is measured once
     try:
         fig.tight_layout()
     except (ValueError, RuntimeError):  # a layout that cannot be tightened is still drawn

@@ -100,13 +100,15 @@ def test_run_folder_files_and_commands(demo_runs):
     for key in ("growth", "modes", "contrast", "clumps", "coherence"):
         assert key in summ
     figs = sorted((folder / "figures").glob("*.png"))
-    assert len(figs) == 6 and all(p.stat().st_size > 5000 for p in figs)
+    # six figures and the emission history (emission.png: nu_c(t), clump size(t), delta n/n(t))
+    assert len(figs) == 7 and all(p.stat().st_size > 5000 for p in figs)
+    assert (folder / "figures" / "emission.png") in figs
     for p in figs:
         p.unlink()
     cmd = [sys.executable, "-m", "streamsim.cli"]
     out = subprocess.run(cmd + ["plot", str(folder)], capture_output=True, text=True)
     assert out.returncode == 0, out.stderr
-    assert len(list((folder / "figures").glob("*.png"))) == 6
+    assert len(list((folder / "figures").glob("*.png"))) == 7
     out = subprocess.run(cmd + ["analyze", str(folder), "--json", "--bulk-gamma", "3",
                                 "--no-figures"], capture_output=True, text=True)
     assert out.returncode == 0, out.stderr

@@ -127,7 +127,10 @@ def test_warm_run_at_resolved_debye_length_is_not_grid_limited():
 def test_error_bar_of_nu_c_agrees_with_the_replica_scatter():
     nus, errs = [], []
     for seed in range(10):
-        co = _run(pair_deck(cells=64, ppc=128, end=50.0, theta=2e-3, loading="random", seed=seed,
+        # ppc 256: the headline is the cutoff of the form factor averaged over the saturated
+        # window, whose envelope peak sits lower than the single maximum-contrast instant's; at
+        # 128 per cell half the seeds had no cutoff 20x above the 1/N floor over the window
+        co = _run(pair_deck(cells=64, ppc=256, end=50.0, theta=2e-3, loading="random", seed=seed,
                             nwaves=6), ["time.dt='auto'"])["coherence"]
         nu = co["frequency_cutoff_hz"] or co["frequency_cutoff_hz_lower_bound"]
         if nu is not None and co["frequency_cutoff_hz_err"] is not None:
@@ -173,17 +176,25 @@ def test_converge_command_on_a_tiny_deck(tmp_path):
         assert o["levels"][2]["particles_per_cell"] == {"electrons": 64, "positrons": 64}
         assert {"cells", "particles_per_cell", "dt", "value", "err"} <= set(o["levels"][0])
         # the verdict follows README's rule from the levels listed (grid-limited when the finest
-        # level is flagged; converged when |change| <= combined error or tolerance x |finest|)
+        # level is flagged; converged when every level has a value, the finest error is below
+        # the finest value, and both |change| and |Richardson estimate - finest| are <= the
+        # combined error or tolerance x |finest|)
         fine, prev = o["levels"][2], o["levels"][1]
         if fine["grid_limited"]:
             want = "grid-limited"
-        elif fine["value"] is None or prev["value"] is None:
+        elif any(lv["value"] is None for lv in o["levels"]):
             want = "not converged"
         else:
             ch = fine["value"] - prev["value"]
             assert o["change"] == pytest.approx(ch, rel=1e-12, abs=1e-300)
             comb = math.hypot(fine["err"] or 0.0, prev["err"] or 0.0)
-            ok = abs(ch) <= comb or abs(ch) <= study["tolerance"] * abs(fine["value"])
+            tol = study["tolerance"] * abs(fine["value"])
+            ok = abs(ch) <= comb or abs(ch) <= tol
+            if o["extrapolated"] is not None:
+                gap = o["extrapolated"] - fine["value"]
+                ok = ok and (abs(gap) <= comb or abs(gap) <= tol)
+            if fine["err"] is not None and fine["err"] >= abs(fine["value"]):
+                ok = False
             want = "converged" if ok else "not converged"
         assert o["verdict"] == want, name
         verdicts.add(o["verdict"])

@@ -16,6 +16,17 @@ Intentional changes since the baseline are listed in ``SCALED_BY_MEASURED_GAMMA`
 frequency by the measured bulk Lorentz factor Gamma; every coherence frequency now scales
 (nu_c = Gamma c k_c / 2 pi for all of them), so those entries are compared with baseline x Gamma.
 
+Intentional change since the baseline, the emission headline over the saturated window: the
+coherence and clumps headlines now carry window values, and the single instants the baseline
+holds moved to ``coherence.peak_snapshot`` / ``clumps.peak_snapshot``. Those blocks are compared
+as {headline entries, overridden by peak_snapshot's} against the baseline, except the entries
+that describe the headline itself (``REDEFINED``); added warnings and advice (the short-window
+warning, the field-energy flag's advice) are compared by their baseline text as a prefix. And a
+driven run's oscillation now compares with the root of the driven state, not of the initial
+state (``theory_*`` of ``oscillation`` in the driven decks are not compared; the charge-starved
+deck's ringing at 2.513 omega_p had the initial state's cold root 1.000 beside it, and now has
+the driven state's 2.513).
+
 Do not re-record the baseline to make this test pass: it must come from the code before the
 change it guards.
 """
@@ -49,6 +60,27 @@ SCALED_BY_MEASURED_GAMMA = (
 )
 
 
+#: blocks whose baseline (single-instant) entries now live under ``peak_snapshot``
+MOVED_TO_PEAK_SNAPSHOT = ("coherence", "clumps")
+#: entries of those blocks that describe the (window) headline itself, not the instant
+REDEFINED = {"definition", "error_estimator", "snapshot", "headline"}
+#: warnings added since the baseline (compared without them)
+ADDED_WARNINGS = ("the saturated window ",)
+
+
+def as_baseline(name: str, got: dict) -> dict:
+    """The new summary in the baseline's shape (module docstring: the intentional change)."""
+    out = dict(got)
+    for block in MOVED_TO_PEAK_SNAPSHOT:
+        b = got.get(block)
+        if isinstance(b, dict) and isinstance(b.get("peak_snapshot"), dict):
+            out[block] = {k: v for k, v in {**b, **b["peak_snapshot"]}.items()
+                          if k not in REDEFINED}
+    if isinstance(got.get("warnings"), list):
+        out["warnings"] = [w for w in got["warnings"] if not w.startswith(ADDED_WARNINGS)]
+    return out
+
+
 def trimmed(summary: dict) -> dict:
     """The summary without volatile entries; of the (large) theory block only ``fastest``."""
     out = {k: v for k, v in summary.items() if k not in VOLATILE}
@@ -80,6 +112,9 @@ def compare(expected, got, path: str, rtol: float, errors: list) -> None:
             return
         for i, (a, b) in enumerate(zip(expected, got)):
             compare(a, b, f"{path}[{i}]", rtol, errors)
+    elif isinstance(expected, str) and path.endswith(".flag"):
+        if not (isinstance(got, str) and got.startswith(expected)):   # advice appended since
+            errors.append(f"{path}: expected {expected!r:.120}..., got {got!r:.120}")
     elif isinstance(expected, bool) or expected is None or isinstance(expected, str):
         if got != expected:
             errors.append(f"{path}: expected {expected!r:.120}, got {got!r:.120}")
@@ -107,7 +142,14 @@ def put(d: dict, path: tuple, value) -> None:
 @pytest.mark.parametrize("name", list(DECKS))
 def test_numbers_unchanged_by_the_refactor(name, tmp_path):
     baseline = json.loads(BASELINE.read_text(encoding="utf-8"))[name]
-    got = run_deck(name, tmp_path / name)
+    got = as_baseline(name, run_deck(name, tmp_path / name))
+    for block in MOVED_TO_PEAK_SNAPSHOT:
+        for k in REDEFINED:
+            baseline.get(block, {}).pop(k, None)
+    if name.startswith("drive-"):
+        for row in baseline.get("oscillation") or []:
+            for k in [k for k in row if k.startswith("theory_")]:
+                row.pop(k)
     for path, gamma_path in SCALED_BY_MEASURED_GAMMA:
         if path[0] == name:
             old = get(baseline, path[1:])

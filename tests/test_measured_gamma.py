@@ -30,6 +30,9 @@ FREQS = ("frequency_cutoff_hz", "frequency_cutoff_hz_err", "frequency_cutoff_hz_
 
 
 def _both(overrides):
+    """The single instants (peak_snapshot, end) of the coherence block with the measured Gamma
+    and with Gamma = 1, the drive's Gamma(t), and the window headlines with the window's
+    record times."""
     r = streamsim.run(DECK, write=False, analyze=False, threads=1, overrides=overrides)
     meas = analysis.compute(r.data, analysis.options_for(r.deck, bulk_gamma="measured"))
     one = analysis.compute(r.data, analysis.options_for(r.deck, bulk_gamma=1.0))
@@ -37,7 +40,33 @@ def _both(overrides):
 
     def gamma(t, name):
         return float(np.interp(t, tab.col("t"), tab.col(f"gamma_bulk_{name}")))
-    return (meas["coherence"].summary["coherence"], one["coherence"].summary["coherence"], gamma)
+    cm, c1 = meas["coherence"].summary["coherence"], one["coherence"].summary["coherence"]
+    ser = meas["emission"].tables["emission_series"]
+    t_win = ser.col("t")[ser.col("in_window").astype(bool)]
+    _window.update(cm=cm, c1=c1, t=t_win)
+    return ({**cm["peak_snapshot"], "end": cm["end"]}, {**c1["peak_snapshot"], "end": c1["end"]},
+            gamma)
+
+
+_window: dict = {}
+
+
+def _check_window(gamma, head_keys):
+    """Over the saturated window each species' Gamma is its mean over the window's records, and
+    every window frequency is that Gamma x the Gamma = 1 frequency."""
+    cm, c1, t = _window["cm"], _window["c1"], _window["t"]
+    assert t.size >= 2
+    for name, r in cm["by_species"].items():
+        Gs = float(np.mean([gamma(x, name) for x in t]))
+        assert r["bulk_gamma"] == pytest.approx(Gs, rel=1e-4), name
+        if r.get("frequency_cutoff_hz") is not None:
+            assert r["frequency_cutoff_hz"] == pytest.approx(
+                Gs * c1["by_species"][name]["frequency_cutoff_hz"], rel=1e-9)
+    if cm.get("species") is not None:
+        G = cm["by_species"][cm["species"]]["bulk_gamma"]
+        assert cm["bulk_gamma"] == pytest.approx(G, rel=1e-12)
+        for key in head_keys:
+            assert cm[key] == pytest.approx(G * c1[key], rel=1e-9), key
 
 
 def _check(cm, c1, gamma, head_keys, species_keys, end_keys):
@@ -69,6 +98,7 @@ def test_every_frequency_scales_with_the_measured_gamma_warm_not_grid_limited():
            end_keys=("frequency_cutoff_hz",))
     # the end snapshot has its own Gamma (the flow keeps accelerating), not the peak's
     assert cm["end"]["bulk_gamma"] > cm["bulk_gamma"] * 1.1
+    _check_window(gamma, ("frequency_cutoff_hz", "frequency_cutoff_hz_err"))
 
 
 def test_every_frequency_scales_with_the_measured_gamma_grid_limited():

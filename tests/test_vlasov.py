@@ -343,7 +343,16 @@ def test_compare_cli_writes_the_contract(tmp_path):
     assert proc.returncode == 0, proc.stderr
     c = json.loads((out / "compare.json").read_text())
     assert json.loads(proc.stdout) == c
-    assert set(c) == {"pic", "vlasov", "relative_difference"}
+    assert {"pic", "vlasov", "relative_difference"} <= set(c)
+    # each output also carries both methods' error bars and a verdict against their combination
+    assert {"pic_err", "vlasov_err", "verdict"} <= set(c)
+    for key, v_ in c["verdict"].items():
+        p_, q_, ep, eq = c["pic"][key], c["vlasov"][key], c["pic_err"][key], c["vlasov_err"][key]
+        if p_ is None or q_ is None or (ep is None and eq is None):
+            assert v_.startswith("no verdict")
+            continue
+        # agree when the difference is within 2 combined standard errors (common practice)
+        assert v_.startswith("agree") == (abs(p_ - q_) <= 2 * math.hypot(ep or 0, eq or 0))
     for key in ("growth.measured", "contrast.max", "coherence.frequency_cutoff_hz",
                 "clumps.size_median", "coherence.k_cutoff", "contrast.t_unity_ns",
                 "energy.relative_error_max"):

@@ -63,13 +63,26 @@ def scan_columns() -> list[ScanColumn]:
     return [c for block in BLOCKS for c in getattr(block, "SCAN_COLUMNS", [])]
 
 
-def write_outputs(results, data, folder, *, figures: bool = True) -> list[Path]:
-    """Tables (CSV, analysis.h5) and, with ``figures``, every block's figures."""
+def write_outputs(results, data, folder, *, figures: bool = True, painter=None) -> list[Path]:
+    """Tables (CSV, analysis.h5) and, with ``figures``, every block's figures, drawn in other
+    processes while the tables are written (:class:`streamsim.plots.Painter`; pass one made
+    before the analysis to overlap its start with the computation)."""
     from .writers import write_tables
-    paths = write_tables(results, folder)
+    if figures and painter is None:
+        from ..plots import Painter
+        painter = Painter(data, folder)
     if figures:
-        from ..plots import draw_figures
-        paths += draw_figures(results, data, folder)
+        painter.draw(results)
+    try:
+        paths = write_tables(results, folder)
+    except BaseException:
+        if painter is not None:
+            painter.close()
+        raise
+    if figures:
+        paths += painter.wait()
+    elif painter is not None:
+        painter.close()
     return paths
 
 

@@ -19,7 +19,7 @@ import numpy as np
 from .. import units
 
 __all__ = ["first_crossing", "contrast_block", "species_contrast", "exponential_phase",
-           "initial_level", "t_unity_for_level", "LINEAR_TOP", "FIT_RMS", "MIN_EFOLDS",
+           "initial_level", "t_unity_for_level", "t_unity_for_level_err", "LINEAR_TOP", "FIT_RMS", "MIN_EFOLDS",
            "NOISE_MARGIN"]
 
 #: the exponential phase is fitted below this max delta n/n (still linear: common practice)
@@ -93,6 +93,20 @@ def t_unity_for_level(t_unity: float, level0: float, rate: float, level: float) 
     measured starting level level0 to ``level`` (assumes the same linear growth below level0
     and the same nonlinear phase above it)."""
     return float(t_unity + math.log(level0 / level) / rate)
+
+
+def t_unity_for_level_err(t_unity: float, level0: float, rate: float, level: float,
+                          rate_err: float | None, ln_level0_err: float | None):
+    """(t_L, its error) with t_L = t_unity + ln(level0 / level) / rate (:func:`t_unity_for_level`)
+    and first-order error propagation (e.g. Taylor 1997, An Introduction to Error Analysis,
+    ch. 3): sigma^2 = (ln(level0/level) sigma_rate / rate^2)^2 + (sigma_ln level0 / rate)^2.
+    The error is None without a rate error."""
+    tl = t_unity_for_level(t_unity, level0, rate, level)
+    if rate_err is None:
+        return tl, None
+    a = math.log(level0 / level) * rate_err / rate ** 2
+    b = (ln_level0_err or 0.0) / rate
+    return tl, float(math.hypot(a, b))
 
 
 def _finite(v):

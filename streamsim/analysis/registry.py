@@ -3,15 +3,16 @@ from ``ctx.results``). Adding a block: one module in :mod:`streamsim.analysis.bl
 line here."""
 from __future__ import annotations
 
-from .blocks import bulk_gamma, clumps, coherence, contrast, drive, growth, oscillation, \
-    phase_space
+from .blocks import bulk_gamma, clumps, coherence, contrast, drive, emission, growth, \
+    oscillation, phase_space
 
 BLOCKS = (
     growth,
     oscillation,
     contrast,
-    clumps,
     bulk_gamma,
+    emission,
+    clumps,
     coherence,
     phase_space,
     drive,

@@ -1,5 +1,4 @@
-"""`streamsim run [DECK] [--out DIR] [--set k=v ...] [--quiet] [--resume [RUN_DIR]]
-[--replicas R [--workers N] [--scheduler ADDRESS | --local-cluster]]`."""
+"""`streamsim run [DECK] [options]`: run a deck and analyse it (the options: `add_arguments`)."""
 from __future__ import annotations
 
 from pathlib import Path
@@ -13,7 +12,8 @@ HELP = "run a deck (none: the built-in symmetric pair-beam demo) and analyse it"
 def add_arguments(p) -> None:
     add_deck_arguments(p)
     p.add_argument("--out", metavar="DIR", help="run folder (default: the deck's output.folder, "
-                   "runs/out/<title>)")
+                   "runs/out/<title-slug>: the title in lower case, '-' for each run of "
+                   "characters other than letters and digits)")
     p.add_argument("--quiet", action="store_true",
                    help="no progress bar and no summary (warnings and refusals still go to "
                         "stderr)")
@@ -21,7 +21,7 @@ def add_arguments(p) -> None:
                    help="continue an interrupted run from its checkpoint, or extend a run to a "
                         "later end with --set time.end=T, keeping its cadences (RUN_DIR, else "
                         "--out, else the deck's folder; with no DECK the run folder's deck.toml "
-                        "is used)")
+                        "is used); with --replicas, continue the replicas' folder")
     p.add_argument("--threads", type=int, default=None, metavar="T",
                    help="numba threads (default: the deck's output.threads, 0 = all cores)")
     p.add_argument("--no-analysis", action="store_true", help="write the raw outputs only")
@@ -102,7 +102,39 @@ def replica_lines(res) -> str:
         f"{done} of {len(res.rows)} replicas completed; mean +- standard error of the mean:",
         f"  fastest growth rate: {pm(res.growth, '.4g')} w_p{th}",
         f"  t_unity: {pm(res.t_unity_ns, '.4g')} ns",
+        *_emission_lines(getattr(res, "emission", {}) or {}),
         f"  every replica in {res.out / 'replicas.csv'}"])
+
+
+def _emission_lines(em: dict) -> list[str]:
+    """nu_c and clump size over the replicas, with one run's budget and its dominant term."""
+    out = []
+    for key, what, scale, unit in (("nu_c_hz", "nu_c", 1e-9, "GHz"),
+                                   ("clump_size_median_cm", "clump size", 1.0, "cm")):
+        e = em.get(key) or {}
+        if e.get("mean") is None:
+            continue
+        b = e.get("one_run_budget") or {}
+        se = e.get("standard_error_of_mean")
+        terms = ", ".join(f"{k} {v * scale:.2g}" for k, v in (b.get("terms") or {}).items()
+                          if v is not None)
+        out.append(f"  {what}: {e['mean'] * scale:.4g}"
+                   + (f" +- {se * scale:.2g}" if se is not None else "") + f" {unit} "
+                   f"(n = {e['n']}); one run's error: {terms}"
+                   + (f"; combined {b['combined'] * scale:.2g} (dominant: {b['dominant']})"
+                      if b.get("combined") is not None else ""))
+    return out
+
+
+def _tolerance(e: dict) -> str:
+    """The energy error against its tolerance, with what to do when it is exceeded."""
+    tol = e.get("tolerance")
+    if tol is None:
+        return ""
+    if e.get("warning"):
+        return (f" > tolerance {tol:g} (analysis.energy_tolerance): lower time.dt or refine "
+                "box.cells")
+    return f" (within the tolerance {tol:g})"
 
 
 def _print_summary(result) -> None:
@@ -117,7 +149,8 @@ def _print_summary(result) -> None:
     lines = [f"{s['deck_title']}: {s['steps']} steps, {size}",
              f"  n_ref = {n['density_cm3']:.3g} cm^-3: 1/omega_p = {n['time_unit_ns']:.4g} ns, "
              f"c/omega_p = {n['skin_depth_cm']:.4g} cm",
-             f"  energy error max {s['energy']['relative_error_max']:.2e}"]
+             f"  energy error max {s['energy']['relative_error_max']:.2e}"
+             + _tolerance(s["energy"])]
     text = terminal_lines(result.analysis)
     if text:
         lines.append(text)

@@ -31,10 +31,10 @@ def add_arguments(parser) -> None:
                              "cold unstable band)")
     parser.add_argument("--nk", type=int, default=400, metavar="N",
                         help="points of the growth curve in (0, kmax] (default 400, at least 8)")
-    parser.add_argument("--model", choices=_MODELS, default=None,
-                        help="dielectric model (default: the one the deck implies: cold if every "
-                             "species is cold, waterbag, juttner for warm species, table for a "
-                             "tabulated species)")
+    parser.add_argument("--model", choices=_MODELS, default=None, metavar="MODEL",
+                        help=f"dielectric model, one of {', '.join(_MODELS)} (default: the one "
+                             "the deck implies: cold if every species is cold, waterbag, juttner "
+                             "for warm species, table for a tabulated species)")
     parser.add_argument("--all", action="store_true", dest="all_modes",
                         help=f"list every box mode in the table (default: the growing ones, at "
                              f"most {MAX_ROWS})")

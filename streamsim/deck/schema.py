@@ -169,8 +169,9 @@ class Output:
     recorded_modes: int = deck_key("int", None, check=ge(1),
                                    help="|E_k| recorded for m = 1..recorded_modes")
     checkpoint_interval: float | None = deck_key(
-        "float", None, check=finite_nonneg,
-        help="1/omega_p (default end/10); 0 = only at the end and on a signal")
+        "float", None, check=finite_nonneg, write="if_set",
+        help="1/omega_p; unset: every 5 min of wall-clock time (plus the end and a signal); "
+             "0 = only at the end and on a signal")
     threads: int = deck_key("int", 0, check=ge(0), help="numba threads; 0 = all cores")
 
 
@@ -310,7 +311,7 @@ class Deck:
                 and self.time.dt is not None and self.perturbation.phases is not None
                 and all(s.theta is not None and s.temperature_kev is not None for s in self.species)
                 and None not in (o.diagnostics_interval, o.fields_interval,
-                                 o.phase_space_interval, o.checkpoint_interval)
+                                 o.phase_space_interval)
                 and (self.drive is None or self.drive.current is not None))
 
     def to_dict(self) -> dict:

@@ -15,9 +15,13 @@ f_3 + (f_3 - f_2)/(F^p - 1) (Richardson 1911; e.g. Roache 1998, Verification and
 Computational Science and Engineering, ch. 5); and a verdict:
 
 - ``grid-limited``: the run flags the output as set by the grid at the finest level;
-- ``converged``: |change| <= the combined error of the two finest levels, or <= ``tolerance``
-  x |finest value|;
-- ``not converged``: otherwise (also when a level has no value).
+- ``converged``: every level has a value, the finest level's error is below its value, and
+  both |change| and |Richardson estimate - finest value| (when there is one) are <= the
+  combined error of the two finest levels or <= ``tolerance`` x |finest value|;
+- ``not converged``: otherwise, with the ``reason``.
+
+The Richardson gap is also an error term of the finest value: ``error_terms`` holds it beside
+the statistical error, ``total_err`` their quadrature sum.
 """
 from __future__ import annotations
 
@@ -47,7 +51,7 @@ class Output:
 OUTPUTS = (
     Output("growth_rate", "omega_p", ("growth", "measured"), ("growth", "measured_err"), None),
     Output("t_unity_ns", "ns", ("contrast", "t_unity_ns"), None, None),
-    Output("contrast_max", "", ("contrast", "max"), None, None),
+    Output("contrast_max", "", ("contrast", "max"), None, ("contrast", "max_grid_limited")),
     Output("clump_size_median_cm", "cm", ("clumps", "size_median_cm"),
            ("clumps", "size_median_err_cm"), ("clumps", "grid_limited")),
     Output("k_c", "omega_p/c", ("coherence", "k_cutoff"), ("coherence", "k_cutoff_err"),
@@ -143,24 +147,59 @@ def richardson(f1: float, f2: float, f3: float, factor: float):
 
 def assess_output(levels: list[dict], factor: float, tolerance: float = DEFAULT_TOLERANCE,
                   limited: bool = False) -> dict:
-    """change, order, extrapolated and verdict of one output from its levels
-    [{"value", "err", ...}] (coarse to fine); ``limited``: grid-limited at the finest level."""
+    """change, order, extrapolated, error terms and verdict of one output from its levels
+    [{"value", "err", ...}] (coarse to fine); ``limited``: grid-limited at the finest level.
+
+    Verdict "converged" only when every level has a value, the error of the finest level is
+    smaller than the value itself, and both the last change and the gap between the finest level
+    and the Richardson estimate (where the three finest levels give one) lie within the
+    statistical error of the two finest levels or within ``tolerance`` x |finest value|."""
     vals = [finite_or_none(lv.get("value")) for lv in levels]
     errs = [finite_or_none(lv.get("err")) for lv in levels]
     out = {"change": None, "relative_change": None, "combined_err": None, "order": None,
-           "extrapolated": None, "verdict": "not converged"}
+           "extrapolated": None, "richardson_gap": None, "error_terms": None,
+           "total_err": None, "verdict": "not converged", "reason": None}
+    reasons = []
+    missing = [i for i, v in enumerate(vals) if v is None]
+    if missing:
+        reasons.append("no value at level " + ", ".join(str(i) for i in missing))
+    comb = None
+    within = []
     if len(vals) >= 2 and vals[-1] is not None and vals[-2] is not None:
         ch = vals[-1] - vals[-2]
         out["change"] = ch
         out["relative_change"] = ch / abs(vals[-1]) if vals[-1] else None
-        comb = math.sqrt((errs[-1] or 0.0) ** 2 + (errs[-2] or 0.0) ** 2)
-        out["combined_err"] = comb if (errs[-1] is not None or errs[-2] is not None) else None
-        if abs(ch) <= comb or abs(ch) <= tolerance * abs(vals[-1]):
-            out["verdict"] = "converged"
+        if errs[-1] is not None or errs[-2] is not None:
+            comb = math.sqrt((errs[-1] or 0.0) ** 2 + (errs[-2] or 0.0) ** 2)
+        out["combined_err"] = comb
+        within.append(("last change", ch))
     if len(vals) >= 3 and None not in vals[-3:]:
         out["order"], out["extrapolated"] = richardson(*vals[-3:], factor)
+        if out["extrapolated"] is not None:
+            out["richardson_gap"] = out["extrapolated"] - vals[-1]
+            within.append(("Richardson gap", out["richardson_gap"]))
+    terms = {"statistical": comb, "richardson_gap": (abs(out["richardson_gap"])
+                                                      if out["richardson_gap"] is not None
+                                                      else None)}
+    have = [v for v in terms.values() if v is not None]
+    out["error_terms"] = terms
+    out["total_err"] = math.sqrt(sum(v * v for v in have)) if have else None
+    f3 = vals[-1] if vals else None
+    for what, d in within:
+        if not (abs(d) <= (comb or 0.0) or (f3 is not None and abs(d) <= tolerance * abs(f3))):
+            reasons.append(f"{what} {d:.3g} exceeds both the statistical error "
+                           f"{'n/a' if comb is None else format(comb, '.2g')} and the tolerance "
+                           f"{tolerance:g} x |finest value|")
+    if f3 is not None and errs[-1] is not None and errs[-1] >= abs(f3):
+        reasons.append(f"the finest level's error {errs[-1]:.2g} is not smaller than its value")
+    if not within:
+        reasons.append("fewer than two levels with a value")
+    if not reasons:
+        out["verdict"] = "converged"
+    out["reason"] = "; ".join(reasons) or None
     if limited:
         out["verdict"] = "grid-limited"
+        out["reason"] = "the finest level flags the output as set by the grid"
     return out
 
 
@@ -214,9 +253,11 @@ def collect_study(scan, out: Path, levels: list[dict], factor: float, replicas: 
     return {"deck": scan.title, "factor": factor, "levels": len(levels), "replicas": replicas,
             "tolerance": tolerance, "outputs": outputs,
             "verdict_rule": "grid-limited when the finest level flags the output as set by the "
-                            "grid; converged when |change between the two finest levels| <= "
-                            "their combined error or <= tolerance x |finest value|; else not "
-                            "converged",
+                            "grid; converged when every level has a value, the finest error is "
+                            "below the finest value, and both |change between the two finest "
+                            "levels| and |Richardson estimate - finest value| are <= their "
+                            "combined error or <= tolerance x |finest value|; else not "
+                            "converged (see reason)",
             "error_rule": "per level: the larger of the replicas' standard error of the mean and "
                           "sqrt(sum of the runs' own errors^2)/R",
             "extrapolation": "Richardson from the three finest levels when monotone: "

@@ -4,7 +4,8 @@
   combination of the other axes; markers are the mean over replicas with the standard deviation
   of the replicas as error bars (one replica: the fit's 1-sigma error); the line is the linear
   theory for the same box mode, the dashed line the theory's fastest mode.
-- ``nu_c_vs_<axis>.png``: the coherence cutoff frequency nu_c (Hz) against the axis.
+- ``nu_c_vs_<axis>.png``: the coherence cutoff frequency nu_c (Hz) against the axis; where it is
+  grid-limited, its lower bound as an upward arrow.
 - ``growth_time_map.png`` (two axes, product scan): measured growth time and measured/theory
   over the two axes.
 """
@@ -132,9 +133,31 @@ def _growth_vs_axis(scan, rows, i, folder) -> Path:
     return _save(fig, folder / f"growth_time_vs_{_slug(scan.axes[i].name)}.png")
 
 
+def _lower_bounds(scan, rows, i, ax, column: str) -> int:
+    """Draw the grid-limited lower bounds of ``column`` as upward arrows (a bound, not a value);
+    returns how many points were drawn."""
+    stats = replica_stats(rows, column)
+    if not stats:
+        return 0
+    xs = {}
+    for r in rows:
+        xs.setdefault(r["point"], r[scan.axes[i].name])
+    px = [xs[p] for p in stats]
+    py = [stats[p][0] for p in stats]
+    ax.errorbar(px, py, yerr=[[0.0] * len(py), [0.3 * y for y in py]], lolims=True, fmt="^",
+                color="0.3", ms=6, capsize=0, ls="none",
+                label="lower bound (grid-limited: raise box.cells or warm the beams)")
+    return len(py)
+
+
 def _nu_c_vs_axis(scan, rows, i, folder) -> Path:
     fig, ax = plt.subplots(figsize=(9.5, 4.5))
-    _line_plot(scan, rows, i, ax, "nu_c_hz", None, [], "coherence cutoff nu_c (Hz)")
+    _line_plot(scan, rows, i, ax, "nu_c_hz", "nu_c_hz_err", [], "coherence cutoff nu_c (Hz)")
+    if _lower_bounds(scan, rows, i, ax, "nu_c_lower_bound_hz"):
+        for t in ax.texts:
+            if t.get_text() == "no completed run has this value":
+                t.remove()
+        ax.legend(fontsize=7, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0)
     gammas = sorted({r["bulk_gamma"] for r in rows if r.get("bulk_gamma") is not None})
     g = ", ".join(_fmt(v) for v in gammas) if gammas else "n/a"
     fig.suptitle(f"{scan.title}: nu_c = Gamma c k_c / 2 pi (Gamma = {g}) vs {scan.axes[i].name}",

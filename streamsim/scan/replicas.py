@@ -28,7 +28,8 @@ __all__ = ["ReplicaStats", "ReplicaResult", "run_replicas", "mean_and_standard_e
 
 #: replicas.csv columns, in order
 REPLICA_COLUMNS = ("replica", "random_seed", "status", "growth_mode", "growth_measured",
-                   "growth_measured_err", "growth_method", "t_unity_ns", "folder")
+                   "growth_measured_err", "growth_method", "t_unity_ns", "folder", "nu_c_hz",
+                   "nu_c_hz_err", "clump_size_median_cm", "clump_size_median_err_cm")
 
 
 @dataclass
@@ -49,6 +50,32 @@ class ReplicaResult:
     t_unity_ns: ReplicaStats
     theory_growth: float | None = None
     warnings: list[str] = field(default_factory=list)
+    emission: dict = field(default_factory=dict)
+
+
+def emission_budget(values, within, terms_per_run) -> dict:
+    """The error budget of ONE run's emission number with replicas: the median over the runs of
+    each within-run term (mode-to-mode or clump-to-clump, window) and the replica spread s
+    (sample standard deviation over the replicas), combined in quadrature (conservative: the
+    spread also holds part of the within-run scatter); and the ensemble mean with s / sqrt(n)."""
+    import statistics
+    st = mean_and_standard_error(values)
+    v = [float(x) for x in values if x is not None and math.isfinite(float(x))]
+    spread = statistics.stdev(v) if len(v) >= 2 else None
+    names = sorted({k for t in terms_per_run if t for k in t if k != "replica"})
+    terms = {}
+    for k in names:
+        got = [t[k] for t in terms_per_run if t and t.get(k) is not None]
+        terms[k] = statistics.median(got) if got else None
+    terms["replica"] = spread
+    have = {k: x for k, x in terms.items() if x is not None}
+    comb = math.sqrt(sum(x * x for x in have.values())) if have else None
+    return {"mean": st.mean, "standard_error_of_mean": st.standard_error, "n": st.n,
+            "one_run_budget": {"terms": terms, "combined": comb,
+                               "dominant": max(have, key=have.get) if have else None,
+                               "combination": "quadrature sum of the terms"},
+            "within_run_err_median": (statistics.median([w for w in within if w is not None])
+                                      if any(w is not None for w in within) else None)}
 
 
 def mean_and_standard_error(values) -> ReplicaStats:
@@ -92,16 +119,29 @@ def run_replicas(deck_src: str | None, overrides: list[str], replicas: int, out:
         s = _read(run_folder(out, p) / "summary.json")
         g = s.get("growth") or {}
         theory = theory if theory is not None else g.get("theory")
+        co, cl = s.get("coherence") or {}, s.get("clumps") or {}
         rows.append({"replica": p.replica, "random_seed": p.seed, "status": r.get("status"),
                      "growth_mode": g.get("mode"), "growth_measured": r.get("growth_measured"),
                      "growth_measured_err": r.get("growth_measured_err"),
                      "growth_method": g.get("method"), "t_unity_ns": r.get("t_unity_ns"),
-                     "folder": r.get("folder")})
+                     "folder": r.get("folder"),
+                     "nu_c_hz": co.get("frequency_cutoff_hz"),
+                     "nu_c_hz_err": co.get("frequency_cutoff_hz_err"),
+                     "_nu_terms": (co.get("error_budget") or {}).get("terms"),
+                     "clump_size_median_cm": cl.get("size_median_cm"),
+                     "clump_size_median_err_cm": cl.get("size_median_err_cm"),
+                     "_size_terms": (cl.get("error_budget_cm") or {}).get("terms")})
     ok = [r for r in rows if r["status"] == "completed"]
     result = ReplicaResult(out=out, rows=rows,
                            growth=mean_and_standard_error(r["growth_measured"] for r in ok),
                            t_unity_ns=mean_and_standard_error(r["t_unity_ns"] for r in ok),
                            theory_growth=theory, warnings=list(res.warnings))
+    result.emission = {
+        "nu_c_hz": emission_budget([r["nu_c_hz"] for r in ok], [r["nu_c_hz_err"] for r in ok],
+                                   [r["_nu_terms"] for r in ok]),
+        "clump_size_median_cm": emission_budget([r["clump_size_median_cm"] for r in ok],
+                                                [r["clump_size_median_err_cm"] for r in ok],
+                                                [r["_size_terms"] for r in ok])}
     from .. import io
     with io.atomic_path(out / "replicas.csv") as tmp, open(tmp, "w", newline="",
                                                           encoding="utf-8") as f:
@@ -112,6 +152,7 @@ def run_replicas(deck_src: str | None, overrides: list[str], replicas: int, out:
     io.write_json(out / "replicas.json", {
         "replicas": int(replicas), "completed": len(ok),
         "growth_measured": result.growth.as_dict(), "t_unity_ns": result.t_unity_ns.as_dict(),
-        "growth_theory": theory,
-        "error": "standard error of the mean, s / sqrt(n), s with ddof = 1"})
+        "growth_theory": theory, **result.emission,
+        "error": "standard error of the mean, s / sqrt(n), s with ddof = 1; emission numbers "
+                 "also give one run's budget (within-run terms and the replica spread)"})
     return result

@@ -32,9 +32,14 @@ def _get(d: Any, *path):
     return d
 
 
+def _number(v):
+    """A number for a metric column: a flag (true/false) as 1.0/0.0, else finite or None."""
+    return float(v) if isinstance(v, bool) else finite_or_none(v)
+
+
 def metrics_from_summary(s: dict) -> dict:
     """The METRICS of one summary.json (missing or null entries give None)."""
-    out = {k: finite_or_none(_get(s, *path)) for k, (_, _, path) in _PATHS.items()
+    out = {k: _number(_get(s, *path)) for k, (_, _, path) in _PATHS.items()
            if k not in TEXT_METRICS}
     for k in TEXT_METRICS:
         v = _get(s, *_PATHS[k][2])

@@ -25,6 +25,21 @@ from ..numbers import finite_or_none
 __all__ = ["compare", "Comparison", "OUTPUTS", "relative_difference"]
 
 #: (summary.json key path, what it is, unit)
+#: the error bar of each output: a summary.json key path, or "cadence" (t_unity is resolved to the
+#: diagnostics interval, reported in ns), or None (no error bar: no verdict)
+ERRORS = {
+    "growth.measured": "growth.measured_err",
+    "contrast.t_unity_ns": "cadence",
+    "contrast.max": None,
+    "clumps.size_median": "clumps.size_median_err",
+    "coherence.k_cutoff": "coherence.k_cutoff_err",
+    "coherence.frequency_cutoff_hz": "coherence.frequency_cutoff_hz_err",
+    "energy.relative_error_max": None,
+}
+#: agreement: |PIC - Vlasov| <= AGREE_SIGMA x the combined error (quadrature sum; about 95%
+#: of the differences of two consistent Gaussian estimates fall inside, common practice)
+AGREE_SIGMA = 2.0
+
 OUTPUTS = (
     ("growth.measured", "fastest growth (headline mode)", "omega_p"),
     ("contrast.t_unity_ns", "clump formation time t_unity", "ns"),
@@ -65,19 +80,38 @@ class Comparison:
         res = self.pic if which == "pic" else self.vlasov
         return {path: _value(res.summary, path) for path, _, _ in OUTPUTS}
 
+    def errors(self, which: str) -> dict:
+        res = self.pic if which == "pic" else self.vlasov
+        out = {}
+        for path, _, _ in OUTPUTS:
+            how = ERRORS.get(path)
+            if how == "cadence":
+                from .. import units
+                d = res.deck
+                out[path] = units.time_ns(d.output.diagnostics_interval, d.units.density_cm3)
+            else:
+                out[path] = _value(res.summary, how) if how else None
+        return out
+
     def contract(self) -> dict:
         p, v = self.values("pic"), self.values("vlasov")
-        return {"pic": p, "vlasov": v,
-                "relative_difference": {k: relative_difference(p[k], v[k]) for k in p}}
+        pe, ve = self.errors("pic"), self.errors("vlasov")
+        return {"pic": p, "vlasov": v, "pic_err": pe, "vlasov_err": ve,
+                "relative_difference": {k: relative_difference(p[k], v[k]) for k in p},
+                "verdict": {k: verdict(p[k], pe[k], v[k], ve[k]) for k in p},
+                "verdict_rule": f"agree when |PIC - Vlasov| <= {AGREE_SIGMA:g} x "
+                                "sqrt(err_PIC^2 + err_Vlasov^2); no verdict without an error bar"}
 
     def table(self) -> str:
         c = self.contract()
-        rows = [("output", "PIC", "Vlasov", "(PIC-Vlasov)/|Vlasov|")]
+        rows = [("output", "PIC", "Vlasov", "(PIC-Vlasov)/|Vlasov|", "verdict")]
         for path, what, unit in OUTPUTS:
             rd = c["relative_difference"][path]
-            rows.append((f"{path} ({what}{', ' + unit if unit else ''})", _g(c["pic"][path]),
-                         _g(c["vlasov"][path]), "-" if rd is None else f"{100 * rd:+.2f} %"))
-        w = [max(len(r[i]) for r in rows) for i in range(4)]
+            rows.append((f"{path} ({what}{', ' + unit if unit else ''})",
+                         _gpm(c["pic"][path], c["pic_err"][path]),
+                         _gpm(c["vlasov"][path], c["vlasov_err"][path]),
+                         "-" if rd is None else f"{100 * rd:+.2f} %", c["verdict"][path]))
+        w = [max(len(r[i]) for r in rows) for i in range(5)]
         lines = ["  ".join(x.ljust(n) for x, n in zip(r, w)).rstrip() for r in rows]
         lines.insert(1, "  ".join("-" * n for n in w))
         return "\n".join(lines)
@@ -88,15 +122,33 @@ class Comparison:
         c = self.contract()
         buf = _io.StringIO()
         wr = csv.writer(buf, lineterminator="\n")
-        wr.writerow(["output", "meaning", "unit", "pic", "vlasov", "relative_difference"])
+        keys = ("pic", "pic_err", "vlasov", "vlasov_err", "relative_difference")
+        wr.writerow(["output", "meaning", "unit", *keys, "verdict"])
         for path, what, unit in OUTPUTS:
             wr.writerow([path, what, unit] + ["" if c[k][path] is None else repr(c[k][path])
-                                              for k in ("pic", "vlasov", "relative_difference")])
+                                              for k in keys] + [c["verdict"][path]])
         return buf.getvalue()
 
 
 def _g(x) -> str:
     return "n/a" if x is None else f"{x:.5g}"
+
+
+def _gpm(x, e) -> str:
+    return _g(x) if x is None or e is None else f"{x:.5g} +- {e:.2g}"
+
+
+def verdict(pic, pic_err, vlasov, vlasov_err) -> str:
+    """"agree" / "differ" (|PIC - Vlasov| against AGREE_SIGMA x the combined error), or why
+    there is no verdict."""
+    if pic is None or vlasov is None:
+        return "no verdict (a value is missing)"
+    if pic_err is None and vlasov_err is None:
+        return "no verdict (no error bar)"
+    comb = math.hypot(pic_err or 0.0, vlasov_err or 0.0)
+    sig = abs(pic - vlasov) / comb if comb > 0 else math.inf
+    return (f"agree ({sig:.2g} sigma)" if abs(pic - vlasov) <= AGREE_SIGMA * comb
+            else f"differ ({sig:.2g} sigma)")
 
 
 def compare(deck=None, out: str | Path | None = None, *, overrides: list[str] | None = None,
@@ -213,21 +265,29 @@ def draw(c: Comparison, folder: Path) -> list[Path]:
         tab = co.tables.get("form_factor") if co is not None else None
         if tab is None or not len(tab):
             continue
-        part = tab.where("snapshot", "peak")
+        src = "window" if len(tab.where("snapshot", "window")) else "peak"
+        part = tab.where("snapshot", src)
         for j, name in enumerate(names):
             if f"F2_{name}" not in part.columns:
                 continue
-            P = part.col(f"F2_{name}")
+            P = np.asarray(part.col(f"F2_{name}"), float)
+            k = np.asarray(part.col("k"), float)
+            # a continuum density has exact (round-off) zeros between its modes: draw only the
+            # values above 1e-14 of the largest, as points joined where they are consecutive
+            top = np.nanmax(P) if np.isfinite(P).any() else 0.0
+            keep = np.isfinite(P) & (P > 1e-14 * top) & (k > 0)
+            if not keep.any():
+                continue
             st = dict(STYLE[m])
-            st["label"] = f"{st['label']}, {name}"
-            ax.loglog(part.col("k"), np.where(P > 0, P, np.nan), lw=0.8, alpha=1.0 if j == 0
+            st["label"] = f"{st['label']}, {name} ({src})"
+            ax.loglog(k[keep], P[keep], lw=0.8, marker=".", ms=2, alpha=1.0 if j == 0
                       else 0.6, **st)
         floor = (r.summary.get("coherence") or {}).get("noise_floor")
         if floor:
             ax.axhline(floor, color=STYLE[m]["color"], lw=0.8, ls=":",
                        label=f"{STYLE[m]['label']} noise floor 1/N")
     ax.set_xlabel("k [w_p/c]")
-    ax.set_ylabel("|F(k)|^2 at maximum contrast")
+    ax.set_ylabel("|F(k)|^2 (saturated-window average where recorded)")
     ax.set_title("form factor: PIC particles and the Vlasov density")
     ax.legend(fontsize=7)
     paths.append(io.save_figure(fig, folder / "compare_form_factor.png"))

@@ -19,8 +19,11 @@ NAME = "clumps"
 SCAN_COLUMNS = [
     ScanColumn("clump_count", "", "clumps at the analysed snapshot", ("clumps", "count")),
     ScanColumn("clump_size_median_cm", "cm", "median clump size", ("clumps", "size_median_cm")),
-    ScanColumn("clump_size_median_err_cm", "cm", "bootstrap error of the median clump size",
-               ("clumps", "size_median_err_cm")),
+    ScanColumn("clump_size_median_err_cm", "cm", "error of the median clump size (window "
+               "budget: clump-to-clump and window terms)", ("clumps", "size_median_err_cm")),
+    ScanColumn("clump_grid_limited", "", "1 when the median clump is narrower than "
+               "analysis.clump_grid_cells cells: the size is set by the grid (an upper bound)",
+               ("clumps", "grid_limited")),
 ]
 
 _CLUMP_COLUMNS = ("position", "position_cm", "width", "width_cm", "extent", "peak", "mass",
@@ -138,6 +141,11 @@ def compute(ctx: Context) -> BlockResult:
                           "species, at the maximum contrast; size = FWHM")
     head["error_estimator"] = (f"bootstrap over the clumps ({_cl.BOOTSTRAP} resamples): the "
                                "standard deviation of the median FWHM")
+    win = _window(ctx, skin, dx)
+    if win is not None:
+        head = {"peak_snapshot": per.get("peak"), **win[0]}
+        head["threshold"] = threshold
+        size_rows += win[1]
     med = head.get("size_median")
     head["grid_cells_limit"] = grid_cells
     head["grid_limited"] = bool(med is not None and med < grid_cells * dx)
@@ -149,6 +157,7 @@ def compute(ctx: Context) -> BlockResult:
                          "the grid allows, so clump widths and k_c of cold species are set by "
                          "box.cells") if cold else None
     head["end"] = per.get("end")
+    head["end_snapshot"] = per.get("end")
     tables = {
         "clumps": Table("clumps", {
             "snapshot": np.array([r[0] for r in clump_rows], dtype=object),
@@ -186,14 +195,61 @@ def compute(ctx: Context) -> BlockResult:
                        values={"grid_limited": bool(head.get("grid_limited"))})
 
 
+def _window(ctx: Context, skin: float, dx: float):
+    """(headline entries, size-histogram rows) of the clump sizes pooled over the saturated
+    window (emission block), or None when it has no clumps there."""
+    em = ctx.results.get("emission")
+    e = em.values.get("window") or {} if em is not None else {}
+    if not e or e.get("size_median") is None:
+        return None
+    tab = em.tables["emission_clumps"]
+    sel = tab.col("in_window").astype(bool)
+    widths = tab.col("width")[sel]
+    per_rec = ctx.results["emission"].tables["emission_series"]
+    counts = per_rec.col("clumps")[per_rec.col("in_window").astype(bool)]
+    w = e["window"]
+    data = ctx.data
+    h = data.length / max(1, int(e.get("records", {}).get("nodes") or data.cells))
+    edges, hist = _cl.size_histogram(list(widths), h, data.length)
+    rows = [("window", float(w["t0"]), edges[b], edges[b + 1], int(c))
+            for b, c in enumerate(hist)]
+    med = e["size_median"]
+    return ({"snapshot": "window", "t": w["t0"], "t_ns": w.get("t0_ns"),
+             "window": {k: w.get(k) for k in ("t0", "t1", "t0_ns", "t1_ns", "records",
+                                              "long_enough", "end_needed", "end_needed_ns")},
+             "count": int(round(float(np.mean(counts)))) if counts.size else 0,
+             "count_pooled": int(widths.size),
+             "size_median": med, "size_median_cm": e["size_median_cm"],
+             "size_median_err": e["size_median_err"],
+             "size_median_err_cm": e["size_median_err_cm"],
+             "error_budget_cm": e.get("size_budget_cm"),
+             "size_median_cells": med / dx,
+             "histogram": {"edges": edges, "edges_cm": edges * skin, "counts": hist},
+             "measured_on": e.get("records", {}).get("source"),
+             "definition": "connected regions with delta n/n > threshold (periodic), any "
+                           "species, at every emission record of the saturated window, pooled; "
+                           "size = FWHM; count = the mean number per record (rounded)",
+             "error_estimator": "quadrature sum of the clump-to-clump bootstrap of the pooled "
+                                "median and the block jackknife over the window's records (and "
+                                "the replica scatter with replicas); see error_budget_cm",
+             "headline": "clump sizes pooled over the saturated window; peak_snapshot and "
+                         "end_snapshot are single instants"}, rows)
+
+
 def _lines(cl: dict, n_cm3: float) -> list[str]:
     out = []
     if cl.get("count"):
         err = cl.get("size_median_err_cm")
         pm = f" +- {err:.2g}" if err is not None else ""
-        line = (f"clumps (dn/n > {fmt(cl.get('threshold'), 'g')}): {cl['count']} at "
-                f"t = {at_ns(cl.get('t'), n_cm3)}, median FWHM {fmt(cl.get('size_median'), '.3g')} "
-                f"c/w_p = {fmt(cl.get('size_median_cm'), '.3g')}{pm} cm")
+        w = cl.get("window")
+        when = (f"per record over the saturated window [{fmt(w.get('t0'), '.4g')}, "
+                f"{fmt(w.get('t1'), '.4g')}] /w_p" if cl.get("snapshot") == "window" and w
+                else f"at t = {at_ns(cl.get('t'), n_cm3)}")
+        dom = (cl.get("error_budget_cm") or {}).get("dominant")
+        line = (f"clumps (dn/n > {fmt(cl.get('threshold'), 'g')}): {cl['count']} {when}, "
+                f"median FWHM {fmt(cl.get('size_median'), '.3g')} "
+                f"c/w_p = {fmt(cl.get('size_median_cm'), '.3g')}{pm} cm"
+                + (f" (largest error term: {dom})" if dom else ""))
         if cl.get("grid_limited"):
             fix = ("give the beams a temperature or raise box.cells" if cl.get("cold_species")
                    else "raise box.cells")
@@ -214,7 +270,8 @@ def _draw(res: BlockResult, data):
     cl = res.summary["clumps"]
     fig, (a1, a2) = plt.subplots(1, 2, figsize=(11, 4.2))
     sizes = res.tables["clump_sizes"]
-    for lab, text in (("peak", "max contrast"), ("end", "end")):
+    for lab, text in (("window", "saturated window (pooled)"), ("peak", "max contrast"),
+                      ("end", "end")):
         part = sizes.where("snapshot", lab)
         if len(part) and part.col("count").sum() > 0:
             edges = np.append(part.col("width_lo"), part.col("width_hi")[-1])

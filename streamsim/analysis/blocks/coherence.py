@@ -1,6 +1,11 @@
-"""Coherence block: the form factor |F(k)|^2 of each species from the particle positions at the
-time of maximum contrast (and at the end), its 1/N noise floor, the cutoff k_c and the emission
-cutoff nu_c = Gamma c k_c / 2 pi.
+"""Coherence block: the emission cutoff nu_c = Gamma c k_c / 2 pi of the run.
+
+Headline (``coherence.k_cutoff``, ``frequency_cutoff_hz`` and their errors): the cutoff of the
+form factor averaged over the saturated window, <|F(k)|^2>_W, from the emission block (its
+window, history and error budget: mode-to-mode, window, replica). The single instants stay as
+secondary entries: ``coherence.peak_snapshot`` (the particle positions at the time of maximum
+contrast) and ``coherence.end_snapshot`` (at the end; also under ``coherence.end``), each with its
+|F(k)|^2 of each species, 1/N noise floor, cutoff and bootstrap error.
 
 Summary key: ``coherence``. Table: ``form_factor``. Figure: ``coherence.png``.
 """
@@ -21,7 +26,7 @@ NAME = "coherence"
 SCAN_COLUMNS = [
     ScanColumn("nu_c_hz", "Hz", "coherence cutoff frequency nu_c (see summary.json coherence)",
                ("coherence", "frequency_cutoff_hz")),
-    ScanColumn("nu_c_hz_err", "Hz", "bootstrap error of nu_c (see summary.json coherence)",
+    ScanColumn("nu_c_hz_err", "Hz", "error of nu_c (window budget; see summary.json coherence)",
                ("coherence", "frequency_cutoff_hz_err")),
     ScanColumn("nu_c_lower_bound_hz", "Hz", "nu_c when it is only a lower bound (grid-limited)",
                ("coherence", "frequency_cutoff_hz_lower_bound")),
@@ -30,10 +35,112 @@ SCAN_COLUMNS = [
     ScanColumn("k_c_err", "omega_p/c", "bootstrap error of k_c", ("coherence", "k_cutoff_err")),
     ScanColumn("bulk_gamma", "", "bulk Lorentz factor assumed for nu_c",
                ("coherence", "bulk_gamma")),
+    ScanColumn("nu_c_grid_limited", "", "1 when k_c and nu_c are set by the grid (nu_c is then "
+               "only the lower bound nu_c_lower_bound_hz): raise box.cells or warm the beams",
+               ("coherence", "grid_limited")),
 ]
 
 
 def compute(ctx: Context) -> BlockResult:
+    return _window_headline(_instants(ctx), ctx)
+
+
+_INSTANT_KEYS = ("t", "t_ns", "k_cutoff", "k_cutoff_err", "k_cutoff_per_cm", "frequency_cutoff_hz",
+                 "frequency_cutoff_hz_err", "frequency_cutoff_hz_lower_bound",
+                 "frequency_cutoff_bound", "frequency_cutoff_ghz", "noise_floor", "species",
+                 "lower_bound", "status", "by_species", "bulk_gamma", "bulk_gamma_source",
+                 "bulk_gamma_measured", "grid_limited", "grid_limited_why")
+
+
+def _window_headline(res: BlockResult, ctx: Context) -> BlockResult:
+    """The headline keys carry the saturated-window cutoff (emission block); the instant values
+    move to ``peak_snapshot`` / ``end_snapshot``; the window's rows join the form-factor table
+    (snapshot = "window")."""
+    em = ctx.results.get("emission")
+    head = res.summary["coherence"]
+    e = em.values.get("window") or {} if em is not None else {}
+    if not e or e.get("window", {}).get("t0") is None or not e.get("by_species"):
+        head["headline"] = "peak snapshot (no emission records in the saturated window)"
+        return res
+    inst = {k: head.pop(k) for k in _INSTANT_KEYS if k in head}
+    if inst.get("t") is not None:
+        head["peak_snapshot"] = inst
+    end = head.get("end")
+    head["end_snapshot"] = end
+    by = {n: {k: v for k, v in r.items()} for n, r in e["by_species"].items()}
+    for n, r in by.items():
+        if r.get("k_cutoff") is not None:
+            r["k_cutoff_per_cm"] = units.wavenumber_per_cm(r["k_cutoff"], ctx.density_cm3)
+    w = e["window"]
+    head.update({"snapshot": "window", "window": {k: w.get(k) for k in
+                                                  ("t0", "t1", "t0_ns", "t1_ns", "how",
+                                                   "records", "long_enough", "end_needed",
+                                                   "end_needed_ns")},
+                 "t": w["t0"], "t_ns": w.get("t0_ns"),
+                 "headline": "cutoff of the form factor averaged over the saturated window "
+                             "<|F(k)|^2>_W (emission adds over time); peak_snapshot and "
+                             "end_snapshot are single instants",
+                 "k_cutoff": e.get("k_cutoff"), "k_cutoff_err": e.get("k_cutoff_err"),
+                 "frequency_cutoff_hz": e.get("frequency_cutoff_hz"),
+                 "frequency_cutoff_hz_err": e.get("frequency_cutoff_hz_err"),
+                 "noise_floor": e.get("noise_floor"), "species": e.get("species"),
+                 "lower_bound": bool(e.get("lower_bound")), "status": e.get("status"),
+                 "by_species": by, "error_budget": e.get("frequency_cutoff_budget"),
+                 "k_cutoff_budget": e.get("k_cutoff_budget"),
+                 "error_estimator": "quadrature sum of the mode-to-mode bootstrap of the "
+                                    "window-averaged spectrum, the block jackknife over the "
+                                    "window's records and (with replicas) the replica scatter; "
+                                    "see error_budget",
+                 "bulk_gamma": (e.get("bulk_gamma_window") if e.get("bulk_gamma") is None
+                                else e.get("bulk_gamma")),
+                 })
+    if e.get("bulk_gamma_measured") is not None:   # analysis.bulk_gamma = "measured"
+        head["bulk_gamma_measured"] = e["bulk_gamma_measured"]
+        head["bulk_gamma_source"] = e.get("bulk_gamma_source")
+    head.update(_grid_limit(head, ctx))
+    _bound(head, ctx.density_cm3)
+    ffw = em.tables.get("form_factor_window")
+    tab = res.tables["form_factor"]
+    if ffw is not None and len(ffw):
+        n = len(ffw)
+        cols = {}
+        for c, v in tab.columns.items():
+            if c == "snapshot":
+                add = np.array(["window"] * n, dtype=object)
+            elif c == "t":
+                add = np.full(n, float(w["t0"]))
+            elif c in ffw.columns:
+                add = ffw.col(c)
+            else:
+                add = np.full(n, np.nan)
+            cols[c] = np.concatenate([v, add]) if len(v) else add
+        for c in ffw.columns:
+            if c.startswith("F2_") and c not in cols:
+                cols[c] = np.concatenate([np.full(len(tab), np.nan), ffw.col(c)])
+        res.tables["form_factor"] = Table("form_factor", cols, tab.units,
+                                          {**tab.attrs, **{k: v for k, v in ffw.attrs.items()
+                                                           if k.startswith("noise_floor")}})
+    res.lines = _lines(head)
+    return res
+
+
+def _bound(head: dict, n_cm3: float) -> None:
+    """A grid-limited cutoff frequency is a lower bound, never a plain value."""
+    if head.get("grid_limited") and head.get("frequency_cutoff_hz") is not None:
+        head["frequency_cutoff_hz_lower_bound"] = head.pop("frequency_cutoff_hz")
+        head["frequency_cutoff_hz"] = None
+        head["frequency_cutoff_bound"] = "lower"
+    else:
+        head["frequency_cutoff_hz_lower_bound"] = None
+        head["frequency_cutoff_bound"] = None
+    if head.get("k_cutoff") is not None:
+        head["k_cutoff_per_cm"] = units.wavenumber_per_cm(head["k_cutoff"], n_cm3)
+        nu = head["frequency_cutoff_hz"] or head["frequency_cutoff_hz_lower_bound"]
+        head["frequency_cutoff_ghz"] = nu / 1e9 if head["frequency_cutoff_hz"] else None
+
+
+def _instants(ctx: Context) -> BlockResult:
+    """The form factor and cutoff at the peak and end particle snapshots (single instants)."""
     data, n_cm3, opt = ctx.data, ctx.density_cm3, ctx.options
     drop, kmf = opt.coherence_drop, opt.coherence_kmax_factor
     measured = _measured_gamma(ctx)     # analysis.bulk_gamma = "measured": Gamma_s(t), typed
@@ -188,6 +295,24 @@ def _grid_limit(head: dict, ctx: Context) -> dict:
             "k_nyquist": math.pi * data.cells / data.length, "cold_species": cold}
 
 
+def _where(co: dict) -> str:
+    """Which numbers a line reports: the window or an instant."""
+    w = co.get("window")
+    if co.get("snapshot") == "window" and w:
+        return (f"averaged over the saturated window [{fmt(w.get('t0'), '.4g')}, "
+                f"{fmt(w.get('t1'), '.4g')}] /w_p")
+    return f"at t = {fmt(co.get('t'), '.4g')} /w_p ({co.get('snapshot')} snapshot)"
+
+
+def _pm(co: dict, key: str) -> str:
+    """+- err GHz of the cutoff, with the error budget's dominant term."""
+    err = co.get(key)
+    if err is None:
+        return " GHz (no error estimate)"
+    dom = (co.get("error_budget") or {}).get("dominant")
+    return f" +- {err / 1e9:.2g} GHz" + (f" (largest error term: {dom})" if dom else "")
+
+
 def _lines(co: dict) -> list[str]:
     out = _main_lines(co)
     src = co.get("bulk_gamma_source")
@@ -200,31 +325,32 @@ def _lines(co: dict) -> list[str]:
 
 def _main_lines(co: dict) -> list[str]:
     G = co.get("bulk_gamma", 1.0)
+    G = 1.0 if G is None else G
+    note = ("  assumes particles on the same trajectory emitting along the motion; "
+            "nu_c = Gamma c k_c / 2 pi (a bunching estimate, not a radiation calculation)")
     if co.get("frequency_cutoff_hz_lower_bound") is not None:
         cold = co.get("cold_species") or []
         fix = ("give the beams a temperature (a cold beam has no intrinsic clump scale) or "
                "raise box.cells" if cold else "raise box.cells")
-        return [f"coherent emission up to at least nu_c >= "
-                f"{co['frequency_cutoff_hz_lower_bound'] / 1e9:.3g} GHz: a lower bound, "
-                f"grid-limited ({co.get('grid_limited_why')}); {fix}",
-                "  assumes particles on the same trajectory emitting along the motion; "
-                "nu_c = Gamma c k_c / 2 pi (a bunching estimate, not a radiation calculation)"]
-    if co.get("frequency_cutoff_hz") is not None:
-        lb = (" (lower bound: the spectrum is still high at the largest k computed)"
-              if co.get("lower_bound") else "")
         err = co.get("frequency_cutoff_hz_err")
-        pm = f" +- {err / 1e9:.2g}" if err is not None else " (no error estimate)"
-        return [f"coherent emission up to nu_c = {co['frequency_cutoff_hz'] / 1e9:.3g}{pm} GHz "
+        pm = f" (+- {err / 1e9:.2g} GHz at this grid)" if err is not None else ""
+        return [f"coherent emission up to at least nu_c >= "
+                f"{co['frequency_cutoff_hz_lower_bound'] / 1e9:.3g} GHz{pm} {_where(co)}: a "
+                f"lower bound, grid-limited ({co.get('grid_limited_why')}); {fix}", note]
+    if co.get("frequency_cutoff_hz") is not None:
+        lb = (" (lower bound: the spectrum is still high at the largest k computed; raise "
+              "analysis.coherence_kmax_factor)" if co.get("lower_bound") else "")
+        return [f"coherent emission up to nu_c = {co['frequency_cutoff_hz'] / 1e9:.3g}"
+                f"{_pm(co, 'frequency_cutoff_hz_err')} {_where(co)} "
                 f"(k_c = {fmt(co.get('k_cutoff'), '.3g')} w_p/c = "
                 f"{fmt(co.get('k_cutoff_per_cm'), '.3g')} /cm, {co.get('species')}, "
-                f"bulk Gamma = {G:g}, noise floor 1/N = {fmt(co.get('noise_floor'), '.2g')})"
-                f"{lb}",
-                "  assumes particles on the same trajectory emitting along the motion; "
-                "nu_c = Gamma c k_c / 2 pi (a bunching estimate, not a radiation calculation)"]
+                f"bulk Gamma = {G:.4g}, noise floor 1/N = {fmt(co.get('noise_floor'), '.2g')})"
+                f"{lb}", note]
     if co.get("snapshot") is None:
         return ["coherence: no particle snapshot in this run"]
     return [f"coherence: no cutoff above the noise floor (1/N = "
-            f"{fmt(co.get('noise_floor'), '.2g')}, bulk Gamma = {G:g})"]
+            f"{fmt(co.get('noise_floor'), '.2g')}, bulk Gamma = {G:.4g}) {_where(co)}; more "
+            "particles per cell lower the floor"]
 
 
 def _draw(res: BlockResult, data):
@@ -266,6 +392,8 @@ def _draw(res: BlockResult, data):
     txt = (f"nu_c = {nu / 1e9:.3g} GHz (bulk Gamma = {co.get('bulk_gamma', 1):g})" if nu
            else f"nu_c >= {lb / 1e9:.3g} GHz (grid-limited)" if lb
            else "no cutoff above the noise floor")
-    ax.set_title(f"form factor at t = {co.get('t', 0):.4g} /w_p; {txt}", fontsize=9)
+    when = (f"averaged over [{co['window']['t0']:.4g}, {co['window']['t1']:.4g}] /w_p"
+            if src == "window" and co.get("window") else f"at t = {co.get('t') or 0:.4g} /w_p")
+    ax.set_title(f"form factor {when}; {txt}", fontsize=9)
     ax.legend(fontsize=7)
     return fig

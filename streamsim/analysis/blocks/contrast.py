@@ -29,6 +29,13 @@ def compute(ctx: Context) -> BlockResult:
     s = data.series
     names = list(data.names)
     block = _ct.contrast_block(s, names, n_cm3)
+    cold = [sp.name for sp in data.deck.species if sp.is_cold]
+    block["cold_species"] = cold
+    block["max_grid_limited"] = bool(cold)
+    block["max_note"] = ("cold beams form caustics after saturation (density ~ |x - x0|^-1/2 at "
+                         "the turning points of trapped orbits), so max delta n/n has no "
+                         "converged value: the grid sets it; give the beams a temperature"
+                         if cold else None)
     warnings = _start(block, ctx)
     t = np.asarray(s.t, float)
     cmax = np.asarray(s.contrast_max, float)
@@ -89,11 +96,21 @@ def _start(block: dict, ctx: Context) -> list[str]:
     asked = ctx.options.initial_level
     tu = block.get("t_unity")
     if asked is not None and tu is not None:
-        tl = _ct.t_unity_for_level(tu, lvl, rate, asked)
-        block["t_unity_for_level"] = tl
-        block["t_unity_ns_for_level"] = units.time_ns(tl, n_cm3)
-        block["extrapolation"] = (f"t_unity + ln(initial_level / {asked:g}) / rate, along the "
-                                  f"measured growth rate {rate:.4g} /omega_p of max delta n/n")
+        gam, gam_err, source = _linear_rate(ctx)
+        if gam is None:
+            gam, gam_err, source = rate, None, ("the fitted rate of max delta n/n (no linear "
+                                                "rate of the fastest mode, measured or theory)")
+        tl, tl_err = _ct.t_unity_for_level_err(tu, lvl, gam, asked, gam_err, fit["rms"])
+        block.update({"t_unity_for_level": tl, "t_unity_for_level_err": tl_err,
+                      "t_unity_ns_for_level": units.time_ns(tl, n_cm3),
+                      "t_unity_ns_for_level_err": (units.time_ns(tl_err, n_cm3)
+                                                   if tl_err is not None else None),
+                      "extrapolation_rate": gam, "extrapolation_rate_err": gam_err,
+                      "extrapolation_rate_source": source})
+        block["extrapolation"] = (f"t_unity + ln(initial_level / {asked:g}) / gamma with gamma = "
+                                  f"{gam:.4g} /omega_p, {source}: the stretch below the measured "
+                                  "start is linear growth of the fastest mode; error from gamma's "
+                                  "error and the fit rms of ln(max delta n/n) at the start")
     t = np.asarray(s.t, float)
     early = (t > 0) & (t < fit["t0"])
     if seed > 0 and early.sum() >= 3:
@@ -105,9 +122,28 @@ def _start(block: dict, ctx: Context) -> list[str]:
             warnings.append(f"the seed (max dn/n = {seed:.2g}) lies below the loading's own "
                             f"noise (median max dn/n = {noise:.2g} before the growth), so "
                             "t_unity is set by the loading, not by perturbation.amplitude; "
-                            "raise the amplitude, or set analysis.initial_level to extrapolate "
-                            "from a level of your own")
+                            + ("contrast.t_unity_ns_for_level extrapolates from "
+                               f"analysis.initial_level = {asked:g}; raise the amplitude or the "
+                               "particles per cell to measure it directly"
+                               if asked is not None else
+                               "raise the amplitude, or set analysis.initial_level to "
+                               "extrapolate from a level of your own"))
     return warnings
+
+
+def _linear_rate(ctx: Context):
+    """(gamma, its error, which) of the fastest mode's linear growth: the growth block's
+    measured rate when it has one, else the linear theory's (no error)."""
+    g = ctx.results.get("growth")
+    head = g.summary.get("growth", {}) if g is not None else {}
+    meas, err, th = (head.get(k) for k in ("measured", "measured_err", "theory"))
+    if meas is not None and meas > 0:
+        return float(meas), (float(err) if err is not None else None), \
+            f"measured linear growth rate of the fastest mode (mode {head.get('mode')})"
+    if th is not None and th > 0:
+        return float(th), None, (f"linear theory's growth rate of the fastest mode (mode "
+                                 f"{head.get('mode')}; not measured in this run, no error)")
+    return None, None, None
 
 
 def _lines(c: dict, n_cm3: float) -> list[str]:
@@ -116,7 +152,9 @@ def _lines(c: dict, n_cm3: float) -> list[str]:
     if c.get("t_unity") is not None:
         out = [f"clumps form (max dn/n >= 1) at t = {fmt(c['t_unity'])} /w_p = "
                f"{fmt(c.get('t_unity_ns'))} ns; max dn/n = {fmt(c['max'], '.3g')} "
-               f"at t = {at_ns(c.get('t_max'), n_cm3)}"]
+               f"at t = {at_ns(c.get('t_max'), n_cm3)}"
+               + (" (not converged: cold-beam caustics, set by the grid; give the beams a "
+                  "temperature)" if c.get("max_grid_limited") else "")]
     else:
         out = [f"no clump formation: max dn/n = {fmt(c['max'], '.3g')} < 1 "
                f"(at t = {at_ns(c.get('t_max'), n_cm3)})"]
@@ -125,8 +163,12 @@ def _lines(c: dict, n_cm3: float) -> list[str]:
                 f"{at_ns(c.get('initial_level_t'), n_cm3, '.3g')} "
                 f"({fmt(c.get('efolds_to_unity'), '.3g')} e-folds to unity)")
         if c.get("t_unity_ns_for_level") is not None:
+            e = c.get("t_unity_ns_for_level_err")
             line += (f"; from dn/n = {fmt(c.get('level_asked'), '.2g')}: t_unity = "
-                     f"{fmt(c['t_unity_ns_for_level'])} ns (extrapolated)")
+                     f"{fmt(c['t_unity_ns_for_level'])}"
+                     + (f" +- {e:.2g}" if e is not None else " (no error: theory rate)")
+                     + f" ns (extrapolated at gamma = {fmt(c.get('extrapolation_rate'), '.3g')}"
+                     f" w_p, {(c.get('extrapolation_rate_source') or '').split(' (')[0]})")
         out.append(line)
     return out
 

@@ -196,8 +196,12 @@ def _lines(g: dict, modes: list[dict], fe: dict, n_cm3: float) -> list[str]:
         tau = (f"; e-folding time {fmt(g.get('growth_time_ns'), '.3g')} +- "
                f"{fmt(g.get('growth_time_err_ns'), '.1g')} ns (theory "
                f"{rate_ns(g.get('theory'), n_cm3)})")
+        sy = finite_or_none(g.get("systematic"))
+        syst = (f" (incl. systematic {fmt(sy, '.2g')}: half the slope change between the "
+                "window's halves)" if sy is not None else "")
         lines.append(f"growth, mode {g['mode']} (k = {fmt(g.get('k'))} w_p/c): measured "
-                     f"{fmt(g['measured'])} +- {fmt(g.get('measured_err'), '.2g')} w_p{th}{tau}, "
+                     f"{fmt(g['measured'])} +- {fmt(g.get('measured_err'), '.2g')} w_p{syst}"
+                     f"{th}{tau}, "
                      f"fitted over t = {fmt(w[0], '.3g')}..{fmt(w[1], '.3g')} /w_p "
                      f"[{g.get('method')}]")
     if fe.get("measured") is not None:

@@ -44,8 +44,12 @@ def _line(o: dict, n_cm3: float) -> str:
     th = ""
     if o.get("theory_omega_r") is not None:
         sign = "+" if o["theory_rate"] >= 0 else "-"
+        sig = o.get("agree_sigma")
         th = (f" vs {o['theory_model']} root {fmt(o['theory_omega_r'], '.4f')} "
-              f"{sign} {fmt(abs(o['theory_rate']), '.4f')}i")
+              f"{sign} {fmt(abs(o['theory_rate']), '.4f')}i of {o.get('theory_state')}"
+              + (f" ({sig:.2g} sigma apart)" if sig is not None else ""))
+    elif o.get("theory_note"):
+        th = f"; {o['theory_note']}"
     rate = finite_or_none(o.get("rate"))
     tau = (f", damping time {rate_ns(-rate, n_cm3)}" if rate is not None and rate < 0 else
            f", e-folding time {rate_ns(rate, n_cm3)}" if rate else "")
