@@ -208,6 +208,9 @@ def _run_locked(ctx: RunContext) -> Result:
     if folder is not None:
         io.write_text(folder / io.FILES["deck"], deck.to_toml())
         io.write_json(folder / io.FILES["theory"], ctx.theory)
+        for s in deck.species:                  # a copy of each table beside the deck
+            if s.table is not None:
+                io.write_text(folder / f"table-{s.name}.csv", s.table.to_csv())
 
     step0 = sim.step
     bar = Progress(sim) if ((not ctx.quiet and sys.stderr.isatty()) if ctx.progress is None

@@ -445,6 +445,8 @@ def _validate(raw: dict, path, here: Path, text: str, cli_set: list[str], resolv
             base_raw = _deck.read_toml(base_path)
         except DeckError as ex:
             raise ScanError("base", f"{ex}", base) from None
+        from ..distribution_table import anchor_tables     # tables: relative to the base deck
+        anchor_tables(base_raw, base_path.resolve().parent)
     for label, items in (("set", base_set), ("--set", cli_set)):
         for j, s in enumerate(items):
             try:
@@ -521,6 +523,9 @@ def _expand(scan: Scan, base_raw: dict) -> list[Point]:
             raw: dict = {}
             try:
                 raw = apply_overrides(base_raw, overrides)
+                if scan.path is not None:     # a table an axis names: relative to the scan file
+                    from ..distribution_table import anchor_tables
+                    anchor_tables(raw, Path(scan.path).resolve().parent)
                 seed0 = raw.get("random_seed", default_seed)
                 if r and isinstance(seed0, int) and not isinstance(seed0, bool):
                     raw = apply_overrides(raw, [f"random_seed={seed0 + r}"])
