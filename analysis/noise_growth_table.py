@@ -9,7 +9,7 @@ RANDOM = ['species.electrons.loading="random"', 'species.positrons.loading="rand
 
 
 def main():
-    print("| deck | particles per cell | seed | method | measured ± error | theory | "
+    print("| deck | particles per cell | seed | fit | measured ± error | theory | "
           "measured/theory | within 2σ |")
     print("|---|---|---|---|---|---|---|---|")
     for path, label in ((None, "default (cold)"), ("runs/warm-pair-beams.toml", "warm")):
@@ -25,7 +25,7 @@ def main():
                           f"{g['theory']:.4f} | | |")
                     continue
                 ok = abs(g["measured"] - g["theory"]) <= 2 * g["measured_err"]
-                print(f"| {label} | {ppc} | {seed} | {g['method']} | {g['measured']:.4f} ± "
+                print(f"| {label} | {ppc} | {seed} | {g['fit']} | {g['measured']:.4f} ± "
                       f"{g['measured_err']:.4f} | {g['theory']:.4f} | {g['ratio']:.3f} | "
                       f"{'yes' if ok else 'no'} |", flush=True)
 

@@ -18,12 +18,16 @@ so that ratios hold on a noisy shared machine; each figure is the best of its re
 - peer: :mod:`streamsim.numpy_peer`, the same step in plain vectorised numpy (np.bincount
   deposit, rfft Poisson), on copies of the same particles.
 - whole run: two fresh ``streamsim run`` processes of the default physics at WHOLE_RUN_PARTICLES
-  (50 and 800 steps, analysis and figures included), differenced so that start-up, the fixed
-  checkpoints and the fixed part of the analysis cancel; the time outside the time loop
+  (50 and 800 steps, analysis and figures included), differenced so that start-up, the end
+  checkpoint and the fixed part of the analysis cancel; the time outside the time loop
   (start-up, io, analysis, figures) of each process is reported beside it.
 - memory: peak resident bytes per particle of a run, measured in a fresh subprocess.
 - cached start: wall time of a fresh ``python -c "import streamsim; streamsim.run(...)"``
   of a small deck with the numba cache warm.
+- outside the loop: the default demo with and without ``--no-analysis`` (interleaved
+  processes), what analysis, tables and figures add at WHOLE_RUN_PARTICLES, each of them timed
+  in-process, the default checkpoint cadence against the long whole run's loop, and the whole
+  run's per-step rate against the engine step.
 """
 from __future__ import annotations
 
@@ -342,7 +346,7 @@ def measure(particles: int, threads: int, *, steps: int = 10, repeats: int = 3,
         for dst, src in zip(peak.x, sim.x):
             np.copyto(dst, src)
         best_peak = min(best_peak, time.perf_counter() - t)
-    # one checkpoint (a default run writes ten, at end/10, and one at the end)
+    # one checkpoint write (a default run writes one at its end, and one every five minutes)
     with tempfile.TemporaryDirectory() as tmp:
         st = sim.state()
         t = time.perf_counter()
@@ -385,18 +389,22 @@ def measure(particles: int, threads: int, *, steps: int = 10, repeats: int = 3,
     return out
 
 
-def _run_process(steps: int, particles: int, threads: int, folder) -> dict:
-    """Wall time of one fresh ``streamsim run`` process (analysis and figures included) of the
-    default physics on CELLS cells with ``steps`` steps, and its time loop (summary ``wall_s``)."""
-    deck = bench_deck(particles, threads)
-    ppc = deck.species[0].particles_per_cell
-    sets = [f"box.cells={CELLS}", f"time.end={steps * deck.time.dt!r}",
-            f"output.threads={threads}"]
-    sets += [f"species.{sp.name}.particles_per_cell={ppc}" for sp in deck.species]
+def _run_process(steps: int | None, particles: int | None, threads: int, folder,
+                 analysis: bool = True) -> dict:
+    """Wall time of one fresh ``streamsim run`` process (analysis and figures included unless
+    ``analysis`` is false: ``--no-analysis``) of the default physics on CELLS cells with
+    ``steps`` steps (None, None: the default demo as it is), and its time loop (summary
+    ``wall_s``)."""
     cmd = [sys.executable, "-m", "streamsim.cli", "run", "--quiet", "--force", "--out",
-           str(folder)]
-    for v in sets:
-        cmd += ["--set", v]
+           str(folder)] + ([] if analysis else ["--no-analysis"])
+    if particles is not None:
+        deck = bench_deck(particles, threads)
+        ppc = deck.species[0].particles_per_cell
+        sets = [f"box.cells={CELLS}", f"time.end={steps * deck.time.dt!r}",
+                f"output.threads={threads}"]
+        sets += [f"species.{sp.name}.particles_per_cell={ppc}" for sp in deck.species]
+        for v in sets:
+            cmd += ["--set", v]
     t = time.perf_counter()
     r = subprocess.run(cmd, capture_output=True, text=True, timeout=1800)
     wall = time.perf_counter() - t
@@ -410,18 +418,27 @@ def _run_process(steps: int, particles: int, threads: int, folder) -> dict:
 
 
 def analysis_seconds(folder) -> dict:
-    """The end-of-run analysis and its figures on a finished run folder, timed in-process
-    (read, compute, write tables and figures)."""
+    """The end-of-run analysis and its figures on a finished run folder, timed in-process:
+    read, compute, the tables alone, the figures alone (in their forked processes, as a run
+    draws them), and tables and figures together as a run writes them (overlapped)."""
     from . import analysis, io
+    from .analysis.writers import write_tables
+    from .plots import Painter
     t = time.perf_counter()
     data = io.read_run(folder)
     t1 = time.perf_counter()
     results = analysis.compute(data)
     t2 = time.perf_counter()
-    analysis.write_outputs(results, data, folder, figures=True)
+    write_tables(results, folder)
     t3 = time.perf_counter()
-    return {"read_s": t1 - t, "compute_s": t2 - t1, "write_and_figures_s": t3 - t2,
-            "samples": int(data.series.t.size)}
+    painter = Painter(data, folder)
+    painter.draw(results)
+    painter.wait()
+    t4 = time.perf_counter()
+    analysis.write_outputs(results, data, folder, figures=True)
+    t5 = time.perf_counter()
+    return {"read_s": t1 - t, "compute_s": t2 - t1, "tables_s": t3 - t2, "figures_s": t4 - t3,
+            "write_and_figures_s": t5 - t4, "samples": int(data.series.t.size)}
 
 
 def whole_run(particles: int = WHOLE_RUN_PARTICLES, threads: int = 0,
@@ -434,21 +451,55 @@ def whole_run(particles: int = WHOLE_RUN_PARTICLES, threads: int = 0,
     best = None
     with tempfile.TemporaryDirectory() as tmp:
         _run_process(2, 2 * CELLS, threads, Path(tmp) / "warm")
+        beyond = []
         for r in range(repeats):
+            bare = _run_process(lo, particles, threads, Path(tmp) / f"bare{r}", analysis=False)
             a = _run_process(lo, particles, threads, Path(tmp) / f"short{r}")
             b = _run_process(hi, particles, threads, Path(tmp) / f"long{r}")
+            # what analysis, tables and figures add to a run: outside-the-loop times differenced
+            beyond.append(a["outside_loop_s"] - bare["outside_loop_s"])
             dt = b["process_s"] - a["process_s"]
             rate = (b["steps"] - a["steps"]) * b["particles"] / dt if dt > 0 else None
             if rate is not None and (best is None or rate > best["rate"]):
-                best = {"rate": rate, "short": a, "long": b,
+                best = {"rate": rate, "short": a, "long": b, "bare": bare,
                         "analysis_short": analysis_seconds(Path(tmp) / f"short{r}"),
                         "analysis_long": analysis_seconds(Path(tmp) / f"long{r}")}
     if best is None:
         return {"whole_run_particle_steps_per_s": None}
     return {"whole_run_particle_steps_per_s": best["rate"], "particles": best["long"]["particles"],
             "steps": [best["short"]["steps"], best["long"]["steps"]],
-            "short": best["short"], "long": best["long"],
+            "short": best["short"], "long": best["long"], "no_analysis": best["bare"],
+            "analysis_beyond_no_analysis_s": min(beyond),
             "analysis_short": best["analysis_short"], "analysis_long": best["analysis_long"]}
+
+
+def demo_costs(repeats: int = 3) -> dict:
+    """The default demo as a user runs it, ``streamsim run`` against ``streamsim run
+    --no-analysis``, interleaved in fresh processes after a warm-up, best of ``repeats`` each:
+    the whole-run ratio, the time loop, and the time outside the loop without the analysis
+    (start-up, theory, io, the end checkpoint)."""
+    import tempfile
+    full, bare = [], []
+    with tempfile.TemporaryDirectory() as tmp:
+        _run_process(None, None, 0, Path(tmp) / "warm")
+        for r in range(repeats):
+            bare.append(_run_process(None, None, 0, Path(tmp) / f"bare{r}", analysis=False))
+            full.append(_run_process(None, None, 0, Path(tmp) / f"full{r}"))
+    f = min(full, key=lambda p: p["process_s"])
+    b = min(bare, key=lambda p: p["process_s"])
+    return {"whole_s": f["process_s"], "no_analysis_s": b["process_s"],
+            "ratio": f["process_s"] / b["process_s"], "loop_s": b["loop_s"],
+            "no_analysis_outside_loop_s": min(p["outside_loop_s"] for p in bare),
+            "outside_loop_s": min(p["outside_loop_s"] for p in full)}
+
+
+def checkpoint_share(write_s: float, loop_s: float) -> dict:
+    """The default checkpoint cadence's cost over a loop of ``loop_s``: one write every
+    :attr:`streamsim.pipeline.Checkpointer.WALL_S` of wall-clock time and one at the end."""
+    from .pipeline import Checkpointer
+    writes = int(loop_s // Checkpointer.WALL_S) + 1
+    return {"writes": writes, "write_s": write_s, "loop_s": loop_s,
+            "fraction": writes * write_s / loop_s if loop_s > 0 else None}
 
 
 def load_average() -> list[float] | None:
@@ -596,6 +647,13 @@ def run(particles=DEFAULT_PARTICLES, threads=None, *, steps: int = 10, repeats: 
         result["bytes_per_particle_peak"] = mem.get("bytes_per_particle_peak")
     if start:
         result["cached_start_s"] = cached_start()
+        result["demo"] = demo_costs()
+    w = result.get("whole_run") or {}
+    if w.get("whole_run_particle_steps_per_s"):
+        result["whole_run_over_engine_step"] = (w["whole_run_particle_steps_per_s"]
+                                                / head["particle_steps_per_s"])
+        result["checkpoint_cadence"] = checkpoint_share(head["checkpoint_write_s"],
+                                                        w["long"]["loop_s"])
     return result
 
 
@@ -605,6 +663,39 @@ def head_row(result: dict) -> dict | None:
     rows = [r for r in result["scaling"] if r["particles"] == h["particles"]
             and r["threads"] == h["threads"]]
     return rows[-1] if rows else None
+
+
+def cost_lines(result: dict) -> list[str]:
+    """What a run costs outside its time loop, beside the loop, with the targets."""
+    lines = []
+    d = result.get("demo")
+    w = result.get("whole_run") or {}
+    ck = result.get("checkpoint_cadence")
+    if not (d or ck or w.get("analysis_beyond_no_analysis_s") is not None):
+        return lines
+    lines.append("outside the time loop (same sitting):")
+    if d:
+        lines.append(f"  default demo: `streamsim run` {d['whole_s']:.2f} s, with --no-analysis "
+                     f"{d['no_analysis_s']:.2f} s: ratio {d['ratio']:.2f} (target <= 1.5); its "
+                     f"time loop {d['loop_s']:.2f} s")
+        lines.append(f"  start-up etc. (--no-analysis, outside the loop: imports, deck, theory, "
+                     f"kernels from the cache, io, the end checkpoint): "
+                     f"{d['no_analysis_outside_loop_s']:.2f} s (target <= 0.5 s)")
+    if w.get("analysis_beyond_no_analysis_s") is not None:
+        a = w["analysis_short"]
+        lines.append(f"  N = {w['particles']}, {w['steps'][0]} steps: analysis, tables and figures "
+                     f"add {w['analysis_beyond_no_analysis_s']:.2f} s to --no-analysis (target "
+                     f"<= 1.0 s); in-process: compute {a['compute_s']:.2f} s, tables "
+                     f"{a['tables_s']:.2f} s, figures {a['figures_s']:.2f} s (other processes)")
+    if ck:
+        lines.append(f"  checkpoints at the default cadence (every 5 min of wall-clock time and at "
+                     f"the end) over the {w['steps'][1]}-step loop of {ck['loop_s']:.2f} s: "
+                     f"{ck['writes']} x {ck['write_s'] * 1e3:.0f} ms = {ck['fraction']:.1%} of "
+                     f"the loop (target <= 5%)")
+    if result.get("whole_run_over_engine_step"):
+        lines.append(f"  whole run's per-step rate / the engine step: "
+                     f"{result['whole_run_over_engine_step']:.2f} (target >= 0.8)")
+    return lines
 
 
 def format_table(result: dict) -> str:
@@ -653,7 +744,7 @@ def format_table(result: dict) -> str:
         lines.append(f"one peak-snapshot copy of all positions: {r['peak_snapshot_copy_s'] * 1e3:.2f}"
                      f" ms ({r['peak_snapshot_copy_s'] / step:.2f} step); one checkpoint write: "
                      f"{r['checkpoint_write_s'] * 1e3:.0f} ms ({r['checkpoint_write_s'] / step:.1f}"
-                     f" steps; a run writes 11)")
+                     f" steps)")
     w = result.get("whole_run")
     if w and w.get("whole_run_particle_steps_per_s"):
         lines.append(
@@ -667,8 +758,10 @@ def format_table(result: dict) -> str:
             lines.append(
                 f"  {p['steps']:>4d} steps: process {p['process_s']:.2f} s, time loop "
                 f"{p['loop_s']:.2f} s, outside the loop {p['outside_loop_s']:.2f} s; analysis of "
-                f"its {a['samples']} samples: compute {a['compute_s']:.2f} s, tables and figures "
-                f"{a['write_and_figures_s']:.2f} s")
+                f"its {a['samples']} samples: compute {a['compute_s']:.2f} s, tables "
+                f"{a['tables_s']:.2f} s, figures {a['figures_s']:.2f} s (on their own), tables "
+                f"and figures as a run writes them {a['write_and_figures_s']:.2f} s")
+    lines += cost_lines(result)
     la = result.get("load_average")
     if la:
         lines.append(f"load average (1/5/15 min) before: {la.get('before')}, after: {la.get('after')}")

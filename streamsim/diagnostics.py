@@ -267,8 +267,8 @@ class SeriesRecorder(_Arrays):
         scale = self.momentum_scale
         return {"energy": {"relative_error_max": self.energy_err_max, "tolerance": tol,
                            "warning": self.energy_err_max > tol},
-                "momentum": {"drift_max": self.momentum_drift_max,
-                             "drift_max_relative": self.momentum_drift_max / scale
+                "momentum": {"error_max": self.momentum_drift_max,
+                             "error_max_relative": self.momentum_drift_max / scale
                              if scale else None}}
 
     def meta(self):

@@ -41,6 +41,7 @@ RULES = {
     "fastest_mode_containment": "fastest mode containment",
     "no_unstable_box_mode": "no unstable box mode",
     "noise_floor": "noise floor",
+    "table_support": "table support",
 }
 
 
@@ -105,6 +106,11 @@ def merge_findings(findings) -> list[str]:
     return lines
 
 
+#: fewest momentum cells across the interquartile range of a table species (Vlasov), common
+#: practice: a hump needs a few cells per width to be advected without smearing
+TABLE_CORE_CELLS = 8
+
+
 def omega_p_total(species) -> float:
     """Total (non-relativistic, upper-bound) plasma frequency sqrt(sum omega_ps^2), in omega_p."""
     return math.sqrt(sum(s.omega_p2 for s in species))
@@ -114,9 +120,20 @@ def debye_length(s) -> float:
     """lambda_D,s = v_th,s / omega_ps with v_th^2 = theta c^2 (non-relativistic; in c/omega_p)."""
     if s.distribution == "waterbag":
         vth = s.spread_u / math.sqrt(3.0)     # rms of a flat distribution of half-width D
+    elif s.distribution == "table":
+        vth = table_core_width(s)
     else:
         vth = math.sqrt(s.theta)
     return vth / math.sqrt(s.omega_p2) if vth > 0 else 0.0
+
+
+def table_core_width(s) -> float:
+    """The thermal-speed equivalent of a tabulated species' core: the interquartile range of its
+    velocity, / 1.349 (= 2 x 0.6745, the quartiles of a Gaussian; a robust width, not moved by a
+    broad tail as the rms would be), in c."""
+    q = s.table.inverse_cdf([0.25, 0.75])
+    v = q / (1.0 + q * q) ** 0.5
+    return float(v[1] - v[0]) / 1.349
 
 
 def velocity_max(s) -> float:
@@ -125,6 +142,9 @@ def velocity_max(s) -> float:
     Cold: |beta_d|. Waterbag: the faster boosted edge of +-spread_u. Juttner: the drift-frame
     momentum six standard deviations out (a fraction ~1e-9 lies beyond), boosted.
     """
+    if s.distribution == "table":
+        lo, hi = s.table.support
+        return max(abs(lo), abs(hi)) / math.sqrt(1.0 + max(lo * lo, hi * hi))
     if s.distribution == "waterbag":
         edge = s.spread_u
     elif s.distribution == "juttner" and s.theta > 0:
@@ -253,4 +273,24 @@ def check_deck(deck, dispersion=None) -> list[Finding]:
                                    f"{noise:.2g} is within 3x of analysis.clump_threshold = {thr:g}: "
                                    f"noise alone would count as clumps; use particles_per_cell >= {need} "
                                    f"or loading = \"quiet\""))
+
+    # -- a table whose support is far wider than its core (Vlasov: the momentum grid) -------
+    if getattr(deck, "method", "pic") == "vlasov":
+        from .vlasov.grid import momentum_grid     # lazy: the grid the Vlasov start will use
+        for s in deck.species:
+            if s.distribution != "table":
+                continue
+            g = momentum_grid(deck, s)
+            du = (g.u_max - g.u_min) / g.cells
+            q = s.table.inverse_cdf([0.25, 0.75])
+            cells = (q[1] - q[0]) / du
+            if cells < TABLE_CORE_CELLS:
+                need = math.ceil(g.cells * TABLE_CORE_CELLS / max(cells, 1e-300))
+                out.append(_finding("warning", "table_support", "vlasov.momentum_cells",
+                                    value=g.cells, species=(s.name,), message=
+                                   f"the table spans u in [{s.table.u[0]:.4g}, "
+                                   f"{s.table.u[-1]:.4g}] but half its particles lie within "
+                                   f"du = {q[1] - q[0]:.3g}, only {cells:.2g} momentum cells; use "
+                                   f"vlasov.momentum_cells >= {need}, or cut the table's support "
+                                   "(vlasov.u_min/u_max) to what the run needs"))
     return out

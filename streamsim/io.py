@@ -174,6 +174,7 @@ def save_figure(fig, path: str | Path, dpi: int = 110) -> Path:
 
     import matplotlib.pyplot as plt
     buf = _bio.BytesIO()
+    fig.set_dpi(dpi)  # laid out at the resolution it is saved at: each text is measured once
     try:
         fig.tight_layout()
     except (ValueError, RuntimeError):  # a layout that cannot be tightened is still drawn
@@ -601,4 +602,16 @@ def update_summary(folder, entries: dict) -> None:
         return
     if isinstance(current, dict):
         current.update(entries)
+        _rename_old_keys(current)
         write_json(path, current)
+
+
+def _rename_old_keys(summary: dict) -> None:
+    """A summary.json of an earlier schema gets the current names of the run's own keys (the
+    analysis blocks' entries are recomputed with them) and the current ``schema_version``."""
+    from ._version import RENAMED_RUN_SUMMARY_KEYS, SUMMARY_SCHEMA_VERSION
+    for (block, old), (_, new) in RENAMED_RUN_SUMMARY_KEYS.items():
+        entry = summary.get(block)
+        if isinstance(entry, dict) and old in entry:
+            entry.setdefault(new, entry.pop(old))
+    summary["schema_version"] = SUMMARY_SCHEMA_VERSION

@@ -11,6 +11,10 @@ Plasmas 22, 042116).
   (Juttner 1911; drifting form e.g. Zenitani 2015).
 - waterbag: flat in u' on [-spread_u, spread_u] in the drift frame, which is flat in lab u on
   the boosted interval (the invariance above).
+- table: a lab-frame f(u) given by rows, linear in v between them; its cumulative distribution is
+  exact (a u + b gamma on each interval) and inverted by Newton's method
+  (:meth:`streamsim.distribution_table.DistributionTable.inverse_cdf`), with the same quantiles
+  (quiet: bit-reversed; random: the seeded generator) as the built-in distributions.
 
 Sampling is inverse-transform (Devroye 1986, ch. 2) of the tabulated lab-frame CDF. The quiet
 start (Birdsall & Langdon 1991, ch. 16) puts particles at evenly spaced positions and gives them
@@ -124,6 +128,8 @@ def momenta(species, n: int, quiet: bool, rng: np.random.Generator) -> np.ndarra
         q = rng.random(n)
     if species.distribution == "waterbag":
         return waterbag_inverse_cdf(q, species.drift_u, species.spread_u)
+    if species.distribution == "table":
+        return species.table.inverse_cdf(q)
     return juttner_inverse_cdf(q, species.drift_u, species.theta)
 
 

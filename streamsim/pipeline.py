@@ -19,7 +19,7 @@ from typing import Any, Callable
 import numpy as np
 
 from . import io, resume as _resume, units
-from ._version import __version__
+from ._version import SUMMARY_SCHEMA_VERSION, __version__
 from .control import EnergyWatch, Progress, Signals, StopRequest
 from .checkpointer import Checkpointer
 from .deck import Deck, DeckError, load_deck
@@ -208,6 +208,9 @@ def _run_locked(ctx: RunContext) -> Result:
     if folder is not None:
         io.write_text(folder / io.FILES["deck"], deck.to_toml())
         io.write_json(folder / io.FILES["theory"], ctx.theory)
+        for s in deck.species:                  # a copy of each table beside the deck
+            if s.table is not None:
+                io.write_text(folder / f"table-{s.name}.csv", s.table.to_csv())
 
     step0 = sim.step
     bar = Progress(sim) if ((not ctx.quiet and sys.stderr.isatty()) if ctx.progress is None
@@ -220,9 +223,9 @@ def _run_locked(ctx: RunContext) -> Result:
             # a driven run watches its energy balance W - W0 = L int J_ext E0 dt instead
             control = [EnergyWatch(ctx.energy_source(), deck.analysis.energy_tolerance, ctx.say)]
             if folder is not None:
-                control.append(Checkpointer(stride(deck.output.checkpoint_interval, sim.dt)
-                                            if deck.output.checkpoint_interval > 0 else 0,
-                                            ctx.save))
+                every = deck.output.checkpoint_interval
+                control.append(Checkpointer(stride(every, sim.dt) if every else 0, ctx.save,
+                                            wall_s=Checkpointer.WALL_S if every is None else None))
             control += [h for h in (bar, stop) if h is not None]
             loop = handlers + control
             while sim.step < sim.steps:
@@ -302,6 +305,10 @@ def _finish_run(ctx: RunContext, *, status, wall, steps_done, analyze, figures,
     sim, deck, folder, method, say = ctx.sim, ctx.deck, ctx.folder, ctx.method, ctx.say
     warnings = ctx.warnings + list(extra_warnings) if extra_warnings else ctx.warnings
     data = method.run_data(sim, ctx.handlers, ctx.dispersion)
+    painter = None
+    if analyze and figures and folder is not None:  # figures start in other processes now
+        from .plots import Painter
+        painter = Painter(data, folder)
     summary = _run_summary(ctx, warnings, status=status, wall=wall, steps_done=steps_done)
     summary.update(method.summary_extras(sim, data, wall, steps_done, say))
     if ctx.theory is not None:
@@ -333,9 +340,11 @@ def _finish_run(ctx: RunContext, *, status, wall, steps_done, analyze, figures,
             summary["analysis_error"] = f"{ex.__class__.__name__}: {ex}"
             say(f"the analysis failed ({summary['analysis_error']}); the run's data are "
                 f"complete, retry with `streamsim analyze`")
+        if painter is not None and not results:
+            painter.close()
         if folder is not None and results:
             try:
-                analysis.write_outputs(results, data, folder, figures=figures)
+                analysis.write_outputs(results, data, folder, figures=figures, painter=painter)
             except io.OutputError:
                 raise
             except Exception as ex:  # noqa: BLE001 - a figure must not lose the numbers
@@ -358,6 +367,7 @@ def _run_summary(ctx: RunContext, warnings, *, status, wall, steps_done) -> dict
     total_charge = float(sum(s.charge * s.density for s in deck.species))
     return {
         "streamsim_version": __version__,
+        "schema_version": SUMMARY_SCHEMA_VERSION,
         "deck_title": deck.title,
         "method": deck.method,
         "status": status,

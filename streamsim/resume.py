@@ -52,7 +52,7 @@ def extended_deck(deck: Deck, theirs: dict | None) -> tuple[Deck, list[str]]:
         deck.output, **{k: None for k in CADENCES}))).output
     kept = {}
     for key in CADENCES:
-        mine, run = getattr(deck.output, key), theirs["output"][key]
+        mine, run = getattr(deck.output, key), theirs["output"].get(key)  # unset: not written
         if mine != run and mine == getattr(derived, key):
             kept[key] = run
     time = deck.time

@@ -82,7 +82,7 @@ def test_density_scaling(demo_runs):
     s1, s4 = r1.summary, r4.summary
     def nu(s):   # the cold default's nu_c is grid-limited, so reported as a lower bound
         co = s["coherence"]
-        return co["frequency_cutoff_hz"] or co["frequency_cutoff_hz_lower_bound"]
+        return co["frequency_cutoff_hz"] or co["frequency_cutoff_lower_bound_hz"]
     assert s1["contrast"]["t_unity_ns"] is not None and nu(s1)
     # omega_p ~ n^(1/2) (NRL Plasma Formulary): 4x the density halves times, doubles frequencies.
     # The two decks are one normalised run (README), so only the unit conversion differs:
@@ -115,7 +115,7 @@ def test_run_folder_files_and_commands(demo_runs):
     blocks = json.loads(out.stdout)
     assert blocks["coherence"]["bulk_gamma"] == 3.0
     def nu(co):  # the cold default's nu_c is grid-limited: a lower bound
-        return co["frequency_cutoff_hz"] or co["frequency_cutoff_hz_lower_bound"]
+        return co["frequency_cutoff_hz"] or co["frequency_cutoff_lower_bound_hz"]
     assert nu(blocks["coherence"]) == pytest.approx(
         3 * nu(summ["coherence"]) / summ["coherence"]["bulk_gamma"], rel=1e-9)
     text = subprocess.run(cmd + ["analyze", str(folder), "--no-figures"], capture_output=True,

@@ -140,7 +140,7 @@ def test_random_loading_run_reports_method_and_rate(tmp_path):
     measured -1.7 % (error 2.3 %)."""
     res = streamsim.run(None, out=None, write=False, figures=False, overrides=RANDOM + ["time.end=30.0"])
     g = res.summary["growth"]
-    assert g["method"].startswith("eigenmode")
+    assert g["fit"].startswith("eigenmode")
     v = 0.1
     wb = math.sqrt(0.5 * (1 - v * v) ** 1.5)
     ref = _cold_root_growth(g["k"], v, wb)
@@ -148,7 +148,7 @@ def test_random_loading_run_reports_method_and_rate(tmp_path):
     assert abs(g["measured"] - ref) <= 3 * g["measured_err"]
     assert g["start"] == "noise-seeded"
     fe = res.summary["field_energy_growth"]
-    assert "method" in fe and "consistent_with_theory" in fe
+    assert "fit" in fe and "consistent_with_theory" in fe
 
 
 def test_too_few_particles_give_a_reason_and_advice():

@@ -139,7 +139,7 @@ def test_a_new_block_is_one_module_and_one_registry_line(tmp_path, monkeypatch):
                                 [base.Figure("toy.png", "a toy", draw)], ["toy: sum 10"])
 
     toy = types.SimpleNamespace(NAME="toy", compute=compute, SCAN_COLUMNS=[
-        base.ScanColumn("toy_sum", "", "sum of x", ("toy", "sum"))])
+        base.ScanColumn(("toy", "sum"), "", "sum of x")])
     monkeypatch.setattr(registry, "BLOCKS", registry.BLOCKS + (toy,))
     monkeypatch.setattr(analysis, "BLOCKS", registry.BLOCKS)
     data = synthetic_run(seed=3, particles=2000)
@@ -151,7 +151,8 @@ def test_a_new_block_is_one_module_and_one_registry_line(tmp_path, monkeypatch):
     back = read_tables(tmp_path / "analysis.h5")["toy"]
     assert back.units == {"x": "c/omega_p"} and list(back.col("y")) == [0, 1, 4, 9, 16]
     assert (tmp_path / "figures" / "toy.png").stat().st_size > 1000
-    assert "toy_sum" in [c.name for c in analysis.scan_columns()]
+    # the column is named after the summary key it holds (block.key), not by hand
+    assert "toy.sum" in [c.name for c in analysis.scan_columns()]
 
 
 def test_terminal_lines_give_times_in_ns_lengths_in_cm_frequencies_in_ghz():

@@ -83,21 +83,34 @@ def test_cli_rejects_bad_thread_count(capsys):
 
 def test_whole_run_differences_two_processes(monkeypatch, tmp_path):
     """whole_run_particle_steps_per_s = (long - short steps) N / (long - short process time):
-    start-up and the fixed costs cancel (checked on stand-in process timings)."""
+    start-up and the fixed costs cancel (checked on stand-in process timings); the analysis'
+    share is the short run's time outside the loop less that of the same run with
+    --no-analysis."""
     calls = []
 
-    def fake(steps, particles, threads, folder):
-        calls.append(steps)
-        # 3 s of start-up, analysis and checkpoints, plus 1e-8 s per particle-step
-        return {"steps": steps, "particles": 1000, "process_s": 3.0 + steps * 1000 * 1e-8,
-                "loop_s": steps * 1000 * 1e-8, "outside_loop_s": 3.0}
+    def fake(steps, particles, threads, folder, analysis=True):
+        calls.append((steps, analysis))
+        # 2 s of start-up and checkpoints, 1 s of analysis, plus 1e-8 s per particle-step
+        fixed = 3.0 if analysis else 2.0
+        return {"steps": steps, "particles": 1000, "process_s": fixed + steps * 1000 * 1e-8,
+                "loop_s": steps * 1000 * 1e-8, "outside_loop_s": fixed}
 
     monkeypatch.setattr(bench, "_run_process", fake)
     monkeypatch.setattr(bench, "analysis_seconds", lambda folder: {"samples": 0})
     w = bench.whole_run(particles=1000, threads=1, steps=(50, 800))
-    assert calls == [2, 50, 800]            # a warm-up process, then the pair
+    # a warm-up process, then the short run without and with the analysis, then the long one
+    assert calls == [(2, True), (50, False), (50, True), (800, True)]
     assert w["whole_run_particle_steps_per_s"] == pytest.approx(1e8, rel=1e-9)
     assert w["steps"] == [50, 800]
+    assert w["analysis_beyond_no_analysis_s"] == pytest.approx(1.0)
+
+
+def test_checkpoint_share_counts_the_wall_clock_writes_and_the_end():
+    from streamsim.pipeline import Checkpointer
+    short = bench.checkpoint_share(0.2, 4.0)
+    assert short["writes"] == 1 and short["fraction"] == pytest.approx(0.05)
+    long = bench.checkpoint_share(0.2, 2.5 * Checkpointer.WALL_S)
+    assert long["writes"] == 3
 
 
 def test_ladder_loops_do_the_push_they_name():

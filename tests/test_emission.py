@@ -108,8 +108,8 @@ def test_cold_run_is_grid_limited_and_says_why():
     assert cl["grid_limited"] and cl["size_median_cells"] < 3
     assert cl["cold_species"] == ["electrons", "positrons"]
     assert co["grid_limited"]
-    assert co["frequency_cutoff_hz"] is None and co["frequency_cutoff_hz_lower_bound"] > 0
-    assert co["frequency_cutoff_bound"] == "lower"
+    assert co["frequency_cutoff_hz"] is None and co["frequency_cutoff_lower_bound_hz"] > 0
+    assert "frequency_cutoff_bound" not in co   # one name: frequency_cutoff_lower_bound_hz
 
 
 def test_warm_run_at_resolved_debye_length_is_not_grid_limited():
@@ -120,7 +120,7 @@ def test_warm_run_at_resolved_debye_length_is_not_grid_limited():
     cl, co = s["clumps"], s["coherence"]
     assert cl["count"] > 0 and not cl["grid_limited"] and cl["size_median_err_cm"] is not None
     assert not co["grid_limited"] and co["frequency_cutoff_hz"] is not None
-    assert co["frequency_cutoff_hz_err"] is not None
+    assert co["frequency_cutoff_err_hz"] is not None
     assert s["clumps"]["cold_species"] == []
 
 
@@ -132,10 +132,10 @@ def test_error_bar_of_nu_c_agrees_with_the_replica_scatter():
         # 128 per cell half the seeds had no cutoff 20x above the 1/N floor over the window
         co = _run(pair_deck(cells=64, ppc=256, end=50.0, theta=2e-3, loading="random", seed=seed,
                             nwaves=6), ["time.dt='auto'"])["coherence"]
-        nu = co["frequency_cutoff_hz"] or co["frequency_cutoff_hz_lower_bound"]
-        if nu is not None and co["frequency_cutoff_hz_err"] is not None:
+        nu = co["frequency_cutoff_hz"] or co["frequency_cutoff_lower_bound_hz"]
+        if nu is not None and co["frequency_cutoff_err_hz"] is not None:
             nus.append(nu)
-            errs.append(co["frequency_cutoff_hz_err"])
+            errs.append(co["frequency_cutoff_err_hz"])
     assert len(nus) >= 8
     scatter = float(np.std(nus, ddof=1))
     # an honest error bar: the replica scatter and the typical reported error agree within a
@@ -168,8 +168,8 @@ def test_converge_command_on_a_tiny_deck(tmp_path):
                  "--quiet"]) == 0
     study = json.loads((out / "converge.json").read_text())
     verdicts = set()
-    for name in ("growth_rate", "t_unity_ns", "contrast_max", "clump_size_median_cm", "k_c",
-                 "nu_c_hz"):
+    for name in ("growth.measured", "contrast.t_unity_ns", "contrast.max", "clumps.size_median_cm",
+                 "coherence.k_cutoff", "coherence.frequency_cutoff_hz"):
         o = study["outputs"][name]
         assert {"levels", "change", "order", "extrapolated", "verdict"} <= set(o)
         assert [lv["cells"] for lv in o["levels"]] == [32, 64, 128]
@@ -201,7 +201,7 @@ def test_converge_command_on_a_tiny_deck(tmp_path):
     assert len(verdicts) >= 2                   # the tiny deck does not give one verdict for all
     # the finest growth rate within 3 errors of the cold symmetric-beam maximum omega_b/2
     # (Birdsall & Langdon 1991; from memory), omega_b^2 = 0.5/gamma0^3 at beta = 0.1
-    g = study["outputs"]["growth_rate"]["levels"][2]
+    g = study["outputs"]["growth.measured"]["levels"][2]
     assert abs(g["value"] - 0.5 * math.sqrt(0.5 * 0.99 ** 1.5)) < 3 * g["err"]
     assert (out / "converge.csv").is_file() and (out / "converge.png").is_file()
     # resumable: the same command again runs nothing new and gives the same table

@@ -134,7 +134,7 @@ def test_headline_agrees_whether_the_run_stops_at_1p5_or_3_times_t_unity():
     assert long_["contrast"]["t_unity"] == pytest.approx(tu, abs=0.1)    # dt "auto" follows end
     a, b = short["coherence"], long_["coherence"]
     assert abs(a["frequency_cutoff_hz"] - b["frequency_cutoff_hz"]) <= math.hypot(
-        a["frequency_cutoff_hz_err"], b["frequency_cutoff_hz_err"])
+        a["frequency_cutoff_err_hz"], b["frequency_cutoff_err_hz"])
     a, b = short["clumps"], long_["clumps"]
     assert abs(a["size_median_cm"] - b["size_median_cm"]) <= math.hypot(
         a["size_median_err_cm"], b["size_median_err_cm"])

@@ -24,7 +24,7 @@ GAMMA_COLD = 0.5 * math.sqrt(0.5 * (1 - 0.01) ** 1.5)
 
 
 # ----------------------------------------------------------------------------------------------
-# the start of the growth: contrast.initial_level, efolds_to_unity, t_unity_ns_for_level
+# the start of the growth: contrast.initial_level, efolds_to_unity, t_unity_for_level_ns
 # ----------------------------------------------------------------------------------------------
 @pytest.fixture(scope="module")
 def seeded_pair():
@@ -70,9 +70,9 @@ def test_t_unity_for_a_level_predicts_the_run_started_there(seeded_pair):
     assert c2["t_unity_for_level"] - a.summary["contrast"]["t_unity"] > 15.0
     assert c2["t_unity_for_level"] == pytest.approx(cc["t_unity"], rel=0.025)
     # in ns through omega_p = 5.64e4 n^1/2 rad/s (NRL Plasma Formulary), n = 1e10 cm^-3
-    assert c2["t_unity_ns_for_level"] == pytest.approx(
+    assert c2["t_unity_for_level_ns"] == pytest.approx(
         c2["t_unity_for_level"] / (5.64e4 * 1e5) * 1e9, rel=1e-3)
-    assert "extrapolation" in c2 and a.summary["contrast"]["t_unity_ns_for_level"] is None
+    assert "extrapolation" in c2 and a.summary["contrast"]["t_unity_for_level_ns"] is None
 
 
 def test_a_seed_below_the_loading_noise_warns():

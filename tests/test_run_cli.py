@@ -42,7 +42,7 @@ def test_summary_contract_keys(small_run):
         assert key in s
     for key in ("density_cm3", "omega_p_rad_s", "skin_depth_cm", "plasma_period_ns"):
         assert key in s["normalization"]
-    assert "relative_error_max" in s["energy"] and "drift_max" in s["momentum"]
+    assert "relative_error_max" in s["energy"] and "error_max" in s["momentum"]
     assert s["steps"] == 400 and s["particles"] == 2 * 64 * 16
     # handbook value for the deck's density (NRL: 5.64e4 n^1/2 rad/s)
     assert s["normalization"]["omega_p_rad_s"] == pytest.approx(5.64e4 * 1e5, rel=1e-3)

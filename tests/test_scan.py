@@ -178,17 +178,18 @@ def test_metrics_from_a_summary_follow_the_block_paths_and_tolerate_nulls():
     s = {"normalization": {"density_cm3": n}, "wall_s": 1.5,
          "energy": {"relative_error_max": 2e-4},
          "growth": {"mode": 8, "measured": 0.5, "measured_err": 0.01, "theory": 0.4, "ratio": 1.25,
-                    "growth_time_ns": 0.35, "growth_time_err_ns": None, "method": "eigenmode"},
+                    "growth_time_ns": 0.35, "growth_time_err_ns": None, "fit": "eigenmode"},
          "contrast": {"max": 3.0, "t_unity": 10.0, "t_unity_ns": float("nan")},
          "clumps": None, "coherence": {"frequency_cutoff_hz": 2.0e9}}
     m = metrics_from_summary(s)
-    assert m["growth_mode"] == 8 and m["growth_measured"] == 0.5 and m["growth_ratio"] == 1.25
-    assert m["growth_time_ns"] == 0.35 and m["growth_time_err_ns"] is None
-    assert m["growth_method"] == "eigenmode"          # a word, kept as it is
-    assert metrics_from_summary({"growth": {"method": 3.0}})["growth_method"] is None
-    assert m["t_unity_ns"] is None and m["contrast_max"] == 3.0     # NaN is no number
-    assert m["clump_size_median_cm"] is None and m["clump_count"] is None
-    assert m["nu_c_hz"] == 2.0e9 and m["energy_error_max"] == 2e-4 and m["density_cm3"] == n
+    assert m["growth.mode"] == 8 and m["growth.measured"] == 0.5 and m["growth.ratio"] == 1.25
+    assert m["growth.growth_time_ns"] == 0.35 and m["growth.growth_time_err_ns"] is None
+    assert m["growth.fit"] == "eigenmode"          # a word, kept as it is
+    assert metrics_from_summary({"growth": {"fit": 3.0}})["growth.fit"] is None
+    assert m["contrast.t_unity_ns"] is None and m["contrast.max"] == 3.0     # NaN is no number
+    assert m["clumps.size_median_cm"] is None and m["clumps.count"] is None
+    assert m["coherence.frequency_cutoff_hz"] == 2.0e9
+    assert m["energy.relative_error_max"] == 2e-4 and m["normalization.density_cm3"] == n
     empty = metrics_from_summary({})
     assert all(v is None for v in empty.values())
 
@@ -224,17 +225,17 @@ def test_an_invalid_point_is_recorded_and_the_rest_finish(tmp_path):
     assert "box.cells = 1" in rows[0]["error"] and rows[0]["error_kind"] == "deck"
     err = json.loads((out / rows[0]["folder"] / "error.json").read_text())
     assert "box.cells" in err["error"]
-    assert float(rows[1]["growth_measured"]) > 0 and rows[1]["box.cells"] == "64"
+    assert float(rows[1]["growth.measured"]) > 0 and rows[1]["box.cells"] == "64"
     with h5py.File(out / "scan.h5", "r") as f:
         assert [s.decode() if isinstance(s, bytes) else s for s in f["runs/status"][()]] == \
             ["failed", "completed"]
-        assert np.isnan(f["runs/growth_measured"][0]) and f["runs/growth_measured"][1] > 0
-        assert f["grid/growth_measured"].shape == (2, 1)
+        assert np.isnan(f["runs/growth.measured"][0]) and f["runs/growth.measured"][1] > 0
+        assert f["grid/growth.measured"].shape == (2, 1)
         # the word saying which fit gave the rate rides along, in the table and on the grid
         summary = json.loads((out / rows[1]["folder"] / "summary.json").read_text())
-        method = summary["growth"]["method"]
-        assert method and rows[1]["growth_method"] == method and rows[0]["growth_method"] == ""
-        grid = [v.decode() if isinstance(v, bytes) else v for v in f["grid/growth_method"][:, 0]]
+        method = summary["growth"]["fit"]
+        assert method and rows[1]["growth.fit"] == method and rows[0]["growth.fit"] == ""
+        grid = [v.decode() if isinstance(v, bytes) else v for v in f["grid/growth.fit"][:, 0]]
         assert grid == ["", method]
 
 
@@ -311,7 +312,7 @@ def test_rerun_without_resume_is_refused_and_resume_skips_everything(tmp_path):
     assert proc.returncode == 2 and "--resume" in proc.stderr
     res2 = run_scan(path, out, workers=1, resume=True, figures=False)
     assert (res2.ran, res2.skipped, res2.completed) == (0, 1, 1)
-    assert res2.rows[0]["growth_measured"] == res.rows[0]["growth_measured"]
+    assert res2.rows[0]["growth.measured"] == res.rows[0]["growth.measured"]
 
 
 def test_workers_times_threads_never_exceed_the_cores(tmp_path):

@@ -23,12 +23,15 @@ __all__ = ["analyze", "compute", "summary_entries", "terminal_lines", "options_f
 def options_for(deck, **overrides):
     """The deck's validated ``[analysis]`` options with ``overrides`` (None = keep) applied;
     a bad value raises the deck's one-line DeckError."""
+    import dataclasses
     given = {k: v for k, v in overrides.items() if v is not None}
     if not given:
         return deck.analysis
-    from ..deck import apply_overrides, load_deck
-    raw = apply_overrides(deck.to_dict(), [f"analysis.{k}={v!r}" for k, v in given.items()])
-    return load_deck(raw).analysis
+    from ..deck.keys import schema_of
+    from ..deck.validate import coerce
+    keys = schema_of(type(deck.analysis))
+    return dataclasses.replace(deck.analysis, **{k: coerce(f"analysis.{k}", keys[k], v)
+                                                 for k, v in given.items()})
 
 
 def compute(data, options=None, *, max_particles: int | None = None) -> dict[str, BlockResult]:
@@ -63,13 +66,26 @@ def scan_columns() -> list[ScanColumn]:
     return [c for block in BLOCKS for c in getattr(block, "SCAN_COLUMNS", [])]
 
 
-def write_outputs(results, data, folder, *, figures: bool = True) -> list[Path]:
-    """Tables (CSV, analysis.h5) and, with ``figures``, every block's figures."""
+def write_outputs(results, data, folder, *, figures: bool = True, painter=None) -> list[Path]:
+    """Tables (CSV, analysis.h5) and, with ``figures``, every block's figures, drawn in other
+    processes while the tables are written (:class:`streamsim.plots.Painter`; pass one made
+    before the analysis to overlap its start with the computation)."""
     from .writers import write_tables
-    paths = write_tables(results, folder)
+    if figures and painter is None:
+        from ..plots import Painter
+        painter = Painter(data, folder)
     if figures:
-        from ..plots import draw_figures
-        paths += draw_figures(results, data, folder)
+        painter.draw(results)
+    try:
+        paths = write_tables(results, folder)
+    except BaseException:
+        if painter is not None:
+            painter.close()
+        raise
+    if figures:
+        paths += painter.wait()
+    elif painter is not None:
+        painter.close()
     return paths
 
 

@@ -21,7 +21,7 @@ import numpy as np
 
 from ..numbers import finite_or_none
 
-__all__ = ["Table", "BlockResult", "Context", "ScanColumn", "Figure", "fmt"]
+__all__ = ["Table", "BlockResult", "Context", "ScanColumn", "Figure", "fmt", "column_name"]
 
 
 @dataclass
@@ -79,15 +79,26 @@ class BlockResult:
         return self.tables.get(name)
 
 
-@dataclass
+def column_name(path: tuple[str, ...]) -> str:
+    """The scan-table name of the summary.json entry at ``path``: its keys joined by dots
+    (``("coherence", "frequency_cutoff_hz")`` -> ``coherence.frequency_cutoff_hz``), the one rule
+    for every column, so a column is always named after the key it holds."""
+    return ".".join(path)
+
+
+@dataclass(frozen=True)
 class ScanColumn:
-    """A scan-table column read from summary.json: ``path`` is the key path into it. A ``text``
-    column holds a word (a method's name), not a number."""
-    name: str
+    """A scan-table column read from summary.json: ``path`` is the key path into it and its
+    name is derived from the path (:func:`column_name`). A ``text`` column holds a word (a fit's
+    name), not a number."""
+    path: tuple[str, ...]
     unit: str
     meaning: str
-    path: tuple[str, ...]
     text: bool = False
+
+    @property
+    def name(self) -> str:
+        return column_name(self.path)
 
 
 @dataclass

@@ -329,5 +329,5 @@ def species_coherence(x, length: float, modes: int, *, drop: float, density_cm3:
     nu_err = emission_cutoff_hz(cut["k_cutoff_err"], bulk_gamma, density_cm3) \
         if cut["k_cutoff_err"] is not None else None
     return {"k": k, "power": P, "particles": n_all, "particles_used": n, "noise_floor": floor,
-            **cut, "frequency_cutoff_hz": nu, "frequency_cutoff_hz_err": nu_err,
+            **cut, "frequency_cutoff_hz": nu, "frequency_cutoff_err_hz": nu_err,
             "envelope": env}

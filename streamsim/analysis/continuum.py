@@ -40,5 +40,5 @@ def density_coherence(density, length: float, modes: int, *, drop: float, densit
     nu_err = emission_cutoff_hz(cut["k_cutoff_err"], bulk_gamma, density_cm3) \
         if cut.get("k_cutoff_err") is not None else None
     return {"k": k, "power": P, "particles": None, "particles_used": None, "noise_floor": 0.0,
-            **cut, "frequency_cutoff_hz": nu, "frequency_cutoff_hz_err": nu_err,
+            **cut, "frequency_cutoff_hz": nu, "frequency_cutoff_err_hz": nu_err,
             "envelope": env, "source": "continuum density"}

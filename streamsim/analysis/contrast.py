@@ -20,7 +20,7 @@ from .. import units
 
 __all__ = ["first_crossing", "contrast_block", "species_contrast", "exponential_phase",
            "initial_level", "t_unity_for_level", "t_unity_for_level_err", "LINEAR_TOP", "FIT_RMS", "MIN_EFOLDS",
-           "NOISE_MARGIN"]
+           "NOISE_MARGIN", "UNIFORM_LEVEL", "stayed_uniform"]
 
 #: the exponential phase is fitted below this max delta n/n (still linear: common practice)
 LINEAR_TOP = 0.3
@@ -31,6 +31,17 @@ MIN_EFOLDS = 1.5
 #: a seed whose max delta n/n is this far below the loading's own level before the growth
 #: is "below the noise" (common practice)
 NOISE_MARGIN = 3.0
+#: a run whose max delta n/n never exceeds this stayed uniform: float64 round-off of a density
+#: is ~1e-16, any seed or particle noise is orders of magnitude above (common practice)
+UNIFORM_LEVEL = 1e-10
+
+
+def stayed_uniform(max_contrast) -> bool:
+    """True when the largest delta n/n of the run is at round-off level (:data:`UNIFORM_LEVEL`):
+    an unseeded, noise-free plasma (a continuum run with no perturbation) has no structure, so
+    it has no clumps and no coherence cutoff to report."""
+    return max_contrast is not None and bool(np.isfinite(max_contrast)) \
+        and float(max_contrast) <= UNIFORM_LEVEL
 
 
 def first_crossing(t, y, level: float = 1.0) -> float | None:

@@ -39,7 +39,6 @@ from dataclasses import dataclass
 
 import numpy as np
 from scipy.optimize import OptimizeWarning, curve_fit
-from scipy.signal import find_peaks
 
 __all__ = ["DampedFit", "fit_damped_oscillation", "wave_signal", "effective_sample_size",
            "error_inflation", "NOISE_FACTOR"]
@@ -113,6 +112,7 @@ def _auto_window(t, s, w0, noise_factor):
     faster-damped roots have died out) to the last peak still above ``noise_factor`` x the rms
     of the last 20 % of s, contiguously; all the remaining peaks when it never rises clear."""
     dt = float(np.median(np.diff(t)))
+    from scipy.signal import find_peaks  # lazy: scipy.signal costs about half a second
     peaks, _ = find_peaks(np.abs(s), distance=max(1, int(0.3 * math.pi / w0 / dt)))
     if peaks.size < 4:
         return None
@@ -160,6 +160,7 @@ def fit_damped_oscillation(t, y, guess_omega: float | None = None,
     else:
         i0, i1 = 0, t.size
         dt = float(np.median(np.diff(t)))
+        from scipy.signal import find_peaks
         pk, _ = find_peaks(np.abs(y), distance=max(1, int(0.3 * math.pi / w0 / dt)))
         tp, hp = t[pk], np.abs(y[pk])
     tw, yw = t[i0:i1] - t[i0], y[i0:i1]

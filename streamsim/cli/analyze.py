@@ -1,4 +1,4 @@
-"""`streamsim analyze RUN_DIR [--bulk-gamma G] [--clump-threshold X] [--coherence-drop X] [--json]`."""
+"""`streamsim analyze RUN_DIR [options]`: analyse a run folder again (options: `add_arguments`)."""
 from __future__ import annotations
 
 import json
@@ -31,8 +31,9 @@ def add_arguments(p) -> None:
                    help="a clump is a connected region with delta n/n > X (default: the deck's "
                         "analysis.clump_threshold, 0.5)")
     p.add_argument("--coherence-drop", type=float, default=None, metavar="X",
-                   help="k_c is the largest k where |F|^2 >= X times its peak, 0 < X < 1 "
-                        "(default: the deck's analysis.coherence_drop, 0.5)")
+                   help="k_c is where the log-binned envelope of |F|^2 (its mean over each log "
+                        "bin of k) falls below X times the envelope's peak for the last time, "
+                        "0 < X < 1 (default: the deck's analysis.coherence_drop, 0.5)")
     p.add_argument("--json", action="store_true", help="print the summary blocks as JSON")
     p.add_argument("--no-figures", action="store_true", help="skip the figures")
 

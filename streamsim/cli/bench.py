@@ -1,4 +1,4 @@
-"""`streamsim bench [--particles N ...] [--threads T ...] [--steps S] [--no-whole-run] [--json]`."""
+"""`streamsim bench [options]`: the speed benchmark (the options: `add_arguments`)."""
 from __future__ import annotations
 
 import json
@@ -29,7 +29,8 @@ def add_arguments(p) -> None:
                    help="skip the two whole `streamsim run` processes (50 and 800 steps)")
     p.add_argument("--whole-run-repeats", type=int, default=1, metavar="R",
                    help="pairs of whole-run processes, best kept (default 1)")
-    p.add_argument("--json", action="store_true", help="print the figures as one JSON object")
+    p.add_argument("--json", action="store_true",
+                   help="print the measurements as one JSON object instead of the table")
 
 
 def main(args) -> int:

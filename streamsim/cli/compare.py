@@ -1,4 +1,4 @@
-"""`streamsim compare DECK [--out DIR] [--json] [--set k=v ...]`: PIC and Vlasov on one deck."""
+"""`streamsim compare DECK [options]`: PIC and Vlasov on one deck (the options: `add_arguments`)."""
 from __future__ import annotations
 
 import json

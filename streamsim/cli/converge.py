@@ -1,5 +1,4 @@
-"""`streamsim converge DECK [--factor F] [--levels L] [--replicas R] [--out DIR] [--workers N]
-[--local-cluster | --scheduler ADDRESS] [--tolerance T] [--json]`: a resolution study."""
+"""`streamsim converge [DECK] [options]`: a resolution study (the options: `add_arguments`)."""
 from __future__ import annotations
 
 import json
@@ -23,11 +22,14 @@ def add_arguments(p) -> None:
     p.add_argument("--tolerance", type=float, default=0.10, metavar="T",
                    help="relative change between the two finest levels that counts as "
                         "converged (default 0.1)")
-    p.add_argument("--out", metavar="DIR", help="study folder (default: runs/out/converge-<deck>)")
+    p.add_argument("--out", metavar="DIR",
+                   help="study folder (default: runs/out/converge-<deck file name without "
+                        ".toml>, converge-default without DECK)")
     add_executor_arguments(p)
     p.add_argument("--set", dest="overrides", action="append", default=[], metavar="KEY=VALUE",
                    help="override a deck key for every level (TOML literal); repeatable")
     p.add_argument("--json", action="store_true", help="print converge.json on stdout")
+    p.add_argument("--figures", action="store_true", help="also draw each run's own figures")
     p.add_argument("--quiet", action="store_true", help="no progress bar and no table")
 
 
@@ -52,7 +54,8 @@ def main(args) -> int:
         raise ArgumentError("", f"{out} holds another study or scan; choose another --out")
     res = run_scan(scan=scan, out=out, workers=args.workers, scheduler=args.scheduler,
                    local_cluster=args.local_cluster, resume=True,
-                   progress=None if not args.quiet else False, quiet=args.quiet, figures=False)
+                   progress=None if not args.quiet else False, quiet=args.quiet, figures=False,
+                   run_figures=args.figures)
     for w in res.warnings:
         warn(w)
     study = cv.collect_study(scan, out, levels, args.factor, reps, args.tolerance)
@@ -87,4 +90,5 @@ def table(study: dict, res, out) -> str:
                      f"{extra}  -> {o['verdict']}"
                      + (f" ({o['reason']})" if o.get("reason") else ""))
     lines.append(f"  converge.csv, converge.json, converge.png in {out}")
-    return "\n".join(lines)
+    lines.append(res.timing_line())
+    return "\n".join(line for line in lines if line)

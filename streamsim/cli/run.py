@@ -1,5 +1,4 @@
-"""`streamsim run [DECK] [--out DIR] [--set k=v ...] [--quiet] [--resume [RUN_DIR]]
-[--replicas R [--workers N] [--scheduler ADDRESS | --local-cluster]]`."""
+"""`streamsim run [DECK] [options]`: run a deck and analyse it (the options: `add_arguments`)."""
 from __future__ import annotations
 
 from pathlib import Path
@@ -13,7 +12,8 @@ HELP = "run a deck (none: the built-in symmetric pair-beam demo) and analyse it"
 def add_arguments(p) -> None:
     add_deck_arguments(p)
     p.add_argument("--out", metavar="DIR", help="run folder (default: the deck's output.folder, "
-                   "runs/out/<title>)")
+                   "runs/out/<title-slug>: the title in lower case, '-' for each run of "
+                   "characters other than letters and digits)")
     p.add_argument("--quiet", action="store_true",
                    help="no progress bar and no summary (warnings and refusals still go to "
                         "stderr)")
@@ -21,7 +21,7 @@ def add_arguments(p) -> None:
                    help="continue an interrupted run from its checkpoint, or extend a run to a "
                         "later end with --set time.end=T, keeping its cadences (RUN_DIR, else "
                         "--out, else the deck's folder; with no DECK the run folder's deck.toml "
-                        "is used)")
+                        "is used); with --replicas, continue the replicas' folder")
     p.add_argument("--threads", type=int, default=None, metavar="T",
                    help="numba threads (default: the deck's output.threads, 0 = all cores)")
     p.add_argument("--no-analysis", action="store_true", help="write the raw outputs only")
@@ -31,8 +31,8 @@ def add_arguments(p) -> None:
     p.add_argument("--no-figures", action="store_true", help="analyse, but draw no figures")
     p.add_argument("--replicas", type=int, default=None, metavar="R",
                    help="run R seeds (random_seed, +1, ...) on the scan machinery and report the "
-                        "mean +- standard error of the fastest growth rate and of t_unity_ns "
-                        "(every replica in replicas.csv; folder: --out, else the deck's folder "
+                        "mean +- standard error of the fastest growth rate and of "
+                        "contrast.t_unity_ns (every replica in replicas.csv; folder: --out, else the deck's folder "
                         "+ '-replicas')")
     # where the replicas run (as for a scan; only with --replicas)
     add_executor_arguments(p)
@@ -67,7 +67,7 @@ def main(args) -> int:
                  analyze=not args.no_analysis, threads=args.threads, force=args.force,
                  figures=not args.no_figures, warn=warn)
     if not args.quiet:
-        _print_summary(result)
+        _print_summary(result, demo=deck_src is None)
     return 0
 
 
@@ -109,8 +109,8 @@ def replica_lines(res) -> str:
 def _emission_lines(em: dict) -> list[str]:
     """nu_c and clump size over the replicas, with one run's budget and its dominant term."""
     out = []
-    for key, what, scale, unit in (("nu_c_hz", "nu_c", 1e-9, "GHz"),
-                                   ("clump_size_median_cm", "clump size", 1.0, "cm")):
+    for key, what, scale, unit in (("coherence.frequency_cutoff_hz", "nu_c", 1e-9, "GHz"),
+                                   ("clumps.size_median_cm", "clump size", 1.0, "cm")):
         e = em.get(key) or {}
         if e.get("mean") is None:
             continue
@@ -137,7 +137,23 @@ def _tolerance(e: dict) -> str:
     return f" (within the tolerance {tol:g})"
 
 
-def _print_summary(result) -> None:
+#: a deck whose emission numbers are not grid-limited (warm beams resolve their clumps; measured:
+#: coherence.grid_limited and clumps.grid_limited false) at the demo's density
+TRUSTED_EMISSION_DECK = "runs/band-pair-beams.toml"
+
+
+def _demo_advice(s: dict) -> str | None:
+    """The last line of the built-in demo when its emission numbers are grid-limited: the
+    command that gives numbers the grid does not set."""
+    co, cl = s.get("coherence") or {}, s.get("clumps") or {}
+    if not (co.get("grid_limited") or cl.get("grid_limited")):
+        return None
+    return ("the demo's cold beams have no intrinsic clump scale, so its clump sizes and nu_c "
+            "are set by the grid; for numbers the grid does not set run warm beams at the same "
+            f"density: streamsim run {TRUSTED_EMISSION_DECK}")
+
+
+def _print_summary(result, demo: bool = False) -> None:
     from streamsim.analysis import terminal_lines
     s = result.summary
     n = s["normalization"]
@@ -158,4 +174,7 @@ def _print_summary(result) -> None:
         lines.append(f"  analysis failed: {s['analysis_error']}")
     if result.folder is not None:
         lines.append(f"  outputs in {result.folder}")
+    advice = _demo_advice(s) if demo else None
+    if advice:
+        lines.append(advice)
     print("\n".join(lines))

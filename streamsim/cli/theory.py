@@ -9,7 +9,7 @@ from streamsim.cli.common import ArgumentError, TheoryFailure, add_deck_argument
 
 HELP = "linear theory of a deck: growth rate gamma(k), fastest mode, unstable band, box modes"
 
-_MODELS = ("cold", "waterbag", "maxwellian", "juttner")
+_MODELS = ("cold", "waterbag", "maxwellian", "juttner", "table")
 
 #: growing box modes listed without --all (the ones nearest in m to the fastest box mode)
 MAX_ROWS = 24
@@ -31,9 +31,10 @@ def add_arguments(parser) -> None:
                              "cold unstable band)")
     parser.add_argument("--nk", type=int, default=400, metavar="N",
                         help="points of the growth curve in (0, kmax] (default 400, at least 8)")
-    parser.add_argument("--model", choices=_MODELS, default=None,
-                        help="dielectric model (default: the one the deck implies: cold if every "
-                             "species is cold, waterbag, or juttner for warm species)")
+    parser.add_argument("--model", choices=_MODELS, default=None, metavar="MODEL",
+                        help=f"dielectric model, one of {', '.join(_MODELS)} (default: the one "
+                             "the deck implies: cold if every species is cold, waterbag, juttner "
+                             "for warm species, table for a tabulated species)")
     parser.add_argument("--all", action="store_true", dest="all_modes",
                         help=f"list every box mode in the table (default: the growing ones, at "
                              f"most {MAX_ROWS})")
@@ -99,6 +100,9 @@ def _table(d: dict, title: str, all_modes: bool = False) -> str:
     if n:
         lines.append(f"  reference density {n:.4g} cm^-3: omega_p = {d['omega_p_rad_s']:.4g} rad/s, "
                      f"c/omega_p = {d['skin_depth_cm']:.4g} cm")
+    st = d.get("stability")
+    if st:
+        lines.append(f"  verdict: {st['text']}")
     f = d["fastest"]
     floor = 0.0
     if f is None:

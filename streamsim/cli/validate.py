@@ -1,4 +1,4 @@
-"""`streamsim validate [--quick | --full] [--report DIR] [--only PROBLEM ...] [--list]`."""
+"""`streamsim validate [options]`: the validation problems (the options: `add_arguments`)."""
 from __future__ import annotations
 
 import sys
@@ -22,7 +22,8 @@ def add_arguments(p) -> None:
                    help=f"folder for report.md, results.csv, results.json and the figures "
                         f"(default {DEFAULT_REPORT})")
     p.add_argument("--only", metavar="PROBLEM", action="append", default=[],
-                   help="run only this problem (repeatable; see --list)")
+                   help="run only this problem; one problem per flag, repeat the flag for more "
+                        "(--only landau --only langmuir; names: --list)")
     p.add_argument("--list", action="store_true", help="list the problems and exit")
 
 

@@ -31,7 +31,8 @@ REQUIRED = object()
 @dataclass(frozen=True)
 class Key:
     """One deck key. ``kind`` is one of "float", "int", "str", "bool", "int_list", "str_list",
-    "float_or_auto", "float_or_measured", "int_list_or_band", "float_map_or_auto"."""
+    "float_or_auto", "float_or_measured", "int_list_or_band", "float_map_or_auto", "table"
+    (a CSV path or an inline table of rows, streamsim.distribution_table)."""
     kind: str
     default: Any = REQUIRED                       # the value when the deck leaves the key out
     check: Callable[[Any], str | None] | None = None   # range rule: None, or what is wrong

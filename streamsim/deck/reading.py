@@ -78,6 +78,9 @@ def load_deck(source: str | Path | dict | Deck | None = None, overrides: list[st
         raw = read_toml(source)
     if overrides:
         raw = apply_overrides(raw, list(overrides))
+    if isinstance(source, (str, Path)):         # table paths are relative to the deck file
+        from ..distribution_table import anchor_tables
+        anchor_tables(raw, Path(source).resolve().parent)
     return resolve(validate(raw))
 
 

@@ -63,7 +63,8 @@ def _resolve_output(o: Output, t: Time) -> Output:
         diagnostics_interval=cadence(o.diagnostics_interval, min(0.1, end / 200.0)),
         fields_interval=cadence(o.fields_interval, end / 20.0),
         phase_space_interval=cadence(o.phase_space_interval, end / 8.0),
-        checkpoint_interval=0.0 if checkpoint == 0 else cadence(checkpoint, end / 10.0))
+        # unset stays unset: the run then checkpoints on wall-clock time (checkpointer.py)
+        checkpoint_interval=checkpoint if checkpoint in (None, 0) else cadence(checkpoint, 0.0))
 
 
 @functools.lru_cache(maxsize=64)

@@ -11,7 +11,7 @@ import dataclasses
 import math
 import re
 from dataclasses import dataclass, field
-from typing import ClassVar
+from typing import Any, ClassVar
 
 from .._version import __version__
 from .errors import DeckError, did_you_mean, show_value
@@ -89,11 +89,12 @@ class Species:
     density: float = deck_key("float", REQUIRED, check=finite_pos,
                               help="lab-frame density / n_ref")
     drift_u: float = deck_key("float", None, check=_finite,
-                              help="signed gamma*beta of the drift")
+                              write=lambda s: s.distribution != "table",
+                              help="signed gamma*beta of the drift (a table: derived, its mean u)")
     theta: float | None = deck_key(
-        "float", 0.0, check=finite_nonneg,
+        "float", 0.0, check=finite_nonneg, write=lambda s: s.distribution != "table",
         help="kT/(m c^2) in the drift frame (derived when temperature_kev was given)")
-    distribution: str = deck_key("str", None, choices=("cold", "juttner", "waterbag"),
+    distribution: str = deck_key("str", None, choices=("cold", "juttner", "waterbag", "table"),
                                  help="momentum distribution (default: from theta/spread_u)")
     particles_per_cell: int = deck_key("int", 64, check=between(1, 1 << 20),
                                        help="particles per cell")
@@ -104,6 +105,11 @@ class Species:
     temperature_kev: float | None = deck_key("float", None, check=finite_nonneg, write=False,
                                              field_default=None, compare=False,
                                              help="kT in keV (drift frame)")
+    # distribution = "table": a CSV file "u,f" (relative to the deck file) or, in a resolved
+    # deck, the inline rows {source, sha256, u, f} (streamsim.distribution_table)
+    table: Any = deck_key("table", None, write="if_set", field_default=None,
+                          to_toml=lambda t: t.to_dict(),
+                          help='distribution = "table": CSV file with header u,f')
 
     #: keys read but kept in another form
     INPUT_KEYS: ClassVar[dict[str, Key]] = {
@@ -163,8 +169,9 @@ class Output:
     recorded_modes: int = deck_key("int", None, check=ge(1),
                                    help="|E_k| recorded for m = 1..recorded_modes")
     checkpoint_interval: float | None = deck_key(
-        "float", None, check=finite_nonneg,
-        help="1/omega_p (default end/10); 0 = only at the end and on a signal")
+        "float", None, check=finite_nonneg, write="if_set",
+        help="1/omega_p; unset: every 5 min of wall-clock time (plus the end and a signal); "
+             "0 = only at the end and on a signal")
     threads: int = deck_key("int", 0, check=ge(0), help="numba threads; 0 = all cores")
 
 
@@ -304,7 +311,7 @@ class Deck:
                 and self.time.dt is not None and self.perturbation.phases is not None
                 and all(s.theta is not None and s.temperature_kev is not None for s in self.species)
                 and None not in (o.diagnostics_interval, o.fields_interval,
-                                 o.phase_space_interval, o.checkpoint_interval)
+                                 o.phase_space_interval)
                 and (self.drive is None or self.drive.current is not None))
 
     def to_dict(self) -> dict:

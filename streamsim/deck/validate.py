@@ -40,6 +40,10 @@ def coerce(path: str, spec: Key, value: Any) -> Any:
             raise DeckError(path, f"must be an integer (write {int(value)}, not {value!r})", value)
         if isinstance(value, bool) or not isinstance(value, int):
             raise DeckError(path, "must be an integer", value)
+    elif kind == "table":
+        if not isinstance(value, (str, dict)):
+            raise DeckError(path, "must be a CSV file path (a string) or an inline table "
+                            "{u = [...], f = [...]}", value)
     elif kind == "str":
         if not isinstance(value, str):
             raise DeckError(path, "must be a string (in quotes)", value)
@@ -140,6 +144,8 @@ def _species(i: int, raw: Any) -> Species:
     if not isinstance(raw, dict):
         raise DeckError(label, "must be a table ([[species]])", raw)
     d = table(label, raw, SPECIES, "species")
+    if d["table"] is not None or d["distribution"] == "table":
+        return _table_species(label, raw, d)
     check_exclusive("species", label, raw, d)
     kev = d["temperature_kev"]
     if d["drift_beta"] is not None:
@@ -166,6 +172,29 @@ def _species(i: int, raw: Any) -> Species:
                         d["spread_u"])
     return build(Species, d, drift_u=drift_u, theta=None if kev is not None else d["theta"],
                  distribution=dist, spread_u=d["spread_u"] if dist == "waterbag" else 0.0)
+
+
+def _table_species(label: str, raw: dict, d: dict) -> Species:
+    """A species whose distribution is a table f(u) (streamsim.distribution_table): the table is
+    the whole lab-frame distribution, so drift and temperature keys are refused; drift_u is
+    derived (the table's mean u), theta = 0."""
+    from ..distribution_table import TABLE_EXCLUSIVE, TableError, table_from_deck_value
+    if d["distribution"] not in (None, "table"):
+        raise DeckError(f"{label}.table", f'a table needs distribution = "table", not '
+                        f'"{d["distribution"]}"', d["table"])
+    if d["table"] is None:
+        raise DeckError(f"{label}.distribution", 'distribution = "table" needs table = "FILE.csv" '
+                        "(a CSV with the header u,f)", "table")
+    given = [k for k in TABLE_EXCLUSIVE if k in raw]
+    if given:
+        raise DeckError(f"{label}.{given[0]}", "a table species takes its drift and spread from "
+                        "the table; remove " + ", ".join(given), raw[given[0]])
+    try:
+        tab = table_from_deck_value(d["table"])
+    except TableError as ex:
+        raise DeckError(f"{label}.table", str(ex)) from None
+    return build(Species, d, drift_u=tab.moments()[0], theta=0.0, distribution="table",
+                 spread_u=0.0, temperature_kev=0.0, table=tab)
 
 
 def validate(raw: dict) -> Deck:

@@ -40,25 +40,28 @@ DEFAULT_TOLERANCE = 0.10
 
 @dataclass(frozen=True)
 class Output:
-    name: str
     unit: str
     value: tuple[str, ...]             # summary.json path of the value
     err: tuple[str, ...] | None        # path of its error bar, if any
     limited: tuple[str, ...] | None    # path of a grid-limit flag
     bound: tuple[str, ...] | None = None   # path of the value when only a bound is reported
 
+    @property
+    def name(self) -> str:
+        """Named after the summary.json key of its value, as a scan-table column is."""
+        return ".".join(self.value)
+
 
 OUTPUTS = (
-    Output("growth_rate", "omega_p", ("growth", "measured"), ("growth", "measured_err"), None),
-    Output("t_unity_ns", "ns", ("contrast", "t_unity_ns"), None, None),
-    Output("contrast_max", "", ("contrast", "max"), None, ("contrast", "max_grid_limited")),
-    Output("clump_size_median_cm", "cm", ("clumps", "size_median_cm"),
-           ("clumps", "size_median_err_cm"), ("clumps", "grid_limited")),
-    Output("k_c", "omega_p/c", ("coherence", "k_cutoff"), ("coherence", "k_cutoff_err"),
+    Output("omega_p", ("growth", "measured"), ("growth", "measured_err"), None),
+    Output("ns", ("contrast", "t_unity_ns"), None, None),
+    Output("", ("contrast", "max"), None, ("contrast", "max_grid_limited")),
+    Output("cm", ("clumps", "size_median_cm"), ("clumps", "size_median_err_cm"),
+           ("clumps", "grid_limited")),
+    Output("omega_p/c", ("coherence", "k_cutoff"), ("coherence", "k_cutoff_err"),
            ("coherence", "grid_limited")),
-    Output("nu_c_hz", "Hz", ("coherence", "frequency_cutoff_hz"),
-           ("coherence", "frequency_cutoff_hz_err"), ("coherence", "grid_limited"),
-           ("coherence", "frequency_cutoff_hz_lower_bound")),
+    Output("Hz", ("coherence", "frequency_cutoff_hz"), ("coherence", "frequency_cutoff_err_hz"),
+           ("coherence", "grid_limited"), ("coherence", "frequency_cutoff_lower_bound_hz")),
 )
 
 

@@ -27,15 +27,15 @@ MAX_LINES = 12
 
 # The scan-table columns the figures read, in one place (a renamed column is fixed here alone).
 COLUMNS = {
-    "growth_time": "growth_time_ns",
-    "growth_time_err": "growth_time_err_ns",
-    "theory_growth_time": "theory_growth_time_ns",
-    "theory_fastest_growth_time": "theory_fastest_growth_time_ns",
-    "growth_ratio": "growth_ratio",
-    "nu_c": "nu_c_hz",
-    "nu_c_err": "nu_c_hz_err",
-    "nu_c_lower_bound": "nu_c_lower_bound_hz",
-    "bulk_gamma": "bulk_gamma",
+    "growth_time": "growth.growth_time_ns",
+    "growth_time_err": "growth.growth_time_err_ns",
+    "theory_growth_time": "growth.theory_growth_time_ns",
+    "theory_fastest_growth_time": "theory.fastest.growth_time_ns",
+    "growth_ratio": "growth.ratio",
+    "nu_c": "coherence.frequency_cutoff_hz",
+    "nu_c_err": "coherence.frequency_cutoff_err_hz",
+    "nu_c_lower_bound": "coherence.frequency_cutoff_lower_bound_hz",
+    "bulk_gamma": "coherence.bulk_gamma",
 }
 
 # Units of the deck keys a scan axis may name, by the end of the key (the unit is part of the

@@ -26,10 +26,12 @@ from .tables import run_folder
 __all__ = ["ReplicaStats", "ReplicaResult", "run_replicas", "mean_and_standard_error",
            "REPLICA_COLUMNS"]
 
-#: replicas.csv columns, in order
-REPLICA_COLUMNS = ("replica", "random_seed", "status", "growth_mode", "growth_measured",
-                   "growth_measured_err", "growth_method", "t_unity_ns", "folder", "nu_c_hz",
-                   "nu_c_hz_err", "clump_size_median_cm", "clump_size_median_err_cm")
+#: replicas.csv columns, in order: the run's own columns, then summary.json keys (block and key
+#: joined by dots, as the scan table names them)
+REPLICA_COLUMNS = ("replica", "random_seed", "status", "growth.mode", "growth.measured",
+                   "growth.measured_err", "growth.fit", "contrast.t_unity_ns", "folder",
+                   "coherence.frequency_cutoff_hz", "coherence.frequency_cutoff_err_hz",
+                   "clumps.size_median_cm", "clumps.size_median_err_cm")
 
 
 @dataclass
@@ -121,27 +123,30 @@ def run_replicas(deck_src: str | None, overrides: list[str], replicas: int, out:
         theory = theory if theory is not None else g.get("theory")
         co, cl = s.get("coherence") or {}, s.get("clumps") or {}
         rows.append({"replica": p.replica, "random_seed": p.seed, "status": r.get("status"),
-                     "growth_mode": g.get("mode"), "growth_measured": r.get("growth_measured"),
-                     "growth_measured_err": r.get("growth_measured_err"),
-                     "growth_method": g.get("method"), "t_unity_ns": r.get("t_unity_ns"),
+                     "growth.mode": g.get("mode"), "growth.measured": r.get("growth.measured"),
+                     "growth.measured_err": r.get("growth.measured_err"),
+                     "growth.fit": g.get("fit"),
+                     "contrast.t_unity_ns": r.get("contrast.t_unity_ns"),
                      "folder": r.get("folder"),
-                     "nu_c_hz": co.get("frequency_cutoff_hz"),
-                     "nu_c_hz_err": co.get("frequency_cutoff_hz_err"),
-                     "_nu_terms": (co.get("error_budget") or {}).get("terms"),
-                     "clump_size_median_cm": cl.get("size_median_cm"),
-                     "clump_size_median_err_cm": cl.get("size_median_err_cm"),
-                     "_size_terms": (cl.get("error_budget_cm") or {}).get("terms")})
+                     "coherence.frequency_cutoff_hz": co.get("frequency_cutoff_hz"),
+                     "coherence.frequency_cutoff_err_hz": co.get("frequency_cutoff_err_hz"),
+                     "_nu_terms": (co.get("frequency_cutoff_budget_hz") or {}).get("terms"),
+                     "clumps.size_median_cm": cl.get("size_median_cm"),
+                     "clumps.size_median_err_cm": cl.get("size_median_err_cm"),
+                     "_size_terms": (cl.get("size_median_budget_cm") or {}).get("terms")})
     ok = [r for r in rows if r["status"] == "completed"]
     result = ReplicaResult(out=out, rows=rows,
-                           growth=mean_and_standard_error(r["growth_measured"] for r in ok),
-                           t_unity_ns=mean_and_standard_error(r["t_unity_ns"] for r in ok),
+                           growth=mean_and_standard_error(r["growth.measured"] for r in ok),
+                           t_unity_ns=mean_and_standard_error(r["contrast.t_unity_ns"]
+                                                              for r in ok),
                            theory_growth=theory, warnings=list(res.warnings))
     result.emission = {
-        "nu_c_hz": emission_budget([r["nu_c_hz"] for r in ok], [r["nu_c_hz_err"] for r in ok],
-                                   [r["_nu_terms"] for r in ok]),
-        "clump_size_median_cm": emission_budget([r["clump_size_median_cm"] for r in ok],
-                                                [r["clump_size_median_err_cm"] for r in ok],
-                                                [r["_size_terms"] for r in ok])}
+        "coherence.frequency_cutoff_hz": emission_budget(
+            [r["coherence.frequency_cutoff_hz"] for r in ok],
+            [r["coherence.frequency_cutoff_err_hz"] for r in ok], [r["_nu_terms"] for r in ok]),
+        "clumps.size_median_cm": emission_budget(
+            [r["clumps.size_median_cm"] for r in ok], [r["clumps.size_median_err_cm"] for r in ok],
+            [r["_size_terms"] for r in ok])}
     from .. import io
     with io.atomic_path(out / "replicas.csv") as tmp, open(tmp, "w", newline="",
                                                           encoding="utf-8") as f:
@@ -151,8 +156,9 @@ def run_replicas(deck_src: str | None, overrides: list[str], replicas: int, out:
             w.writerow(["" if r[c] is None else r[c] for c in REPLICA_COLUMNS])
     io.write_json(out / "replicas.json", {
         "replicas": int(replicas), "completed": len(ok),
-        "growth_measured": result.growth.as_dict(), "t_unity_ns": result.t_unity_ns.as_dict(),
-        "growth_theory": theory, **result.emission,
+        "growth.measured": result.growth.as_dict(),
+        "contrast.t_unity_ns": result.t_unity_ns.as_dict(),
+        "growth.theory": theory, **result.emission,
         "error": "standard error of the mean, s / sqrt(n), s with ddof = 1; emission numbers "
                  "also give one run's budget (within-run terms and the replica spread)"})
     return result

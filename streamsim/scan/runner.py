@@ -92,6 +92,24 @@ class ScanResult:
     figures: list = field(default_factory=list)
     warnings: list = field(default_factory=list)
     executor: str = ""
+    run_wall_s: float = 0.0         # the runs completed in this invocation: their whole time
+    run_loop_s: float = 0.0         # and the part in their time loops
+    run_figures: bool = False       # the runs drew their own figures
+
+    @property
+    def outside_loop_s(self) -> float:
+        """Time the completed runs of this invocation spent outside their time loops
+        (start-up, theory, io, analysis, figures, checkpoints at the end)."""
+        return max(0.0, self.run_wall_s - self.run_loop_s)
+
+    def timing_line(self) -> str:
+        """One line: the runs' time and the part of it outside their time loops."""
+        if self.run_wall_s <= 0:
+            return ""
+        return (f"  time: runs {self.run_wall_s:.1f} s in all, of which "
+                f"{self.outside_loop_s:.1f} s ({self.outside_loop_s / self.run_wall_s:.0%}) "
+                f"outside their time loops (start-up, theory, io, analysis"
+                f"{', figures' if self.run_figures else ''})")
 
 
 def default_out(scan: Scan) -> Path:
@@ -119,19 +137,24 @@ def run_scan(scan: Scan | str | Path, out: str | Path | None = None, *, workers:
              threads: int | None = None, scheduler: str | None = None,
              local_cluster: bool = False, resume: bool = False, retry_failed: bool = False,
              progress: bool | None = None, quiet: bool = True, figures: bool = True,
-             overrides: list[str] | None = None) -> ScanResult:
+             overrides: list[str] | None = None, run_figures: bool | None = None) -> ScanResult:
     """Run every missing run of a scan and write its tables and figures.
 
     scan: a :class:`Scan` or a scan-file path. out: the scan folder (default runs/out/<stem>).
     workers: local processes or LocalCluster workers (default: one per core, at most one per
     run). threads: numba threads per run (default: cores // workers). scheduler: the address of
     a running Dask scheduler; local_cluster: start a dask.distributed LocalCluster on loopback.
-    resume: continue a scan folder; retry_failed: also rerun the failed runs.
+    resume: continue a scan folder; retry_failed: also rerun the failed runs. figures: the scan's
+    own figures; run_figures: also each run's figures (None: the scan file's ``run_figures``,
+    false unless set there).
     Raises ScanError (scan file), ScanSetupError (arguments), SchedulerError (Dask);
     KeyboardInterrupt is turned into ``interrupted=True`` after the running runs checkpointed.
     """
     if not isinstance(scan, Scan):
         scan = load_scan(scan, overrides)
+    # each run's own figures: asked for by the caller, else by the scan file (the manifest keeps
+    # the scan file's value, so that a --resume with or without the flag is the same scan)
+    draw = scan.run_figures if run_figures is None else bool(run_figures)
     out = Path(out) if out is not None else default_out(scan)
     cores = cores_available()
     if workers is not None and workers < 1:
@@ -178,7 +201,8 @@ def run_scan(scan: Scan | str | Path, out: str | Path | None = None, *, workers:
             skipped += 1
         else:
             todo.append(p)
-    result = ScanResult(out=out, rows=[], skipped=skipped, warnings=list(scan.warnings))
+    result = ScanResult(out=out, rows=[], skipped=skipped, warnings=list(scan.warnings),
+                        run_figures=draw)
     n_local = workers or max(1, min(cores, len(todo)))
 
     tracker = _Tracker(scan, out, len(todo), progress, quiet)
@@ -188,16 +212,17 @@ def run_scan(scan: Scan | str | Path, out: str | Path | None = None, *, workers:
                 if scheduler or local_cluster:
                     result.executor = _run_dask(todo, out, scan, tracker, interrupts,
                                                 scheduler=scheduler, n_workers=n_local,
-                                                threads=threads)
+                                                threads=threads, run_figures=draw)
                 else:
                     per_run = threads or max(1, cores // n_local)
                     result.executor = _run_pool(todo, out, scan, tracker, interrupts, n_local,
-                                                per_run)
+                                                per_run, draw)
     except KeyboardInterrupt:
         result.interrupted = True
     finally:
         tracker.close()
     result.ran = tracker.done
+    result.run_wall_s, result.run_loop_s = tracker.wall_s, tracker.loop_s
     result.lost = tracker.lost
     result.rows = collect_rows(scan, out)
     result.tables = write_tables(scan, out, result.rows)
@@ -223,6 +248,7 @@ class _Tracker:
         self.done = 0
         self.failed = 0
         self.lost = 0
+        self.wall_s = self.loop_s = 0.0     # completed runs: whole run_point, time loop
         self.last_write = time.monotonic()
         show = (not quiet and sys.stderr.isatty()) if progress is None else progress
         self.bar = None
@@ -235,6 +261,9 @@ class _Tracker:
         if rec.get("status") in ("completed", "failed"):
             self.done += 1
             self.failed += rec["status"] == "failed"
+            if rec["status"] == "completed" and rec.get("loop_s") is not None:
+                self.wall_s += float(rec.get("wall_s") or 0.0)
+                self.loop_s += float(rec["loop_s"])
             if self.bar is not None:
                 self.bar.update(1)
                 if self.failed:
@@ -272,13 +301,14 @@ def _pool_worker_setup(threads: int, parent: int) -> None:
     threading.Thread(target=watch, daemon=True, name="streamsim-parent-watch").start()
 
 
-def _run_pool(todo, out, scan, tracker, interrupts, n_workers, threads) -> str:
+def _run_pool(todo, out, scan, tracker, interrupts, n_workers, threads,
+              run_figures: bool = False) -> str:
     import multiprocessing as mp
     from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
     from concurrent.futures.process import BrokenProcessPool
 
     ctx = mp.get_context("spawn")
-    tasks = {p.run: _task(p, out, threads, "pool", scan.run_figures) for p in todo}
+    tasks = {p.run: _task(p, out, threads, "pool", run_figures) for p in todo}
     left = dict(tasks)
     for attempt in range(POOL_REBUILDS + 1):
         if not left:
@@ -339,7 +369,8 @@ def _worker_version():
     return streamsim.__version__
 
 
-def _run_dask(todo, out, scan, tracker, interrupts, *, scheduler, n_workers, threads) -> str:
+def _run_dask(todo, out, scan, tracker, interrupts, *, scheduler, n_workers, threads,
+              run_figures: bool = False) -> str:
     try:
         import distributed
         from distributed import Client, LocalCluster
@@ -373,7 +404,7 @@ def _run_dask(todo, out, scan, tracker, interrupts, *, scheduler, n_workers, thr
                                          f"this client {__version__}")
         futs = {}
         for p in todo:
-            t = _task(p, out, threads, "dask", scan.run_figures)
+            t = _task(p, out, threads, "dask", run_figures)
             f = client.submit(run_point, t, key=f"streamsim-run-{p.hash[:32]}", pure=False)
             futs[f] = t
         try:

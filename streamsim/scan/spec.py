@@ -60,24 +60,23 @@ FORBIDDEN_KEYS = {"output.folder": "the scan gives every run its own folder",
 RUN_COLUMNS = ("run", "point", "replica", "status", "error", "hash", "folder", "random_seed",
                "shared_run")
 
-#: run-level columns (not from an analysis block): name -> (unit, meaning, summary.json path)
-_RUN_METRICS = {
-    "density_cm3": ("cm^-3", "reference density units.density_cm3",
-                    ("normalization", "density_cm3")),
-}
-_TAIL_METRICS = {
-    "energy_error_max": ("", "maximum relative energy error", ("energy", "relative_error_max")),
-    "wall_s": ("s", "wall time of the run", ("wall_s",)),
-}
+#: run-level columns (not from an analysis block): (unit, meaning, summary.json path); each
+#: column is named after its path like a block's (analysis.base.column_name)
+_RUN_METRICS = (("cm^-3", "reference density units.density_cm3",
+                 ("normalization", "density_cm3")),)
+_TAIL_METRICS = (("", "maximum relative energy error", ("energy", "relative_error_max")),
+                 ("s", "wall time of the run", ("wall_s",)))
 
 
 def _metric_paths() -> dict[str, tuple[str, str, tuple]]:
     """Every scan column with its unit, meaning and summary.json key path: the run-level ones
-    and every analysis block's ``SCAN_COLUMNS`` (a new block brings its own columns)."""
+    and every analysis block's ``SCAN_COLUMNS`` (a new block brings its own columns). A column
+    is named after the summary.json key it holds (its path joined by dots), never by hand."""
     from ..analysis import scan_columns
-    cols = dict(_RUN_METRICS)
+    from ..analysis.base import column_name
+    cols = {column_name(p): (u, m, p) for u, m, p in _RUN_METRICS}
     cols.update({c.name: (c.unit, c.meaning, c.path) for c in scan_columns()})
-    cols.update(_TAIL_METRICS)
+    cols.update({column_name(p): (u, m, p) for u, m, p in _TAIL_METRICS})
     return cols
 
 
@@ -446,6 +445,8 @@ def _validate(raw: dict, path, here: Path, text: str, cli_set: list[str], resolv
             base_raw = _deck.read_toml(base_path)
         except DeckError as ex:
             raise ScanError("base", f"{ex}", base) from None
+        from ..distribution_table import anchor_tables     # tables: relative to the base deck
+        anchor_tables(base_raw, base_path.resolve().parent)
     for label, items in (("set", base_set), ("--set", cli_set)):
         for j, s in enumerate(items):
             try:
@@ -522,6 +523,9 @@ def _expand(scan: Scan, base_raw: dict) -> list[Point]:
             raw: dict = {}
             try:
                 raw = apply_overrides(base_raw, overrides)
+                if scan.path is not None:     # a table an axis names: relative to the scan file
+                    from ..distribution_table import anchor_tables
+                    anchor_tables(raw, Path(scan.path).resolve().parent)
                 seed0 = raw.get("random_seed", default_seed)
                 if r and isinstance(seed0, int) and not isinstance(seed0, bool):
                     raw = apply_overrides(raw, [f"random_seed={seed0 + r}"])

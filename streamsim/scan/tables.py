@@ -20,6 +20,10 @@ from .worker import ERROR_FILE, _read_json, read_state
 __all__ = ["METRICS", "RUN_COLUMNS", "collect_rows", "write_tables", "run_folder"]
 
 
+#: the column of the reference density (summary.json normalization.density_cm3)
+DENSITY = "normalization.density_cm3"
+
+
 def run_folder(out: Path, point) -> Path:
     return Path(out) / "runs" / point.folder_name
 
@@ -45,7 +49,7 @@ def metrics_from_summary(s: dict) -> dict:
         v = _get(s, *_PATHS[k][2])
         out[k] = v if isinstance(v, str) else None
     mode = _get(s, "growth", "mode")
-    out["growth_mode"] = int(mode) if isinstance(mode, int) and not isinstance(mode, bool) \
+    out["growth.mode"] = int(mode) if isinstance(mode, int) and not isinstance(mode, bool) \
         else None
     return out
 
@@ -67,7 +71,7 @@ def at_density(metrics: dict, n_run: float | None, n_row: float | None) -> dict:
         p = _DENSITY_POWER.get(METRICS.get(k, ("",))[0])
         if p is not None and v is not None:
             out[k] = v * (n_row / n_run) ** p
-    out["density_cm3"] = n_row
+    out[DENSITY] = n_row
     return out
 
 
@@ -97,11 +101,11 @@ def collect_rows(scan: Scan, out: Path) -> list[dict]:
             if s is not None:
                 n_row = p.deck.units.density_cm3 if p.deck is not None else None
                 m = metrics_from_summary(s)
-                row.update(at_density(m, m.get("density_cm3"), n_row))
+                row.update(at_density(m, m.get(DENSITY), n_row))
                 if state == "completed" and s.get("analysis_error"):
                     row["error"] = f"analysis: {s['analysis_error']}"
-        if row["density_cm3"] is None and p.deck is not None:
-            row["density_cm3"] = p.deck.units.density_cm3
+        if row[DENSITY] is None and p.deck is not None:
+            row[DENSITY] = p.deck.units.density_cm3
         rows.append(row)
     return rows
 

@@ -115,7 +115,9 @@ def _one_line(ex: BaseException) -> str:
 
 def run_point(task: dict) -> dict:
     """Run one scan task: {"run", "hash", "folder", "deck" (dict), "threads", "where",
-    "figures"}. Returns {"run", "hash", "status", "error", "kind", "wall_s", "host", "threads"}."""
+    "figures"}. Returns {"run", "hash", "status", "error", "kind", "wall_s", "host", "threads"}
+    and, for a completed run, "loop_s" (its time loop; the rest of wall_s is start-up, theory,
+    io, analysis and figures)."""
     from .. import io
     from ..deck import DeckError, load_deck
     from ..pipeline import Interrupted, NumericalError, run
@@ -168,7 +170,17 @@ def run_point(task: dict) -> dict:
             write_failure(folder, task["hash"], task["run"], kind, error, tb, extra=stamp)
             return dict(rec, status="failed", error=error, kind=kind, wall_s=wall)
         io.write_json(folder / POINT_FILE, dict(stamp, status="completed"))
-        return dict(rec, status="completed", error=None, kind=None, wall_s=wall)
+        return dict(rec, status="completed", error=None, kind=None, wall_s=wall,
+                    loop_s=_loop_seconds(folder))
+
+
+def _loop_seconds(folder: Path) -> float | None:
+    """The time loop's wall time of a finished run (its summary.json ``wall_s``)."""
+    summ = _read_json(folder / "summary.json")
+    try:
+        return float(summ["wall_s"])
+    except (TypeError, KeyError, ValueError):
+        return None
 
 
 def write_failure(folder: Path, hash_: str, run: int, kind: str, error: str,

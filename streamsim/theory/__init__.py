@@ -12,6 +12,9 @@ Modules, by job:
                       quadrature), eps, and the model a set of species implies.
 ``roots``             polynomial roots, Newton, continuation over k, bands, fastest mode, growth
                       curve.
+``tabulated``         any distribution: the effective G(v), the closed-form eps of a tabulated
+                      species (f linear in v between rows), the Penrose stability verdict of
+                      every deck, damped table roots by a rational (AAA) continuation.
 ``dispersion``        the deck-level :class:`Dispersion` (and :class:`FastestMode`,
                       :class:`BoxMode`), :func:`theory_for_deck`, and theory.json
                       (:meth:`Dispersion.to_dict` / :meth:`Dispersion.from_dict`).
@@ -58,6 +61,7 @@ from .susceptibilities import (MODELS, THETA_COLD, eps_cold, eps_juttner, eps_ma
 from .roots import (GROWTH_TOL, _auto_kmax, auto_kmax, cold_roots, fastest_mode, growth_curve,
                     juttner_growing_root, maxwellian_roots, unstable_bands, waterbag_roots)
 from .dispersion import BoxMode, Dispersion, FastestMode, theory_for_deck
+from .tabulated import StabilityVerdict, penrose_verdict, table_damped_root
 from .eigenmodes import ModeBasis, charge_response, mode_basis, species_susceptibilities
 
 __all__ = [
@@ -70,4 +74,5 @@ __all__ = [
     "growth_curve", "fastest_mode", "unstable_bands", "auto_kmax", "theory_for_deck",
     "Dispersion", "FastestMode", "BoxMode",
     "species_susceptibilities", "charge_response", "mode_basis", "ModeBasis",
+    "penrose_verdict", "StabilityVerdict", "table_damped_root",
 ]

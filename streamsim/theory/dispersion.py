@@ -14,6 +14,7 @@ import numpy as np
 from .. import units
 from ..numbers import finite_or_none
 from .roots import GROWTH_TOL, _auto_kmax, _bands_from, _curve_and_fastest, _Solver, fastest_mode
+from .tabulated import StabilityVerdict, is_table, penrose_verdict
 from .susceptibilities import (MODELS, THETA_COLD, _is_warm_juttner, _species_list,
                                model_for_species)
 
@@ -59,6 +60,7 @@ class Dispersion:
     time_end: float | None = None
     species: tuple[str, ...] = ()
     notes: list[str] = field(default_factory=list)
+    stability: StabilityVerdict | None = None     # Penrose verdict on the effective G(v)
 
     def to_dict(self, density_cm3: float | None = None) -> dict:
         """The JSON object of ``streamsim theory --json`` (plain floats and lists, no NaN)."""
@@ -69,12 +71,11 @@ class Dispersion:
             fast = {"k": f.k, "growth": f.growth, "omega_r": f.omega_r,
                     "wavelength": 2 * math.pi / f.k,
                     "growth_time": 1.0 / f.growth,
-                    "growth_time_ns": None, "growth_time_efold_ns": None,
-                    "energy_growth_time_ns": None, "wavelength_cm": None, "k_per_cm": None,
+                    "growth_time_ns": None, "energy_growth_time_ns": None, "wavelength_cm": None, "k_per_cm": None,
                     "efoldings_in_run": finite_or_none(f.growth * self.time_end) if self.time_end else None}
             if n:
                 t = units.growth_time_ns(f.growth, n)
-                fast.update(growth_time_ns=t, growth_time_efold_ns=t, energy_growth_time_ns=t / 2,
+                fast.update(growth_time_ns=t, energy_growth_time_ns=t / 2,
                             wavelength_cm=units.length_cm(2 * math.pi / f.k, n),
                             k_per_cm=units.wavenumber_per_cm(f.k, n))
         out = {
@@ -97,6 +98,8 @@ class Dispersion:
                       "omega_r": [finite_or_none(x) for x in self.omega_r]},
             "notes": list(self.notes),
         }
+        if self.stability is not None:
+            out["stability"] = self.stability.to_dict()
         if n:
             out["omega_p_rad_s"] = units.omega_p_rad_s(n)
             out["skin_depth_cm"] = units.skin_depth_cm(n)
@@ -171,7 +174,9 @@ class Dispersion:
                    box_length=None if d.get("box_length") is None else float(d["box_length"]),
                    density_cm3=None if d.get("density_cm3") is None else float(d["density_cm3"]),
                    time_end=time_end, species=tuple(d.get("species") or ()),
-                   notes=list(d.get("notes") or []))
+                   notes=list(d.get("notes") or []),
+                   stability=(StabilityVerdict.from_dict(d["stability"]) if d.get("stability")
+                              else None))
 
 
 def _time_from_efoldings(efoldings, growth: float) -> float | None:
@@ -219,11 +224,31 @@ def theory_for_deck(deck, model: str | None = None, kmax: float | None = None,
         for s in species:
             if s.distribution == "juttner" and 0 < s.theta <= THETA_COLD:
                 notes.append(f"species {s.name}: theta <= {THETA_COLD:g}, treated as cold")
+    if model == "table":
+        notes.append("table model: f linear in v between the rows, zero outside; growing roots "
+                     "only (exact for the interpolant), growth 0.0 where none; damped roots of a "
+                     "table are not in the curve (a piecewise-linear f has no unique analytic "
+                     "continuation): streamsim.theory.table_damped_root gives them from a "
+                     "rational (AAA) fit of G, treating the table as samples of a smooth f")
+    verdict = penrose_verdict(species)
+    notes.extend(f"stability: {n}" for n in verdict.notes)
     solver = _Solver(species, model)
     kmax_used = float(kmax) if kmax else _auto_kmax(species)
     helper = _Solver(species, "maxwellian") if model == "juttner" else None
-    k, w, g, fast = _curve_and_fastest(solver, kmax_used, int(nk), extend=kmax is None,
-                                       helper=helper)
+    if verdict.stable and model in ("juttner", "table"):
+        # Penrose: no growing root exists, so none is searched for
+        notes.append("stable by the Penrose criterion: no growing root searched for")
+        k = np.linspace(kmax_used / nk, kmax_used, int(nk))
+        w = np.full(k.shape, np.nan, complex)
+        g = np.zeros(k.shape)
+        fast = None
+    else:
+        k, w, g, fast = _curve_and_fastest(solver, kmax_used, int(nk), extend=kmax is None,
+                                           helper=helper)
+        if fast is None and not verdict.stable and model in ("juttner", "table"):
+            notes.append("the Penrose criterion says unstable but no growing root was found in "
+                         f"k <= {k[-1]:.4g}: the growth may be below {GROWTH_TOL:g} omega_p or "
+                         "at larger k (set kmax)")
     if model == "juttner" and fast is None:
         other = fastest_mode(species, "maxwellian")
         if other is not None and other[1] > 10 * GROWTH_TOL:
@@ -245,6 +270,22 @@ def theory_for_deck(deck, model: str | None = None, kmax: float | None = None,
     nmodes = int(getattr(deck.output, "modes", 0) or min(deck.box.cells // 2, 64))
     m = np.arange(1, nmodes + 1)
     km = 2 * math.pi * m / length
+    if verdict.stable and model in ("juttner", "table"):
+        alt = [None] * nmodes
+        if model == "juttner":
+            mx = _Solver(species, "maxwellian")
+            alt = list(mx.growth(mx.best(km)))
+            notes.append("box_modes[].maxwellian_growth: the same modes in the maxwellian model "
+                         "(negative = Landau damping rate), since the juttner model gives "
+                         "growing roots only")
+        modes = [BoxMode(int(mi), float(ki), 0.0, None,
+                         None if ai is None or not np.isfinite(ai) else float(ai))
+                 for mi, ki, ai in zip(m, km, alt)]
+        return Dispersion(model=model, k=k, growth=g, omega_r=np.full(k.shape, np.nan),
+                          fastest=None, unstable_band=None, unstable_bands=[], box_modes=modes,
+                          box_length=length, density_cm3=float(deck.units.density_cm3),
+                          time_end=float(deck.time.end), species=tuple(s.name for s in species),
+                          notes=notes, stability=verdict)
     # seeds: the curve's root at the nearest curve point, scaled with k
     j = np.clip(np.searchsorted(k, km), 0, k.size - 1)
     extra = np.where(np.isfinite(w[j]), w[j] * km / k[j], np.nan) if not solver.rational else None
@@ -267,4 +308,4 @@ def theory_for_deck(deck, model: str | None = None, kmax: float | None = None,
                       fastest=fastest, unstable_band=band, unstable_bands=bands, box_modes=modes,
                       box_length=length, density_cm3=float(deck.units.density_cm3),
                       time_end=float(deck.time.end), species=tuple(s.name for s in species),
-                      notes=notes)
+                      notes=notes, stability=verdict)

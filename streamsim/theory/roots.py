@@ -10,6 +10,7 @@ import numpy as np
 from scipy import optimize
 
 from .susceptibilities import _Rational, _eps, _species_list, _terms, model_for_species
+from .tabulated import TabulatedTerm, coarse_term
 
 __all__ = [
     "GROWTH_TOL", "cold_roots", "waterbag_roots", "maxwellian_roots", "juttner_growing_root",
@@ -209,6 +210,18 @@ class _Solver:
         self.damped = model == "maxwellian"          # only this model reports damped roots
         if not self.rational:
             self.seed_terms = [_terms(self.species, "cold"), _terms(self.species, "waterbag")]
+        self.coarse = None
+        if model == "table":
+            self.seed_terms.append(_terms(self.species, "beams"))
+            coarse = [coarse_term(t) if isinstance(t, TabulatedTerm) else t for t in self.terms]
+            if any(a is not b for a, b in zip(coarse, self.terms)):
+                # a long table: roots found on a coarser G through every m-th row, then polished
+                # by Newton's method on the full table (the growth curve of a 1e4-row table in
+                # about a second)
+                self.coarse = _Solver.__new__(_Solver)
+                self.coarse.__dict__.update(self.__dict__)
+                self.coarse.terms = coarse
+                self.coarse.coarse = None
 
     # -- all k at once ---------------------------------------------------------------------
     def best(self, k, extra=None, coarse: int = 96):
@@ -222,6 +235,25 @@ class _Solver:
         if self.rational:
             w = _pick(_rational_roots(self.terms, k))
             return w
+        if self.coarse is not None:
+            if k.size > 2 * coarse and np.all(np.diff(k) > 0) and extra is None:
+                # roots of the coarse G on `coarse` points, interpolated to k: one seed per k
+                kc = np.linspace(k[0], k[-1], coarse)
+                wc = self.coarse.best(kc)
+                j = np.clip(np.searchsorted(kc, k), 1, coarse - 1)
+                t = (k - kc[j - 1]) / (kc[j] - kc[j - 1])
+                w0 = np.where(np.isfinite(wc[j - 1]) & np.isfinite(wc[j]),
+                              wc[j - 1] * (1 - t) + wc[j] * t,
+                              np.where(t < 0.5, wc[j - 1] * k / kc[j - 1], wc[j] * k / kc[j]))
+            else:
+                w0 = self.coarse.best(k, extra=extra, coarse=coarse)
+            ok = np.isfinite(w0)
+            best = np.full(k.shape, np.nan, complex)
+            if ok.any():
+                sol, conv = _newton(self.terms, k[ok], w0[ok], maxiter=10)
+                sol = _mirror(sol)
+                best[ok] = np.where(conv & (sol.imag > GROWTH_TOL), sol, np.nan)
+            return self._continue(k, best, gaps=True)
         seeds = _mirror(np.concatenate([_rational_roots(t, k) for t in self.seed_terms], axis=1))
         if extra is not None:
             seeds = np.concatenate([seeds, _mirror(np.asarray(extra, complex).reshape(k.size, -1))],
@@ -246,9 +278,10 @@ class _Solver:
         best = _pick(w)
         return self._continue(k, best)
 
-    def _continue(self, k, best, reach: int = 1):
+    def _continue(self, k, best, reach: int = 1, gaps: bool = False):
         """Continuation over k: a root seeds Newton at the next ``reach`` k on either side (omega
-        scaled with k), and every improvement seeds again, until nothing improves."""
+        scaled with k), and every improvement seeds again, until nothing improves.  ``gaps``:
+        start only from the roots next to a k without one (the others are polished already)."""
         nk = k.size
         if nk < 2:
             return best
@@ -256,6 +289,12 @@ class _Solver:
             return mask if self.damped else mask & (best.imag > GROWTH_TOL)
 
         changed = sources(np.isfinite(best))
+        if gaps:
+            good = np.isfinite(best)
+            hole = np.zeros(nk, bool)
+            hole[:-1] |= ~good[1:]
+            hole[1:] |= ~good[:-1]
+            changed &= hole
         steps = np.concatenate([-np.arange(1, reach + 1), np.arange(1, reach + 1)])
         for _ in range(nk):
             src = np.nonzero(changed)[0]

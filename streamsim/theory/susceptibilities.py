@@ -16,6 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .tabulated import TabulatedTerm, is_table, table_seed_beams, table_waterbag
 from .formulas import (equivalent_waterbag_spread, juttner_normalisation, maxwellian_parameters,
                        one_plus_zeta_z, waterbag_edges)
 
@@ -24,7 +25,7 @@ __all__ = [
     "eps_cold", "eps_waterbag", "eps_maxwellian", "eps_juttner",
 ]
 
-MODELS = ("cold", "waterbag", "maxwellian", "juttner")
+MODELS = ("cold", "waterbag", "maxwellian", "juttner", "table")
 
 #: below this temperature a Juttner species is treated as cold (the quadrature window would be
 #: narrower than the resolution of double precision in the rapidity).
@@ -44,9 +45,12 @@ def model_for_species(species) -> str:
 
     "cold" if every species is cold; "waterbag" if any is a waterbag and the rest are cold;
     "juttner" if any species is a warm Juttner (also when waterbags are present: the Juttner model
-    keeps their exact rational terms).  "maxwellian" is only used on request.
+    keeps their exact rational terms); "table" if any species is tabulated (the other species keep
+    their exact terms: Juttner by quadrature, cold and waterbag rational).  "maxwellian" is only used on request.
     """
     species = list(species)
+    if any(is_table(s) for s in species):
+        return "table"
     if any(_is_warm_juttner(s) for s in species):
         return "juttner"
     if any(s.distribution == "waterbag" and s.spread_u > 0 for s in species):
@@ -202,15 +206,34 @@ def _rational_term(s, model: str) -> _Rational:
 
 def _terms(species, model: str) -> list:
     """Susceptibility terms of the species under a model (rational terms of equal poles merged)."""
-    if model not in MODELS:
+    if model not in MODELS and model != "beams":
         raise ValueError(f"unknown model {model!r}; choose one of {', '.join(MODELS)}")
+    if model == "maxwellian" and any(is_table(s) for s in species):
+        raise ValueError("the maxwellian model has no form for a tabulated species; use the "
+                         "table model (growing roots only)")
     out = []
     for s in species:
         warm = _is_warm_juttner(s) and s.theta > THETA_COLD
-        if model == "maxwellian" and warm:
+        if is_table(s):
+            # "table": the exact term; the others are stand-ins that seed its roots (cold: one
+            # beam at the mean u; waterbag: flat of equal mean and rms u; beams: six cold beams
+            # on equal-probability slices)
+            if model == "table":
+                out.append(TabulatedTerm(s.omega_p2, s.table.v, s.table.f))
+            elif model == "beams":
+                out.extend(_Rational(c, v, v) for c, v in table_seed_beams(s))
+            elif model == "cold":
+                m = s.table.moments()[0]
+                g = math.sqrt(1.0 + m * m)
+                out.append(_Rational(s.omega_p2 / g**3, m / g, m / g))
+            else:
+                out.append(_Rational(*table_waterbag(s)))
+        elif model == "beams":
+            out.append(_rational_term(s, "waterbag"))
+        elif model == "maxwellian" and warm:
             a, v, vt = maxwellian_parameters(s)
             out.append(_Maxwell(a, v, vt))
-        elif model == "juttner" and warm:
+        elif model in ("juttner", "table") and warm:
             out.append(_Juttner(s.omega_p2, s.drift_u, s.theta))
         else:
             out.append(_rational_term(s, "cold" if model == "cold" else "waterbag"))
@@ -218,6 +241,7 @@ def _terms(species, model: str) -> list:
 
 
 def _merge(terms):
+    terms = _merge_tables(terms)
     rational = {}
     rest = []
     for t in terms:
@@ -231,6 +255,21 @@ def _merge(terms):
         else:
             rest.append(t)
     return [_Rational(c, a, b) for (a, b), c in rational.items()] + rest
+
+
+def _merge_tables(terms):
+    """Tabulated terms whose G vanishes at both ends (to 1e-12 of its peak) merged into one: the
+    sum of piecewise-linear functions is piecewise linear on the union of their rows, so the
+    merged term is exact and costs one pass over the union (half the work for a pair of species
+    tabulated on one grid of velocities)."""
+    tabs = [t for t in terms if isinstance(t, TabulatedTerm)
+            and max(abs(t.G0), abs(t.GN)) <= 1e-12 * float(np.max(np.abs(t.G)))]
+    if len(tabs) < 2:
+        return terms
+    v = np.unique(np.concatenate([t.v for t in tabs]))
+    G = sum(np.interp(v, t.v, t.G, left=0.0, right=0.0) for t in tabs)
+    rest = [t for t in terms if not any(t is x for x in tabs)]
+    return [TabulatedTerm(1.0, v, G)] + rest
 
 
 def _eps(terms, k, w, scale: bool = False):

@@ -238,8 +238,17 @@ def fig_pic_vlasov(d, path):
     save_figure(fig, path)
 
 
+def fig_tabulated(d, path):
+    wb = d["waterbag"]
+    _compare(path, [(d["k"], d["curve"], "-", "Jüttner pair: kinetic root (quad)"),
+                    (d["waterbag_k"], d["waterbag_curve"], "--", "waterbag pair: algebraic relation"),
+                    ([q["k"] for q in wb], [q["waterbag_table"] for q in wb], "s",
+                     "waterbag pair as tables: streamsim theory")],
+             _points(d["points"], "k"), "k [ω_p/c]", "growth / ω_p", ylim0=True)
+
+
 FIGURES = {"plasma_oscillation": fig_oscillation, "langmuir": fig_langmuir,
            "landau": fig_landau, "two_stream": fig_two_stream, "weak_beam": fig_weak_beam,
            "relativistic": fig_relativistic, "warm_beams": fig_warm,
            "conservation": fig_conservation, "convergence": fig_convergence,
-           "pic_vlasov": fig_pic_vlasov}
+           "pic_vlasov": fig_pic_vlasov, "tabulated": fig_tabulated}

@@ -33,7 +33,7 @@ ERRORS = {
     "contrast.max": None,
     "clumps.size_median": "clumps.size_median_err",
     "coherence.k_cutoff": "coherence.k_cutoff_err",
-    "coherence.frequency_cutoff_hz": "coherence.frequency_cutoff_hz_err",
+    "coherence.frequency_cutoff_hz": "coherence.frequency_cutoff_err_hz",
     "energy.relative_error_max": None,
 }
 #: agreement: |PIC - Vlasov| <= AGREE_SIGMA x the combined error (quadrature sum; about 95%

@@ -60,7 +60,9 @@ def juttner_edge(theta: float, widths: float) -> float:
 def loaded_range(species, widths: float) -> tuple[float, float]:
     """The lab-frame u interval a species' loaded distribution occupies: a drifting Juttner out to
     f/f_peak = exp(-widths^2/2) (:func:`juttner_edge`, boosted by the drift), a waterbag's boosted
-    edges plus a quarter of its width on each side."""
+    edges plus a quarter of its width on each side; a table its rows' support (f = 0 beyond)."""
+    if species.distribution == "table":
+        return species.table.support
     if species.distribution == "waterbag":
         lo = float(loading.boost_u(-species.spread_u, species.drift_u))
         hi = float(loading.boost_u(species.spread_u, species.drift_u))
@@ -95,13 +97,17 @@ def momentum_grid(deck, species) -> MomentumGrid:
 
 def momentum_profile(species, grid: MomentumGrid) -> np.ndarray:
     """F(u_i) on the cells with sum_i F_i du = 1: the drifting Juttner at the cell centres, or the
-    exact overlap of each cell with a waterbag's boosted interval (lab-frame f by the invariance
+    exact overlap of each cell with a waterbag's boosted interval, or the cell average of a
+    table's interpolant (lab-frame f by the invariance
     of the phase-space density, as in :mod:`streamsim.loading`)."""
     if species.distribution == "waterbag":
         lo = float(loading.boost_u(-species.spread_u, species.drift_u))
         hi = float(loading.boost_u(species.spread_u, species.drift_u))
         e = grid.edges
         F = np.clip(np.minimum(e[1:], hi) - np.maximum(e[:-1], lo), 0.0, None) / grid.du
+    elif species.distribution == "table":
+        # the exact cell average of the table's interpolant (its CDF at the cell edges)
+        F = np.diff(species.table.cdf_at(grid.edges)) / grid.du
     else:
         logf = loading.juttner_log_f(grid.centres, species.drift_u, species.theta)
         F = np.exp(logf - logf.max())

@@ -17,13 +17,12 @@ from ..base import BlockResult, Context, Figure, ScanColumn, Table, at_ns, fmt
 NAME = "clumps"
 
 SCAN_COLUMNS = [
-    ScanColumn("clump_count", "", "clumps at the analysed snapshot", ("clumps", "count")),
-    ScanColumn("clump_size_median_cm", "cm", "median clump size", ("clumps", "size_median_cm")),
-    ScanColumn("clump_size_median_err_cm", "cm", "error of the median clump size (window "
-               "budget: clump-to-clump and window terms)", ("clumps", "size_median_err_cm")),
-    ScanColumn("clump_grid_limited", "", "1 when the median clump is narrower than "
-               "analysis.clump_grid_cells cells: the size is set by the grid (an upper bound)",
-               ("clumps", "grid_limited")),
+    ScanColumn(("clumps", "count"), "", "clumps at the analysed snapshot"),
+    ScanColumn(("clumps", "size_median_cm"), "cm", "median clump size"),
+    ScanColumn(("clumps", "size_median_err_cm"), "cm", "error of the median clump size (window "
+               "budget: clump-to-clump and window terms)"),
+    ScanColumn(("clumps", "grid_limited"), "", "1 when the median clump is narrower than "
+               "analysis.clump_grid_cells cells: the size is set by the grid (an upper bound)"),
 ]
 
 _CLUMP_COLUMNS = ("position", "position_cm", "width", "width_cm", "extent", "peak", "mass",
@@ -222,7 +221,7 @@ def _window(ctx: Context, skin: float, dx: float):
              "size_median": med, "size_median_cm": e["size_median_cm"],
              "size_median_err": e["size_median_err"],
              "size_median_err_cm": e["size_median_err_cm"],
-             "error_budget_cm": e.get("size_budget_cm"),
+             "size_median_budget_cm": e.get("size_median_budget_cm"),
              "size_median_cells": med / dx,
              "histogram": {"edges": edges, "edges_cm": edges * skin, "counts": hist},
              "measured_on": e.get("records", {}).get("source"),
@@ -231,7 +230,7 @@ def _window(ctx: Context, skin: float, dx: float):
                            "size = FWHM; count = the mean number per record (rounded)",
              "error_estimator": "quadrature sum of the clump-to-clump bootstrap of the pooled "
                                 "median and the block jackknife over the window's records (and "
-                                "the replica scatter with replicas); see error_budget_cm",
+                                "the replica scatter with replicas); see size_median_budget_cm",
              "headline": "clump sizes pooled over the saturated window; peak_snapshot and "
                          "end_snapshot are single instants"}, rows)
 
@@ -245,7 +244,7 @@ def _lines(cl: dict, n_cm3: float) -> list[str]:
         when = (f"per record over the saturated window [{fmt(w.get('t0'), '.4g')}, "
                 f"{fmt(w.get('t1'), '.4g')}] /omega_p" if cl.get("snapshot") == "window" and w
                 else f"at t = {at_ns(cl.get('t'), n_cm3)}")
-        dom = (cl.get("error_budget_cm") or {}).get("dominant")
+        dom = (cl.get("size_median_budget_cm") or {}).get("dominant")
         line = (f"clumps (delta n/n > {fmt(cl.get('threshold'), 'g')}): {cl['count']} {when}, "
                 f"median FWHM {fmt(cl.get('size_median'), '.3g')} "
                 f"c/omega_p = {fmt(cl.get('size_median_cm'), '.3g')}{pm} cm"

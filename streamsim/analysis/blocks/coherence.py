@@ -24,30 +24,56 @@ from ..base import BlockResult, Context, Figure, ScanColumn, Table, fmt
 NAME = "coherence"
 
 SCAN_COLUMNS = [
-    ScanColumn("nu_c_hz", "Hz", "coherence cutoff frequency nu_c (see summary.json coherence)",
-               ("coherence", "frequency_cutoff_hz")),
-    ScanColumn("nu_c_hz_err", "Hz", "error of nu_c (window budget; see summary.json coherence)",
-               ("coherence", "frequency_cutoff_hz_err")),
-    ScanColumn("nu_c_lower_bound_hz", "Hz", "nu_c when it is only a lower bound (grid-limited)",
-               ("coherence", "frequency_cutoff_hz_lower_bound")),
-    ScanColumn("k_c", "omega_p/c", "coherence cutoff k_c (value or lower bound)",
-               ("coherence", "k_cutoff")),
-    ScanColumn("k_c_err", "omega_p/c", "bootstrap error of k_c", ("coherence", "k_cutoff_err")),
-    ScanColumn("bulk_gamma", "", "bulk Lorentz factor assumed for nu_c",
-               ("coherence", "bulk_gamma")),
-    ScanColumn("nu_c_grid_limited", "", "1 when k_c and nu_c are set by the grid (nu_c is then "
-               "only the lower bound nu_c_lower_bound_hz): raise box.cells or warm the beams",
-               ("coherence", "grid_limited")),
+    ScanColumn(("coherence", "frequency_cutoff_hz"), "Hz",
+               "coherence cutoff frequency nu_c (see summary.json coherence)"),
+    ScanColumn(("coherence", "frequency_cutoff_err_hz"), "Hz",
+               "error of nu_c (window budget; see summary.json coherence)"),
+    ScanColumn(("coherence", "frequency_cutoff_lower_bound_hz"), "Hz",
+               "nu_c when it is only a lower bound (grid-limited)"),
+    ScanColumn(("coherence", "k_cutoff"), "omega_p/c", "coherence cutoff k_c (value or lower bound)"),
+    ScanColumn(("coherence", "k_cutoff_err"), "omega_p/c", "error of k_c (window budget)"),
+    ScanColumn(("coherence", "bulk_gamma"), "", "bulk Lorentz factor assumed for nu_c"),
+    ScanColumn(("coherence", "grid_limited"), "",
+               "1 when k_c and nu_c are set by the grid (nu_c is then only the lower bound "
+               "coherence.frequency_cutoff_lower_bound_hz): raise box.cells or warm the beams"),
 ]
 
 
 def compute(ctx: Context) -> BlockResult:
-    return _window_headline(_instants(ctx), ctx)
+    res = _window_headline(_instants(ctx), ctx)
+    c = ctx.results.get("contrast")
+    if c is not None and c.values.get("uniform"):
+        _blank_uniform(res.summary["coherence"])
+        res.lines = _lines(res.summary["coherence"])
+    return res
+
+
+#: the cutoff entries a uniform plasma does not have (no structure: no k_c, no bound)
+_UNIFORM_NONE = ("k_cutoff", "k_cutoff_err", "k_cutoff_per_cm", "frequency_cutoff_hz",
+                 "frequency_cutoff_err_hz", "frequency_cutoff_lower_bound_hz",
+                 "species", "frequency_cutoff_budget_hz",
+                 "k_cutoff_budget", "grid_limited_why")
+
+
+def _blank_uniform(head: dict) -> None:
+    """A plasma that stayed uniform (contrast.uniform) claims no cutoff, in the headline and in
+    its snapshots: its |F(k)|^2 is round-off, never a value or a grid-limited bound."""
+    for d in (head, head.get("peak_snapshot"), head.get("end_snapshot"), head.get("end")):
+        if not isinstance(d, dict):
+            continue
+        for k in _UNIFORM_NONE:
+            if k in d:
+                d[k] = None
+        d.update({"lower_bound": False, "status": "uniform"})
+        if "grid_limited" in d:
+            d["grid_limited"] = False
+        if isinstance(d.get("by_species"), dict):
+            d["by_species"] = {}
 
 
 _INSTANT_KEYS = ("t", "t_ns", "k_cutoff", "k_cutoff_err", "k_cutoff_per_cm", "frequency_cutoff_hz",
-                 "frequency_cutoff_hz_err", "frequency_cutoff_hz_lower_bound",
-                 "frequency_cutoff_bound", "frequency_cutoff_ghz", "noise_floor", "species",
+                 "frequency_cutoff_err_hz", "frequency_cutoff_lower_bound_hz",
+                 "noise_floor", "species",
                  "lower_bound", "status", "by_species", "bulk_gamma", "bulk_gamma_source",
                  "bulk_gamma_measured", "grid_limited", "grid_limited_why")
 
@@ -82,15 +108,15 @@ def _window_headline(res: BlockResult, ctx: Context) -> BlockResult:
                              "end_snapshot are single instants",
                  "k_cutoff": e.get("k_cutoff"), "k_cutoff_err": e.get("k_cutoff_err"),
                  "frequency_cutoff_hz": e.get("frequency_cutoff_hz"),
-                 "frequency_cutoff_hz_err": e.get("frequency_cutoff_hz_err"),
+                 "frequency_cutoff_err_hz": e.get("frequency_cutoff_err_hz"),
                  "noise_floor": e.get("noise_floor"), "species": e.get("species"),
                  "lower_bound": bool(e.get("lower_bound")), "status": e.get("status"),
-                 "by_species": by, "error_budget": e.get("frequency_cutoff_budget"),
+                 "by_species": by, "frequency_cutoff_budget_hz": e.get("frequency_cutoff_budget_hz"),
                  "k_cutoff_budget": e.get("k_cutoff_budget"),
                  "error_estimator": "quadrature sum of the mode-to-mode bootstrap of the "
                                     "window-averaged spectrum, the block jackknife over the "
                                     "window's records and (with replicas) the replica scatter; "
-                                    "see error_budget",
+                                    "see frequency_cutoff_budget_hz",
                  "bulk_gamma": (e.get("bulk_gamma_window") if e.get("bulk_gamma") is None
                                 else e.get("bulk_gamma")),
                  })
@@ -127,16 +153,12 @@ def _window_headline(res: BlockResult, ctx: Context) -> BlockResult:
 def _bound(head: dict, n_cm3: float) -> None:
     """A grid-limited cutoff frequency is a lower bound, never a plain value."""
     if head.get("grid_limited") and head.get("frequency_cutoff_hz") is not None:
-        head["frequency_cutoff_hz_lower_bound"] = head.pop("frequency_cutoff_hz")
+        head["frequency_cutoff_lower_bound_hz"] = head.pop("frequency_cutoff_hz")
         head["frequency_cutoff_hz"] = None
-        head["frequency_cutoff_bound"] = "lower"
     else:
-        head["frequency_cutoff_hz_lower_bound"] = None
-        head["frequency_cutoff_bound"] = None
+        head["frequency_cutoff_lower_bound_hz"] = None
     if head.get("k_cutoff") is not None:
         head["k_cutoff_per_cm"] = units.wavenumber_per_cm(head["k_cutoff"], n_cm3)
-        nu = head["frequency_cutoff_hz"] or head["frequency_cutoff_hz_lower_bound"]
-        head["frequency_cutoff_ghz"] = nu / 1e9 if head["frequency_cutoff_hz"] else None
 
 
 def _instants(ctx: Context) -> BlockResult:
@@ -196,7 +218,7 @@ def _instants(ctx: Context) -> BlockResult:
             name, r = max(best, key=lambda nr: nr[1]["k_cutoff"])
             entry.update({"k_cutoff": r["k_cutoff"], "k_cutoff_err": r["k_cutoff_err"],
                           "frequency_cutoff_hz": r["frequency_cutoff_hz"],
-                          "frequency_cutoff_hz_err": r["frequency_cutoff_hz_err"],
+                          "frequency_cutoff_err_hz": r["frequency_cutoff_err_hz"],
                           "noise_floor": r["noise_floor"], "species": name,
                           "lower_bound": r["lower_bound"], "status": r["status"]})
         else:
@@ -212,7 +234,7 @@ def _instants(ctx: Context) -> BlockResult:
         per[label] = entry
     src = "peak" if "peak" in per else ("end" if "end" in per else None)
     head = {"k_cutoff": None, "k_cutoff_err": None, "frequency_cutoff_hz": None,
-            "frequency_cutoff_hz_err": None, "bulk_gamma": bulk,
+            "frequency_cutoff_err_hz": None, "bulk_gamma": bulk,
             "noise_floor": None, "status": "no particle snapshot"}
     if src:
         head.update(per[src])
@@ -234,16 +256,12 @@ def _instants(ctx: Context) -> BlockResult:
                                     "clumps grid-limited (clumps.grid_limited)"})
     if head.get("grid_limited") and head.get("frequency_cutoff_hz") is not None:
         # a bound, never a plain value
-        head["frequency_cutoff_hz_lower_bound"] = head.pop("frequency_cutoff_hz")
+        head["frequency_cutoff_lower_bound_hz"] = head.pop("frequency_cutoff_hz")
         head["frequency_cutoff_hz"] = None
-        head["frequency_cutoff_bound"] = "lower"
     else:
-        head["frequency_cutoff_hz_lower_bound"] = None
-        head["frequency_cutoff_bound"] = None
+        head["frequency_cutoff_lower_bound_hz"] = None
     if head.get("k_cutoff") is not None:
         head["k_cutoff_per_cm"] = units.wavenumber_per_cm(head["k_cutoff"], n_cm3)
-        nu = head["frequency_cutoff_hz"] or head["frequency_cutoff_hz_lower_bound"]
-        head["frequency_cutoff_ghz"] = nu / 1e9 if head["frequency_cutoff_hz"] else None
     if src == "peak" and "end" in per:
         head["end"] = {k: per["end"][k] for k in ("t", "k_cutoff", "frequency_cutoff_hz",
                                                   "noise_floor", "species", "status")}
@@ -309,7 +327,7 @@ def _pm(co: dict, key: str) -> str:
     err = co.get(key)
     if err is None:
         return " GHz (no error estimate)"
-    dom = (co.get("error_budget") or {}).get("dominant")
+    dom = (co.get("frequency_cutoff_budget_hz") or {}).get("dominant")
     return f" +- {err / 1e9:.2g} GHz" + (f" (largest error term: {dom})" if dom else "")
 
 
@@ -324,24 +342,27 @@ def _lines(co: dict) -> list[str]:
 
 
 def _main_lines(co: dict) -> list[str]:
+    if co.get("status") == "uniform":
+        return ["coherence: no cutoff, the plasma stayed uniform (no density structure to "
+                "emit coherently)"]
     G = co.get("bulk_gamma", 1.0)
     G = 1.0 if G is None else G
     note = ("  assumes particles on the same trajectory emitting along the motion; "
             "nu_c = Gamma c k_c / 2 pi (a bunching estimate, not a radiation calculation)")
-    if co.get("frequency_cutoff_hz_lower_bound") is not None:
+    if co.get("frequency_cutoff_lower_bound_hz") is not None:
         cold = co.get("cold_species") or []
         fix = ("give the beams a temperature (a cold beam has no intrinsic clump scale) or "
                "raise box.cells" if cold else "raise box.cells")
-        err = co.get("frequency_cutoff_hz_err")
+        err = co.get("frequency_cutoff_err_hz")
         pm = f" (+- {err / 1e9:.2g} GHz at this grid)" if err is not None else ""
         return [f"coherent emission up to at least nu_c >= "
-                f"{co['frequency_cutoff_hz_lower_bound'] / 1e9:.3g} GHz{pm} {_where(co)}: a "
+                f"{co['frequency_cutoff_lower_bound_hz'] / 1e9:.3g} GHz{pm} {_where(co)}: a "
                 f"lower bound, grid-limited ({co.get('grid_limited_why')}); {fix}", note]
     if co.get("frequency_cutoff_hz") is not None:
         lb = (" (lower bound: the spectrum is still high at the largest k computed; raise "
               "analysis.coherence_kmax_factor)" if co.get("lower_bound") else "")
         return [f"coherent emission up to nu_c = {co['frequency_cutoff_hz'] / 1e9:.3g}"
-                f"{_pm(co, 'frequency_cutoff_hz_err')} {_where(co)} "
+                f"{_pm(co, 'frequency_cutoff_err_hz')} {_where(co)} "
                 f"(k_c = {fmt(co.get('k_cutoff'), '.3g')} omega_p/c = "
                 f"{fmt(co.get('k_cutoff_per_cm'), '.3g')} /cm, {co.get('species')}, "
                 f"bulk Gamma = {G:.4g}, noise floor 1/N = {fmt(co.get('noise_floor'), '.2g')})"

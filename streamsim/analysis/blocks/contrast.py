@@ -14,13 +14,13 @@ from ..base import BlockResult, Context, Figure, ScanColumn, Table, at_ns, fmt
 NAME = "contrast"
 
 SCAN_COLUMNS = [
-    ScanColumn("t_unity_ns", "ns", "first time max delta n/n reaches 1 (clump formation)",
-               ("contrast", "t_unity_ns")),
-    ScanColumn("contrast_max", "", "maximum delta n/n over the run", ("contrast", "max")),
-    ScanColumn("initial_level", "", "delta n/n the growth started from (fitted, at its start)",
-               ("contrast", "initial_level")),
-    ScanColumn("t_unity_ns_for_level", "ns", "formation time from analysis.initial_level",
-               ("contrast", "t_unity_ns_for_level")),
+    ScanColumn(("contrast", "t_unity_ns"), "ns",
+               "first time max delta n/n reaches 1 (clump formation)"),
+    ScanColumn(("contrast", "max"), "", "maximum delta n/n over the run"),
+    ScanColumn(("contrast", "initial_level"), "",
+               "delta n/n the growth started from (fitted, at its start)"),
+    ScanColumn(("contrast", "t_unity_for_level_ns"), "ns",
+               "formation time from analysis.initial_level"),
 ]
 
 
@@ -36,6 +36,7 @@ def compute(ctx: Context) -> BlockResult:
                          "the turning points of trapped orbits), so max delta n/n has no "
                          "converged value: the grid sets it; give the beams a temperature"
                          if cold else None)
+    block["uniform"] = _ct.stayed_uniform(block.get("max"))
     warnings = _start(block, ctx)
     t = np.asarray(s.t, float)
     cmax = np.asarray(s.contrast_max, float)
@@ -49,7 +50,8 @@ def compute(ctx: Context) -> BlockResult:
                   attrs={"columns": ",".join(names + ["total"])})
     return BlockResult(NAME, {"contrast": block}, {"contrast": table},
                        [Figure("contrast.png", "max and rms delta n/n vs time per species and "
-                               "for the total", _draw)], _lines(block, n_cm3), warnings)
+                               "for the total", _draw)], _lines(block, n_cm3), warnings,
+                       values={"uniform": block["uniform"]})
 
 
 def _seed_level(deck) -> float:
@@ -64,7 +66,7 @@ def _seed_level(deck) -> float:
 
 
 def _start(block: dict, ctx: Context) -> list[str]:
-    """contrast.initial_level, efolds_to_unity, t_unity_ns_for_level; the warning when the
+    """contrast.initial_level, efolds_to_unity, t_unity_for_level_ns; the warning when the
     seed lies below the loading's own noise."""
     from ...loading import seed_phases
     data, n_cm3 = ctx.data, ctx.density_cm3
@@ -80,7 +82,7 @@ def _start(block: dict, ctx: Context) -> list[str]:
                      "band": bool(p.band), "max_delta": seed}
     block.update({"initial_level": None, "initial_level_t": None, "growth_rate": None,
                   "efolds_to_unity": None, "t_unity_for_level": None,
-                  "t_unity_ns_for_level": None, "level_asked": ctx.options.initial_level,
+                  "t_unity_for_level_ns": None, "level_asked": ctx.options.initial_level,
                   "seed_below_noise": None})
     block["initial_level_definition"] = (
         f"max delta n/n of the fitted exponential phase (ln fit below {_ct.LINEAR_TOP:g}, rms "
@@ -102,8 +104,8 @@ def _start(block: dict, ctx: Context) -> list[str]:
                                                 "rate of the fastest mode, measured or theory)")
         tl, tl_err = _ct.t_unity_for_level_err(tu, lvl, gam, asked, gam_err, fit["rms"])
         block.update({"t_unity_for_level": tl, "t_unity_for_level_err": tl_err,
-                      "t_unity_ns_for_level": units.time_ns(tl, n_cm3),
-                      "t_unity_ns_for_level_err": (units.time_ns(tl_err, n_cm3)
+                      "t_unity_for_level_ns": units.time_ns(tl, n_cm3),
+                      "t_unity_for_level_err_ns": (units.time_ns(tl_err, n_cm3)
                                                    if tl_err is not None else None),
                       "extrapolation_rate": gam, "extrapolation_rate_err": gam_err,
                       "extrapolation_rate_source": source})
@@ -122,7 +124,7 @@ def _start(block: dict, ctx: Context) -> list[str]:
             warnings.append(f"the seed (max delta n/n = {seed:.2g}) lies below the loading's own "
                             f"noise (median max delta n/n = {noise:.2g} before the growth), so "
                             "t_unity is set by the loading, not by perturbation.amplitude; "
-                            + ("contrast.t_unity_ns_for_level extrapolates from "
+                            + ("contrast.t_unity_for_level_ns extrapolates from "
                                f"analysis.initial_level = {asked:g}; raise the amplitude or the "
                                "particles per cell to measure it directly"
                                if asked is not None else
@@ -149,6 +151,10 @@ def _linear_rate(ctx: Context):
 def _lines(c: dict, n_cm3: float) -> list[str]:
     if c.get("max") is None:
         return ["density contrast: not recorded"]
+    if c.get("uniform"):
+        return [f"the plasma stayed uniform: max delta n/n = {fmt(c['max'], '.2g')} over the run "
+                f"(round-off, <= {_ct.UNIFORM_LEVEL:g}): nothing seeded the instability; add a "
+                "[perturbation] (a Vlasov run has no particle noise to grow from)"]
     if c.get("t_unity") is not None:
         out = [f"clumps form (max delta n/n >= 1) at t = {fmt(c['t_unity'])} /omega_p = "
                f"{fmt(c.get('t_unity_ns'))} ns; max delta n/n = {fmt(c['max'], '.3g')} "
@@ -162,10 +168,10 @@ def _lines(c: dict, n_cm3: float) -> list[str]:
         line = (f"  grown from delta n/n = {fmt(c['initial_level'], '.2g')} at t = "
                 f"{at_ns(c.get('initial_level_t'), n_cm3, '.3g')} "
                 f"({fmt(c.get('efolds_to_unity'), '.3g')} e-folds to unity)")
-        if c.get("t_unity_ns_for_level") is not None:
-            e = c.get("t_unity_ns_for_level_err")
+        if c.get("t_unity_for_level_ns") is not None:
+            e = c.get("t_unity_for_level_err_ns")
             line += (f"; from delta n/n = {fmt(c.get('level_asked'), '.2g')}: t_unity = "
-                     f"{fmt(c['t_unity_ns_for_level'])}"
+                     f"{fmt(c['t_unity_for_level_ns'])}"
                      + (f" +- {e:.2g}" if e is not None else " (no error: theory rate)")
                      + f" ns (extrapolated at gamma = {fmt(c.get('extrapolation_rate'), '.3g')}"
                      f" omega_p, {(c.get('extrapolation_rate_source') or '').split(' (')[0]})")

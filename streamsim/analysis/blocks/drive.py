@@ -28,11 +28,9 @@ from ..base import BlockResult, Context, Figure, ScanColumn, Table, fmt
 NAME = "drive"
 
 SCAN_COLUMNS = [
-    ScanColumn("drive_ratio", "", "max |J_ext| / carrying limit", ("drive", "ratio")),
-    ScanColumn("drive_e_parallel_max", "m_e c omega_p / e", "max |E0| over the run",
-               ("drive", "e_parallel_max")),
-    ScanColumn("drive_energy_balance_error", "", "energy-balance residual / energy gained",
-               ("drive", "energy_balance_error")),
+    ScanColumn(("drive", "ratio"), "", "max |J_ext| / carrying limit"),
+    ScanColumn(("drive", "e0_max"), "m_e c omega_p / e", "max |E0| over the run"),
+    ScanColumn(("drive", "energy_balance_error"), "", "energy-balance residual / energy gained"),
 ]
 
 
@@ -61,7 +59,7 @@ def compute(ctx: Context) -> BlockResult:
         "carrying_limit": lim,
         "carrying_limit_statA_cm2": units.current_statA_cm2(lim, n_cm3),
         "current_max": jmax, "ratio": jmax / lim, "charge_starved": bool(jmax > lim),
-        "e_parallel_max": e_max, "e_parallel_max_statv_cm": units.efield_statv_cm(e_max, n_cm3),
+        "e0_max": e_max, "e0_max_statv_cm": units.efield_statv_cm(e_max, n_cm3),
         "e0_final": float(e0[-1]) if e0.size else None,
         "current_final": float(s.drive_current[-1]) if t.size else None,
         "current_ext_final": jx_end,
@@ -72,8 +70,8 @@ def compute(ctx: Context) -> BlockResult:
         "gamma_mean_final": {n: float(s.drive_gamma_mean[-1, i]) for i, n in enumerate(names)},
         "gamma_rms_final": {n: float(s.drive_gamma_rms[-1, i]) for i, n in enumerate(names)},
         "energy_balance_error": balance,
-        "units": {"current": "e n_ref c", "e_parallel_max": "m_e c omega_p / e",
-                  "e_parallel_max_statv_cm": "statV/cm"},
+        "units": {"current": "e n_ref c", "e0_max": "m_e c omega_p / e",
+                  "e0_max_statv_cm": "statV/cm"},
         "assumptions": "uniform imposed current J_ext(t); periodic box; no transverse fields; "
                        "E0 by Ampere's law dE0/dt = -(<J> - J_ext), k != 0 by Poisson",
         "theory_driven": _theory_at_driven_state(ctx),
@@ -157,8 +155,8 @@ def _lines(e: dict, names) -> list[str]:
     lines = [f"drive: max |J_ext| = {fmt(e['current_max'])} e n_ref c = {fmt(e['ratio'], '.3g')}"
              f" x the carrying limit {fmt(e['carrying_limit'])}"
              + (" (charge-starved)" if e["charge_starved"] else ""),
-             f"  max |E0| = {fmt(e['e_parallel_max'])} m_e c omega_p/e = "
-             f"{fmt(e['e_parallel_max_statv_cm'])} statV/cm; energy balance error "
+             f"  max |E0| = {fmt(e['e0_max'])} m_e c omega_p/e = "
+             f"{fmt(e['e0_max_statv_cm'])} statV/cm; energy balance error "
              f"{fmt(e['energy_balance_error'], '.2e')} of the energy gained",
              "  Lorentz factors at the end: " + ", ".join(
                  f"{n} bulk {fmt(e['gamma_bulk_final'][n])} (max {fmt(e['gamma_max'][n])})"

@@ -34,10 +34,10 @@ NAME = "emission"
 SERIES_BOOTSTRAP = 50
 
 SCAN_COLUMNS = [
-    ScanColumn("window_t0_ns", "ns", "start of the saturated window the emission numbers "
-               "average over", ("emission", "window", "t0_ns")),
-    ScanColumn("window_long_enough", "", "1 when the saturated window is long enough",
-               ("emission", "window", "long_enough")),
+    ScanColumn(("emission", "window", "t0_ns"), "ns",
+               "start of the saturated window the emission numbers average over"),
+    ScanColumn(("emission", "window", "long_enough"), "",
+               "1 when the saturated window is long enough"),
 ]
 
 
@@ -195,17 +195,19 @@ def compute(ctx: Context) -> BlockResult:
     skin = units.skin_depth_cm(n_cm3)
     series_tab = Table("emission_series", {
         "t": np.asarray(rows["t"], float), "t_ns": np.asarray(rows["t"], float) * to_ns,
-        "k_c": np.asarray(rows["k_c"], float), "k_c_err": np.asarray(rows["k_c_err"], float),
+        "k_cutoff": np.asarray(rows["k_c"], float),
+        "k_cutoff_err": np.asarray(rows["k_c_err"], float),
         "species": np.array(rows["species"], dtype=object),
         "lower_bound": np.asarray(rows["lower_bound"], int),
-        "nu_c_hz": np.asarray(rows["nu_c_hz"], float),
-        "nu_c_hz_err": np.asarray(rows["nu_c_hz_err"], float),
+        "frequency_cutoff_hz": np.asarray(rows["nu_c_hz"], float),
+        "frequency_cutoff_err_hz": np.asarray(rows["nu_c_hz_err"], float),
         "clumps": np.asarray(rows["clumps"], int),
         "size_median": np.asarray(rows["size_median"], float),
         "size_median_cm": np.asarray(rows["size_median"], float) * skin,
         "max_dn": np.asarray(rows["max_dn"], float), "in_window": in_win.astype(int)},
-        units={"t": "1/omega_p", "t_ns": "ns", "k_c": "omega_p/c", "k_c_err": "omega_p/c",
-               "nu_c_hz": "Hz", "nu_c_hz_err": "Hz", "size_median": "c/omega_p",
+        units={"t": "1/omega_p", "t_ns": "ns", "k_cutoff": "omega_p/c",
+               "k_cutoff_err": "omega_p/c", "frequency_cutoff_hz": "Hz",
+               "frequency_cutoff_err_hz": "Hz", "size_median": "c/omega_p",
                "size_median_cm": "cm"},
         attrs={"source": how})
     ffw = head.pop("_window_spectrum")
@@ -218,10 +220,39 @@ def compute(ctx: Context) -> BlockResult:
                   "width_cm": np.array([r[3] * skin for r in clump_rows], float),
                   "in_window": np.array([int(in_win[r[0]]) for r in clump_rows], int)},
                   units={"t": "1/omega_p", "width": "c/omega_p", "width_cm": "cm"})}
+    if _stayed_uniform(ctx):
+        _blank_uniform(head)
     return BlockResult(NAME, {"emission": head}, tables,
                        [Figure("emission.png", "nu_c(t), clump size(t) and max delta n/n(t) "
                                "with the saturated window", _draw)], _lines(head), warnings,
                        values={"window": head})
+
+
+def _stayed_uniform(ctx: Context) -> bool:
+    """The contrast block found no structure at all (max delta n/n at round-off)."""
+    c = ctx.results.get("contrast")
+    return bool(c is not None and c.values.get("uniform"))
+
+
+#: the emission numbers a uniform plasma does not have
+_UNIFORM_NONE = ("k_cutoff", "k_cutoff_err", "k_cutoff_per_cm", "frequency_cutoff_hz",
+                 "frequency_cutoff_err_hz", "species", "k_cutoff_budget",
+                 "frequency_cutoff_budget_hz", "size_median", "size_median_cm",
+                 "size_median_err", "size_median_err_cm", "size_median_budget_cm")
+
+
+def _blank_uniform(head: dict) -> None:
+    """A plasma that stayed uniform has no saturated window and no cutoff: say so, never a
+    bound set by the grid or the largest k computed."""
+    for k in _UNIFORM_NONE:
+        if k in head:
+            head[k] = None
+    head.update({"lower_bound": False, "status": "uniform", "by_species": {},
+                 "history": {}, "warning": None})
+    head["window"] = {k: (None if k not in ("how", "criterion") else v)
+                      for k, v in head["window"].items()}
+    head["window"]["how"] = "none: the plasma stayed uniform (contrast.uniform)"
+    head["window"]["long_enough"] = False
 
 
 def _ns(t, to_ns):
@@ -232,7 +263,7 @@ def _window_cutoff(F2, dens, floors, idx, names, L, modes, opt, nu, n_cm3) -> di
     """k_c and nu_c of the window-averaged form factor, with the mode-to-mode (bootstrap) and
     window (block jackknife over the records) terms; the averaged spectrum as a table."""
     out = {"k_cutoff": None, "k_cutoff_err": None, "frequency_cutoff_hz": None,
-           "frequency_cutoff_hz_err": None, "species": None, "lower_bound": False,
+           "frequency_cutoff_err_hz": None, "species": None, "lower_bound": False,
            "noise_floor": None, "status": "no records in the window", "by_species": {}}
     empty = Table("form_factor_window", {"mode": np.zeros(0, int), "k": np.zeros(0)})
     if idx.size == 0:
@@ -258,7 +289,7 @@ def _window_cutoff(F2, dens, floors, idx, names, L, modes, opt, nu, n_cm3) -> di
         c["envelope"] = {"k": kb, "mean_F2": Eb, "modes": nb}
         c["noise_floor"] = float(floors[names.index(name)])
         c["frequency_cutoff_hz"] = nu(c["k_cutoff"], None, name)
-        c["frequency_cutoff_hz_err"] = nu(c.get("k_cutoff_err"), None, name)
+        c["frequency_cutoff_err_hz"] = nu(c.get("k_cutoff_err"), None, name)
         g1 = nu(1.0, None, name)
         c["bulk_gamma"] = g1 / _co.emission_cutoff_hz(1.0, 1.0, n_cm3) if g1 else None
         out["by_species"][name] = c
@@ -292,10 +323,10 @@ def _window_cutoff(F2, dens, floors, idx, names, L, modes, opt, nu, n_cm3) -> di
           "combined": kb["combined"] * scale if kb["combined"] is not None else None}
     out.update({"k_cutoff": c["k_cutoff"], "k_cutoff_err": kb["combined"],
                 "frequency_cutoff_hz": c["k_cutoff"] * scale,
-                "frequency_cutoff_hz_err": fb["combined"], "species": who,
+                "frequency_cutoff_err_hz": fb["combined"], "species": who,
                 "lower_bound": c["lower_bound"], "noise_floor": c["noise_floor"],
                 "status": c["status"], "bulk_gamma_window": G,
-                "k_cutoff_budget": kb, "frequency_cutoff_budget": fb,
+                "k_cutoff_budget": kb, "frequency_cutoff_budget_hz": fb,
                 "k_cutoff_per_cm": units.wavenumber_per_cm(c["k_cutoff"], n_cm3)})
     return out
 
@@ -305,8 +336,8 @@ def _window_clumps(widths_by_record, idx, n_cm3) -> dict:
     and the window (block jackknife over records) terms."""
     cm = units.length_cm(1.0, n_cm3)
     pooled = [w for i in idx for w in widths_by_record[int(i)]]
-    out = {"clump_count": len(pooled), "size_median": None, "size_median_cm": None,
-           "size_median_err": None, "size_median_err_cm": None, "size_budget_cm": None}
+    out = {"clump_count_pooled": len(pooled), "size_median": None, "size_median_cm": None,
+           "size_median_err": None, "size_median_err_cm": None, "size_median_budget_cm": None}
     if not pooled:
         return out
     med = float(np.median(pooled))
@@ -320,7 +351,7 @@ def _window_clumps(widths_by_record, idx, n_cm3) -> dict:
     out.update({"size_median": med, "size_median_cm": med * cm,
                 "size_median_err": b["combined"],
                 "size_median_err_cm": b["combined"] * cm if b["combined"] is not None else None,
-                "size_budget_cm": {**b, "terms": {k: (v * cm if v is not None else None)
+                "size_median_budget_cm": {**b, "terms": {k: (v * cm if v is not None else None)
                                                   for k, v in b["terms"].items()},
                                    "combined": b["combined"] * cm
                                    if b["combined"] is not None else None}})
@@ -329,17 +360,19 @@ def _window_clumps(widths_by_record, idx, n_cm3) -> dict:
 
 def _lines(head: dict) -> list[str]:
     w = head["window"]
+    if head.get("status") == "uniform":
+        return ["emission: none, the plasma stayed uniform (no saturated window, no cutoff)"]
     if w.get("t0") is None or not head["records"]["count"]:
         return [f"emission: {head['records']['source']}"]
     out = [f"emission window [{w['t0']:.4g}, {w['t1']:.4g}] /omega_p = "
            f"[{fmt(w.get('t0_ns'), '.3g')}, {fmt(w.get('t1_ns'), '.3g')}] ns "
            f"({w['records']} records, {w['how']})"]
-    fb = head.get("frequency_cutoff_budget")
+    fb = head.get("frequency_cutoff_budget_hz")
     if fb and fb.get("dominant"):
         terms = ", ".join(f"{k} {v / 1e9:.2g}" for k, v in fb["terms"].items() if v is not None)
         out.append(f"  nu_c error budget [GHz]: {terms}; combined {fb['combined'] / 1e9:.2g} "
                    f"(dominant: {fb['dominant']}; replica: run with --replicas N to add it)")
-    sb = head.get("size_budget_cm")
+    sb = head.get("size_median_budget_cm")
     if sb and sb.get("dominant"):
         terms = ", ".join(f"{k} {v:.2g}" for k, v in sb["terms"].items() if v is not None)
         out.append(f"  clump size error budget [cm]: {terms}; combined {sb['combined']:.2g} "
@@ -359,8 +392,8 @@ def _draw(res: BlockResult, data):
     t = tab.col("t")
     w = head["window"]
     fig, (a1, a2, a3) = plt.subplots(3, 1, figsize=(7.5, 8.4), sharex=True)
-    nu = tab.col("nu_c_hz") / 1e9
-    err = tab.col("nu_c_hz_err") / 1e9
+    nu = tab.col("frequency_cutoff_hz") / 1e9
+    err = tab.col("frequency_cutoff_err_hz") / 1e9
     lb = tab.col("lower_bound").astype(bool)
     a1.errorbar(t[~lb], nu[~lb], yerr=np.where(np.isfinite(err[~lb]), err[~lb], 0), fmt="o",
                 ms=3, lw=0.8, label=f"{NUC} at each record")

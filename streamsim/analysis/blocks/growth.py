@@ -19,28 +19,21 @@ NAME = "growth"
 from ..noise_growth import TARGET_EFOLDS as _TARGET  # noqa: E402
 
 SCAN_COLUMNS = [
-    ScanColumn("growth_mode", "", "box mode of the headline growth fit (largest theoretical "
-               "growth)", ("growth", "mode")),
-    ScanColumn("growth_method", "", "which fit gave growth_measured (growth.method)",
-               ("growth", "method"), text=True),
-    ScanColumn("growth_k", "omega_p/c", "its wavenumber", ("growth", "k")),
-    ScanColumn("growth_measured", "omega_p", "measured field-amplitude growth rate",
-               ("growth", "measured")),
-    ScanColumn("growth_measured_err", "omega_p", "1-sigma error of the fit",
-               ("growth", "measured_err")),
-    ScanColumn("growth_theory", "omega_p", "linear theory for the same box mode",
-               ("growth", "theory")),
-    ScanColumn("growth_ratio", "", "measured / theory", ("growth", "ratio")),
-    ScanColumn("growth_time_ns", "ns", "measured e-folding time 1/growth_measured",
-               ("growth", "growth_time_ns")),
-    ScanColumn("growth_time_err_ns", "ns", "its 1-sigma error from the fit",
-               ("growth", "growth_time_err_ns")),
-    ScanColumn("theory_growth_time_ns", "ns", "theory e-folding time of the same box mode",
-               ("growth", "theory_growth_time_ns")),
-    ScanColumn("theory_fastest_growth", "omega_p", "theory growth rate of the fastest mode "
-               "(any k)", ("theory", "fastest", "growth")),
-    ScanColumn("theory_fastest_growth_time_ns", "ns", "its e-folding time",
-               ("theory", "fastest", "growth_time_ns")),
+    ScanColumn(("growth", "mode"), "", "box mode of the headline growth fit (largest theoretical "
+               "growth)"),
+    ScanColumn(("growth", "fit"), "", "which fit gave growth.measured", text=True),
+    ScanColumn(("growth", "k"), "omega_p/c", "its wavenumber"),
+    ScanColumn(("growth", "measured"), "omega_p", "measured field-amplitude growth rate"),
+    ScanColumn(("growth", "measured_err"), "omega_p", "1-sigma error of the fit"),
+    ScanColumn(("growth", "theory"), "omega_p", "linear theory for the same box mode"),
+    ScanColumn(("growth", "ratio"), "", "measured / theory"),
+    ScanColumn(("growth", "growth_time_ns"), "ns", "measured e-folding time 1/growth.measured"),
+    ScanColumn(("growth", "growth_time_err_ns"), "ns", "its 1-sigma error from the fit"),
+    ScanColumn(("growth", "theory_growth_time_ns"), "ns",
+               "theory e-folding time of the same box mode"),
+    ScanColumn(("theory", "fastest", "growth"), "omega_p", "theory growth rate of the fastest mode "
+               "(any k)"),
+    ScanColumn(("theory", "fastest", "growth_time_ns"), "ns", "its e-folding time"),
 ]
 
 #: the field-energy fit of a noise-seeded run sums the modes whose theory rate is at least this
@@ -50,7 +43,7 @@ _BAND = 0.8
 
 _MODE_COLUMNS = ("mode", "k", "k_per_cm", "measured", "measured_err", "systematic", "theory",
                  "ratio")
-_TEXT_COLUMNS = ("status", "method")
+_TEXT_COLUMNS = ("status", "fit")
 
 
 def _theory_rates(disp) -> tuple[dict[int, float], float | None, float | None]:
@@ -106,7 +99,7 @@ def compute(ctx: Context) -> BlockResult:
     if seeded:
         modes = _gr.fit_modes(s.t, s.mode_amplitude, data.length, rates, g_max)
         for row in modes:
-            row["method"] = _gr.STRAIGHT if row["measured"] is not None else None
+            row["fit"] = _gr.STRAIGHT if row["measured"] is not None else None
             row["reason"] = None
             row["particles_per_cell_needed"] = None
     else:
@@ -119,7 +112,7 @@ def compute(ctx: Context) -> BlockResult:
     for row in modes:
         row["k_per_cm"] = units.wavenumber_per_cm(row["k"], n_cm3)
     head = _headline(modes)
-    head.setdefault("method", None)
+    head.setdefault("fit", None)
     if head.get("mode") is not None and head.get("measured") is None and seeded:
         from .. import noise_growth as ng
         lv = ng.levels(s.t, np.abs(np.asarray(s.mode_amplitude)[:, head["mode"] - 1]) ** 2)
@@ -138,7 +131,7 @@ def compute(ctx: Context) -> BlockResult:
     band = [m for m, g in rates.items() if g is not None and g_head and g >= _BAND * g_head]
     if seeded or not band:
         fe = _gr.fit_field_energy(s.t, s.field_energy, head.get("theory") or None)
-        fe["method"] = _gr.STRAIGHT + " (total field energy)"
+        fe["fit"] = _gr.STRAIGHT + " (total field energy)"
     else:
         fe = _gr.fit_band_energy(s.t, s.mode_amplitude, data.length, band,
                                  head.get("theory") or None)
@@ -203,13 +196,13 @@ def _lines(g: dict, modes: list[dict], fe: dict, n_cm3: float) -> list[str]:
                      f"{fmt(g['measured'])} +- {fmt(g.get('measured_err'), '.2g')} omega_p{syst}"
                      f"{th}{tau}, "
                      f"fitted over t = {fmt(w[0], '.3g')}..{fmt(w[1], '.3g')} /omega_p "
-                     f"[{g.get('method')}]")
+                     f"[{g.get('fit')}]")
     if fe.get("measured") is not None:
         th = (f" (theory 2*gamma = {fmt(fe['theory'])}, {rate_ns(fe['theory'], n_cm3)})"
               if fe.get("theory") else "")
         lines.append(f"field energy grows at {fmt(fe['measured'])} +- "
                      f"{fmt(fe.get('measured_err'), '.2g')} omega_p, e-folding time "
-                     f"{rate_ns(fe['measured'], n_cm3)}{th} [{fe.get('method')}]")
+                     f"{rate_ns(fe['measured'], n_cm3)}{th} [{fe.get('fit')}]")
         if fe.get("flag"):
             lines.append(f"  warning: {fe['flag']}")
     if modes:

@@ -19,7 +19,7 @@ import time
 
 from ..checks import Check
 from . import (conservation, convergence, landau, langmuir, pic_vlasov, plasma_oscillation,
-               relativistic, two_stream, warm_beams, weak_beam)
+               relativistic, tabulated, two_stream, warm_beams, weak_beam)
 from ._common import LEVEL_NAMES, Outcome, Problem, Runner
 
 __all__ = ["PROBLEMS", "PROBLEM_KEYS", "LEVELS", "Outcome", "Problem", "Runner", "run_problem"]
@@ -27,7 +27,7 @@ __all__ = ["PROBLEMS", "PROBLEM_KEYS", "LEVELS", "Outcome", "Problem", "Runner",
 #: the registry, in the order the problems run and are reported
 PROBLEMS: tuple[Problem, ...] = tuple(m.PROBLEM for m in (
     plasma_oscillation, langmuir, landau, two_stream, weak_beam, relativistic, warm_beams,
-    conservation, convergence, pic_vlasov))
+    conservation, convergence, pic_vlasov, tabulated))
 
 PROBLEM_KEYS = tuple(p.key for p in PROBLEMS)
 
