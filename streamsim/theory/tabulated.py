@@ -121,8 +121,9 @@ class TabulatedTerm:
         self.G0, self.GN = float(G[0]), float(G[-1])
         self.v0, self.vN = float(v[0]), float(v[-1])
 
-    def cauchy(self, z):
-        """(C(z), dC/dz) for a 1-D complex array z (continued below the real axis, see above)."""
+    def _principal(self, z):
+        """(z as a 1-D complex array, C(z), dC/dz) of the sum over the intervals, before any
+        continuation below the real axis."""
         z = np.asarray(z, complex).ravel()
         s0, s1 = _cauchy_sum(np.ascontiguousarray(z.real), np.ascontiguousarray(z.imag),
                              self.v, self.a)
@@ -131,6 +132,11 @@ class TabulatedTerm:
             dN = z - self.vN
             c0 = s0 + self.G0 / d0 - self.GN / dN
             c1 = s1 - self.G0 / d0**2 + self.GN / dN**2
+        return z, c0, c1
+
+    def cauchy(self, z):
+        """(C(z), dC/dz) for a 1-D complex array z (continued below the real axis, see above)."""
+        z, c0, c1 = self._principal(z)
         below = z.imag < 0
         if below.any():
             # continuation of log(z - v_j) through the axis at x: +2 pi i for v_j > x, which sums
@@ -443,14 +449,8 @@ class ContinuedTabulatedTerm(TabulatedTerm):
         self.fit_error = float(np.max(np.abs(fit(self.v) - self.G)) / np.max(np.abs(self.G)))
 
     def cauchy(self, z):
-        z = np.asarray(z, complex).ravel()
-        s0, s1 = _cauchy_sum(np.ascontiguousarray(z.real), np.ascontiguousarray(z.imag),
-                             self.v, self.a)
+        z, c0, c1 = self._principal(z)
         with np.errstate(all="ignore"):
-            d0 = z - self.v0
-            dN = z - self.vN
-            c0 = s0 + self.G0 / d0 - self.GN / dN
-            c1 = s1 - self.G0 / d0**2 + self.GN / dN**2
             below = z.imag < 0
             if below.any():
                 d = z[below, None] - self.poles[None, :]

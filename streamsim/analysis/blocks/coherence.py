@@ -254,14 +254,7 @@ def _instants(ctx: Context) -> BlockResult:
                  "grid_limit_test": f"k_c >= {_co.GRID_FRACTION:g} x the grid Nyquist k "
                                     "(wavelength <= 4 cells), or k_c only a lower bound, or the "
                                     "clumps grid-limited (clumps.grid_limited)"})
-    if head.get("grid_limited") and head.get("frequency_cutoff_hz") is not None:
-        # a bound, never a plain value
-        head["frequency_cutoff_lower_bound_hz"] = head.pop("frequency_cutoff_hz")
-        head["frequency_cutoff_hz"] = None
-    else:
-        head["frequency_cutoff_lower_bound_hz"] = None
-    if head.get("k_cutoff") is not None:
-        head["k_cutoff_per_cm"] = units.wavenumber_per_cm(head["k_cutoff"], n_cm3)
+    _bound(head, n_cm3)
     if src == "peak" and "end" in per:
         head["end"] = {k: per["end"][k] for k in ("t", "k_cutoff", "frequency_cutoff_hz",
                                                   "noise_floor", "species", "status")}
