@@ -275,12 +275,12 @@ def measure(particles: int, threads: int, *, steps: int = 10, repeats: int = 3,
     import tempfile
 
     from . import io, kernels
-    from .diagnostics import PeakSnapshot, standard_handlers
+    from .diagnostics import PeakSnapshot, make_handlers
     from .engine import Simulation
     deck = bench_deck(particles, threads)
     t0 = time.perf_counter()
     sim = Simulation(deck, threads)
-    handlers = standard_handlers(sim)   # the recording a run does, at the deck's cadences
+    handlers = make_handlers(sim)   # the recording a run does, at the deck's cadences
     setup = time.perf_counter() - t0
     n = int(sum(x.size for x in sim.x))
     clock = {"advance": 0.0, "handlers": 0.0}

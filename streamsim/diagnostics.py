@@ -29,7 +29,7 @@ from . import fields
 from .rundata import DensitySnapshots, ParticleSnapshot, PhaseSpace, TimeSeries
 
 __all__ = ["Handler", "Sampler", "SeriesRecorder", "FieldSnapshots", "PhaseSpaceSampler", "PeakSnapshot",
-           "stride", "record_steps", "restore_rows", "contrast", "standard_handlers", "make_handlers",
+           "stride", "record_steps", "restore_rows", "contrast", "make_handlers",
            "PIC_HANDLERS", "layout_bytes", "collect_series", "handler_classes"]
 
 
@@ -449,8 +449,3 @@ def collect_series(handlers) -> TimeSeries:
         arrays.update(h.series_arrays())
     return TimeSeries(**arrays)
 
-
-def standard_handlers(sim) -> list[Handler]:
-    """The recording handlers of a PIC run (a driven run's drive recorder included), at the
-    deck's cadences (in this order)."""
-    return make_handlers(sim, PIC_HANDLERS)
