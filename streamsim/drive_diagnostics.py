@@ -31,7 +31,7 @@ from . import drive as _drive
 from . import fields
 from .diagnostics import Handler, allocate, record_steps, restore_rows, stride
 
-__all__ = ["DriveRecorder", "GAMMA_HIST_EDGES", "drive_handlers"]
+__all__ = ["DriveRecorder", "GAMMA_HIST_EDGES"]
 
 #: bin edges of the gamma histogram in log10(gamma - 1): 0.1 dex from 1e-8 to 1e6
 GAMMA_HIST_EDGES = np.linspace(-8.0, 6.0, 141)
@@ -197,10 +197,3 @@ class DriveRecorder(Handler):
         for k, v in meta.items():
             setattr(self, k, v)
 
-
-def drive_handlers(sim) -> list[Handler]:
-    """The drive recorder at the deck's cadences, or nothing when the deck has no [drive]
-    (:data:`streamsim.diagnostics.PIC_HANDLERS` lists it for a driven deck)."""
-    if sim.drive is None:
-        return []
-    return [DriveRecorder(sim, DriveRecorder.every_for(sim.deck))]

@@ -25,7 +25,7 @@ import numpy as np
 
 from .diagnostics import Sampler, record_steps, stride
 
-__all__ = ["EmissionSnapshots", "MAX_RECORDS", "emission_stride", "bytes_needed"]
+__all__ = ["EmissionSnapshots", "MAX_RECORDS", "emission_stride"]
 
 #: most emission records over a run (the cadence is made coarser beyond it)
 MAX_RECORDS = 64
@@ -48,11 +48,6 @@ def _layout(deck) -> tuple[int, int]:
     ppc = min((s.particles_per_cell for s in deck.species), default=1)
     return (form_factor_modes(cells, deck.analysis.coherence_kmax_factor),
             cells * refinement(ppc))
-
-
-def bytes_needed(deck) -> int:
-    """Bytes the emission records of a particle run of ``deck`` hold (the handler's ``nbytes``)."""
-    return EmissionSnapshots.nbytes(deck)
 
 
 class EmissionSnapshots(Sampler):

@@ -20,7 +20,7 @@ import numpy as np
 
 from ..drive import bulk_lorentz_factor
 
-__all__ = ["mean_four_velocity", "bulk_gamma_at", "bulk_drift_u", "energy_balance",
+__all__ = ["mean_four_velocity", "bulk_drift_u", "energy_balance",
            "late_rate", "is_measured", "BulkGamma", "measured_bulk_gamma"]
 
 
@@ -35,11 +35,6 @@ def bulk_drift_u(mean_gamma, mean_u):
     """Drift four-velocity Gamma beta of the frame of the mean four-velocity, beta = <u>/<gamma>,
     Gamma from :func:`streamsim.drive.bulk_lorentz_factor`."""
     return bulk_lorentz_factor(mean_gamma, mean_u) * np.asarray(mean_u) / np.asarray(mean_gamma)
-
-
-def bulk_gamma_at(data, t: float) -> dict[str, float]:
-    """Bulk Lorentz factor of every species at time t (linear interpolation in the series)."""
-    return measured_bulk_gamma(data).at(t)
 
 
 def energy_balance(series) -> tuple[np.ndarray, float | None]:

@@ -20,11 +20,11 @@ from __future__ import annotations
 import numpy as np
 
 from .grid import MomentumGrid, momentum_grid
-from .handlers import NORM_SERIES, VLASOV_HANDLERS, vlasov_handlers
+from .handlers import NORM_SERIES, VLASOV_HANDLERS
 from .simulation import VlasovSimulation
 
-__all__ = ["VlasovSimulation", "MomentumGrid", "momentum_grid", "vlasov_handlers",
-           "VLASOV_HANDLERS", "health_findings", "state_bytes", "memory_refusal", "check_memory",
+__all__ = ["VlasovSimulation", "MomentumGrid", "momentum_grid",
+           "VLASOV_HANDLERS", "health_findings", "state_bytes", "memory_refusal",
            "run_data", "summary_block", "notes", "PIC_ONLY_RULES", "NORM_SERIES"]
 
 #: health rules of :mod:`streamsim.health` that concern particles, not a continuum: particles
@@ -67,12 +67,6 @@ def memory_refusal(deck, item: str, need: int, avail: int):
                          f"need {need / GIB:.2g} GiB (available {avail / GIB:.2g} GiB): lower "
                          f"vlasov.momentum_cells or box.cells, or raise output.fields_interval",
                          deck.vlasov.momentum_cells)
-
-
-def check_memory(deck) -> None:
-    """Refuse a continuum deck whose arrays exceed the available memory (one line)."""
-    from .. import memory
-    memory.check(deck)
 
 
 def run_data(sim, handlers, dispersion):

@@ -13,10 +13,10 @@ import math
 import numpy as np
 
 from ..diagnostics import FieldSnapshots, Handler, Sampler, SeriesRecorder, _Arrays, contrast, \
-    make_handlers, record_steps
+    record_steps
 from ..rundata import DensityProfile
 
-__all__ = ["PeakDensity", "DistributionSnapshots", "NormRecorder", "vlasov_handlers",
+__all__ = ["PeakDensity", "DistributionSnapshots", "NormRecorder",
            "NORM_SERIES", "VLASOV_HANDLERS"]
 
 #: the series names the norms are written under in timeseries.h5, (n, S) each
@@ -148,7 +148,3 @@ class NormRecorder(_Arrays):
 VLASOV_HANDLERS = (PeakDensity, FieldSnapshots, DistributionSnapshots, SeriesRecorder,
                    NormRecorder)
 
-
-def vlasov_handlers(sim) -> list[Handler]:
-    """The recording handlers of a continuum run, at the deck's cadences."""
-    return make_handlers(sim, VLASOV_HANDLERS)
