@@ -256,9 +256,6 @@ class SeriesRecorder(_Arrays):
         self.momentum_drift_max = max(self.momentum_drift_max,
                                       abs(float(momentum.sum()) - self.momentum0))
 
-    def series(self) -> TimeSeries:
-        return TimeSeries(**self.series_arrays())
-
     def series_arrays(self):
         return {k: self._view(k) for k in self.arrays}
 

@@ -140,8 +140,6 @@ class NormRecorder(_Arrays):
     def series_arrays(self) -> dict[str, np.ndarray]:
         return {k: self._view(k) for k in NORM_SERIES}
 
-    series = series_arrays
-
 
 #: the recording handlers of a continuum run, in the order they are called; the series and field
 #: snapshots are the PIC run's own handlers. Add a recorded series here.
