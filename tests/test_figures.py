@@ -176,9 +176,9 @@ def _study():
              "runs": 1, "grid_limited": False} for c, v, e in zip((32, 64, 128), values, errs)],
             "change": None, "order": None, "extrapolated": None, "verdict": "not converged"}
     return {"outputs": {
-        "nu_c_hz": out("Hz", [1.000e11, 1.002e11, 1.003e11], [1e8, 1e8, 1e8]),
-        "growth_rate": out("omega_p", [0.3501, 0.3502, 0.3503], [1e-5, 1e-5, 1e-5]),
-        "t_unity_ns": out("ns", [None, None, None], [None, None, None])}}
+        "coherence.frequency_cutoff_hz": out("Hz", [1.000e11, 1.002e11, 1.003e11], [1e8, 1e8, 1e8]),
+        "growth.measured": out("omega_p", [0.3501, 0.3502, 0.3503], [1e-5, 1e-5, 1e-5]),
+        "contrast.t_unity_ns": out("ns", [None, None, None], [None, None, None])}}
 
 
 def test_converge_figure_has_units_and_no_offset_notation():

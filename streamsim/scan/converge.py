@@ -293,15 +293,16 @@ def write_study(study: dict, out: Path, figure: bool = True) -> list[Path]:
     return paths
 
 
-# How each headline output is shown in converge.png: (label in mathtext, unit, scale from the
-# unit of converge.json to the unit shown). An output not listed is shown by its name and unit.
+# How each headline output (keyed by its name, the summary.json key of OUTPUTS) is shown in
+# converge.png: (label in mathtext, unit, scale from the unit of converge.json to the unit
+# shown). An output not listed is shown by its name and unit.
 _SHOWN = {
-    "growth_rate": ("growth rate", r"$\omega_p$", 1.0),
-    "t_unity_ns": (r"time of max $\delta n/n$ = 1", "ns", 1.0),
-    "contrast_max": (r"max $\delta n/n$", "dimensionless", 1.0),
-    "clump_size_median_cm": ("median clump size (FWHM)", "cm", 1.0),
-    "k_c": (r"coherence cutoff $k_c$", r"$\omega_p/c$", 1.0),
-    "nu_c_hz": (r"coherence cutoff $\nu_c$", "GHz", 1e-9),
+    "growth.measured": ("growth rate", r"$\omega_p$", 1.0),
+    "contrast.t_unity_ns": (r"time of max $\delta n/n$ = 1", "ns", 1.0),
+    "contrast.max": (r"max $\delta n/n$", "dimensionless", 1.0),
+    "clumps.size_median_cm": ("median clump size (FWHM)", "cm", 1.0),
+    "coherence.k_cutoff": (r"coherence cutoff $k_c$", r"$\omega_p/c$", 1.0),
+    "coherence.frequency_cutoff_hz": (r"coherence cutoff $\nu_c$", "GHz", 1e-9),
 }
 
 
