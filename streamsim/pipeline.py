@@ -35,12 +35,6 @@ __all__ = ["run", "Result", "RunContext", "Interrupted", "HealthRefusal", "Folde
            "DifferentDeck", "NumericalError", "comparable", "first_difference", "merge_findings",
            "LOCK_FILE"]
 
-# names kept where they were before the run folder and the run control had rooms of their own
-_FolderLock = FolderLock
-_check_existing_run = check_existing_run
-_Signals = Signals
-
-
 class Interrupted(RuntimeError):
     """SIGINT/SIGTERM arrived; a checkpoint was written and the run can be resumed."""
 
