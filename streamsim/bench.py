@@ -495,7 +495,7 @@ def demo_costs(repeats: int = 3) -> dict:
 
 def checkpoint_share(write_s: float, loop_s: float) -> dict:
     """The default checkpoint cadence's cost over a loop of ``loop_s``: one write every
-    :attr:`streamsim.pipeline.Checkpointer.WALL_S` of wall-clock time and one at the end."""
+    :attr:`streamsim.checkpointer.Checkpointer.WALL_S` of wall-clock time and one at the end."""
     from .checkpointer import Checkpointer
     writes = int(loop_s // Checkpointer.WALL_S) + 1
     return {"writes": writes, "write_s": write_s, "loop_s": loop_s,
