@@ -9,6 +9,7 @@ recording handlers reports it will preallocate (``Handler.nbytes(deck)``, from t
 * ``time_series``: the series recorder's arrays (energies, momenta, the complex amplitudes of
   the recorded modes and the complex density modes of every species, max/rms delta n/n);
 * ``field_snapshots``, ``phase_space``: the field snapshots and the phase-space subsample;
+* ``emission_snapshots``: the emission records (|F_s(k)|^2 and the fine density);
 * ``drive``: a driven run's drive series and gamma histograms.
 
 A continuum run has ``phase_space_grid`` (f and its work copy) and its handlers' items. Record
