@@ -61,6 +61,8 @@ def emission_budget(values, within, terms_per_run) -> dict:
     (sample standard deviation over the replicas), combined in quadrature (conservative: the
     spread also holds part of the within-run scatter); and the ensemble mean with s / sqrt(n)."""
     import statistics
+
+    from ..analysis.emission import budget
     st = mean_and_standard_error(values)
     v = [float(x) for x in values if x is not None and math.isfinite(float(x))]
     spread = statistics.stdev(v) if len(v) >= 2 else None
@@ -70,12 +72,8 @@ def emission_budget(values, within, terms_per_run) -> dict:
         got = [t[k] for t in terms_per_run if t and t.get(k) is not None]
         terms[k] = statistics.median(got) if got else None
     terms["replica"] = spread
-    have = {k: x for k, x in terms.items() if x is not None}
-    comb = math.sqrt(sum(x * x for x in have.values())) if have else None
     return {"mean": st.mean, "standard_error_of_mean": st.standard_error, "n": st.n,
-            "one_run_budget": {"terms": terms, "combined": comb,
-                               "dominant": max(have, key=have.get) if have else None,
-                               "combination": "quadrature sum of the terms"},
+            "one_run_budget": budget(terms),
             "within_run_err_median": (statistics.median([w for w in within if w is not None])
                                       if any(w is not None for w in within) else None)}
 
