@@ -29,7 +29,7 @@ def main(deck_path="runs/warm-pair-beams.toml"):
         res = run(deck, out=None, quiet=True, figures=False)
         out[start] = band_energy(res)
     t = out["lattice"][0]
-    print("t [1/w_p]   band energy: bit_reversed   lattice")
+    print("t [1/omega_p]   band energy: bit_reversed   lattice")
     for tt in (0.0, 5.0, 10.0, 20.0, 30.0, 40.0, 60.0):
         i = int(np.argmin(np.abs(t - tt)))
         print(f"{t[i]:8.3g}   {out['bit_reversed'][1][i]:14.3e}   {out['lattice'][1][i]:10.3e}")
