@@ -46,10 +46,6 @@ __all__ = [
     "Key", "deck_key", "schema_of", "section_dict",
 ]
 
-# the key tables under their former private names (read by tests and the scan files)
-_TOP, _SECTIONS, _SPECIES = TOP, SECTIONS, SPECIES
+# the key tables under their former private names (read by the deck-error tests)
+_SPECIES = SPECIES
 _UNITS, _BOX, _TIME = SECTIONS["units"], SECTIONS["box"], SECTIONS["time"]
-_PERTURBATION, _OUTPUT, _ANALYSIS = (SECTIONS["perturbation"], SECTIONS["output"],
-                                     SECTIONS["analysis"])
-_DRIVE, _VLASOV = SECTIONS["drive"], SECTIONS["vlasov"]
-_ALL_TOP, _OPTIONAL_SECTIONS, _REQUIRED = ALL_TOP, OPTIONAL_SECTIONS, REQUIRED
