@@ -175,19 +175,22 @@ def message_figure(text: str, size=(6, 3)):
 def draw_figures(results, data, folder) -> list[Path]:
     """Draw every figure of every block result into <folder>/figures/ (atomic PNGs), in this
     process, one after the other."""
-    from .io import save_figure
     out = Path(folder) / "figures"
-    paths = []
-    for res in results.values():
-        for f in res.figures:
-            try:
-                with warnings.catch_warnings():   # matplotlib's complaints (an empty log axis)
-                    warnings.simplefilter("ignore")   # never reach the terminal
-                    fig = f.draw(res, data)
-                    paths.append(save_figure(fig, out / f.file))
-            finally:
-                _pyplot().close("all")
-    return paths
+    return [_draw_one(res, i, data, out) for res in results.values()
+            for i in range(len(res.figures))]
+
+
+def _draw_one(res, i: int, data, out: Path) -> Path:
+    """Draw figure ``i`` of the block result ``res`` and write it into ``out``; every way of
+    drawing (here, a figure process, what a process left) goes through this one function."""
+    from .io import save_figure
+    f = res.figures[i]
+    try:
+        with warnings.catch_warnings():   # matplotlib's complaints (an empty log axis)
+            warnings.simplefilter("ignore")   # never reach the terminal
+            return save_figure(f.draw(res, data), out / f.file)
+    finally:
+        _pyplot().close("all")
 
 
 def _figure_list(results):
@@ -227,7 +230,6 @@ def figure_processes(n_figures: int) -> int:
 def _draw_share(results, data, folder, conn, counter) -> None:
     """Draw figures taken from the shared counter until none is left; send back (index, path
     or exception) for each, then None."""
-    from .io import save_figure
     todo = _figure_list(results)
     out = Path(folder) / "figures"
     while True:
@@ -237,18 +239,13 @@ def _draw_share(results, data, folder, conn, counter) -> None:
         if k >= len(todo):
             break
         name, i = todo[k]
-        res = results[name]
-        f = res.figures[i]
         try:
-            fig = f.draw(res, data)
-            conn.send((k, save_figure(fig, out / f.file)))
+            conn.send((k, _draw_one(results[name], i, data, out)))
         except Exception as ex:  # noqa: BLE001 - the parent re-raises it
             try:
                 conn.send((k, ex))
             except Exception:  # noqa: BLE001 - an exception that does not pickle
                 conn.send((k, RuntimeError(f"{ex.__class__.__name__}: {ex}")))
-        finally:
-            _pyplot().close("all")
     conn.send(None)
 
 
@@ -381,17 +378,9 @@ class Painter:
             self.close()
         todo = _figure_list(self.results)
         missing = [k for k in range(len(todo)) if k not in got]
-        if missing:
-            from .io import save_figure
-            out = self.folder / "figures"
-            for k in missing:
-                name, i = todo[k]
-                res = self.results[name]
-                try:
-                    got[k] = save_figure(res.figures[i].draw(res, self.data),
-                                         out / res.figures[i].file)
-                finally:
-                    _pyplot().close("all")
+        for k in missing:
+            name, i = todo[k]
+            got[k] = _draw_one(self.results[name], i, self.data, self.folder / "figures")
         for k in range(len(todo)):
             if isinstance(got[k], BaseException):
                 raise got[k]
