@@ -17,6 +17,7 @@ import math
 import numpy as np
 
 from .. import units
+from ..numbers import finite_or_none
 
 __all__ = ["first_crossing", "contrast_block", "species_contrast", "exponential_phase",
            "initial_level", "t_unity_for_level", "t_unity_for_level_err", "LINEAR_TOP", "FIT_RMS", "MIN_EFOLDS",
@@ -120,10 +121,6 @@ def t_unity_for_level_err(t_unity: float, level0: float, rate: float, level: flo
     return tl, float(math.hypot(a, b))
 
 
-def _finite(v):
-    return float(v) if v is not None and math.isfinite(v) else None
-
-
 def species_contrast(t, cmax, crms, density_cm3: float) -> dict:
     """Contrast summary of one column (one species or the total)."""
     t = np.asarray(t, float)
@@ -139,7 +136,7 @@ def species_contrast(t, cmax, crms, density_cm3: float) -> dict:
     return {
         "max": float(cmax[i]), "t_max": float(t[i]),
         "t_max_ns": units.time_ns(float(t[i]), density_cm3),
-        "rms_max": _finite(float(np.nanmax(crms))) if np.isfinite(crms).any() else None,
+        "rms_max": finite_or_none(np.nanmax(crms)) if np.isfinite(crms).any() else None,
         "saturation": sat,
         "saturated": bool(i < 0.95 * (t.size - 1)),
         "t_unity": t_u,
