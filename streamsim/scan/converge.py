@@ -65,14 +65,6 @@ OUTPUTS = (
 )
 
 
-def _get(d, path):
-    for p in path:
-        if not isinstance(d, dict):
-            return None
-        d = d.get(p)
-    return d
-
-
 def study_levels(deck, factor: float, levels: int) -> list[dict]:
     """[{"cells", "particles_per_cell": {species: n}, "dt" (number or "auto")}] per level."""
     from ..health import auto_dt
@@ -209,7 +201,7 @@ def assess_output(levels: list[dict], factor: float, tolerance: float = DEFAULT_
 def collect_study(scan, out: Path, levels: list[dict], factor: float, replicas: int,
                   tolerance: float = DEFAULT_TOLERANCE) -> dict:
     """converge.json's content from the run folders of a finished (or partial) study."""
-    from .tables import run_folder
+    from .tables import _get, run_folder
     from .worker import _read_json, read_state
     per_level: list[list[dict]] = [[] for _ in levels]
     for p in scan.points:
@@ -227,15 +219,15 @@ def collect_study(scan, out: Path, levels: list[dict], factor: float, replicas: 
             runs = per_level[li]
             vs, es, lims = [], [], []
             for s in runs:
-                v = finite_or_none(_get(s, o.value))
+                v = finite_or_none(_get(s, *o.value))
                 if v is None and o.bound is not None:
-                    v = finite_or_none(_get(s, o.bound))
+                    v = finite_or_none(_get(s, *o.bound))
                 if v is not None:
                     vs.append(v)
-                    e = finite_or_none(_get(s, o.err)) if o.err else None
+                    e = finite_or_none(_get(s, *o.err)) if o.err else None
                     if e is not None:
                         es.append(e)
-                lims.append(bool(_get(s, o.limited)) if o.limited else False)
+                lims.append(bool(_get(s, *o.limited)) if o.limited else False)
             value = sum(vs) / len(vs) if vs else None
             err = None
             if vs:
