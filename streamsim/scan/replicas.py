@@ -14,7 +14,6 @@ Files (in the replicas folder, beside the scan's own manifest.json, scan.csv, ru
 from __future__ import annotations
 
 import csv
-import json
 import math
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -22,6 +21,7 @@ from pathlib import Path
 from .runner import run_scan
 from .spec import load_scan
 from .tables import run_folder
+from .worker import _read_json
 
 __all__ = ["ReplicaStats", "ReplicaResult", "run_replicas", "mean_and_standard_error",
            "REPLICA_COLUMNS"]
@@ -91,13 +91,6 @@ def mean_and_standard_error(values) -> ReplicaStats:
     return ReplicaStats(mean, s / math.sqrt(n), n)
 
 
-def _read(path: Path) -> dict:
-    try:
-        return json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        return {}
-
-
 def run_replicas(deck_src: str | None, overrides: list[str], replicas: int, out: str | Path, *,
                  workers: int | None = None, threads: int | None = None, quiet: bool = True,
                  resume: bool = False, scheduler: str | None = None,
@@ -116,7 +109,7 @@ def run_replicas(deck_src: str | None, overrides: list[str], replicas: int, out:
     out = Path(out)
     rows, theory = [], None
     for p, r in zip(scan.points, res.rows):
-        s = _read(run_folder(out, p) / "summary.json")
+        s = _read_json(run_folder(out, p) / "summary.json") or {}
         g = s.get("growth") or {}
         theory = theory if theory is not None else g.get("theory")
         co, cl = s.get("coherence") or {}, s.get("clumps") or {}
