@@ -318,9 +318,7 @@ def _window_cutoff(F2, dens, floors, idx, names, L, modes, opt, nu, n_cm3) -> di
     kb = _em.budget({"mode_to_mode": c["k_cutoff_err"], "window": win_err, "replica": None})
     G = nu(1.0, None, who) / _co.emission_cutoff_hz(1.0, 1.0, n_cm3)
     scale = _co.emission_cutoff_hz(1.0, G, n_cm3)
-    fb = {**kb, "terms": {k: (v * scale if v is not None else None)
-                          for k, v in kb["terms"].items()},
-          "combined": kb["combined"] * scale if kb["combined"] is not None else None}
+    fb = _scaled(kb, scale)
     out.update({"k_cutoff": c["k_cutoff"], "k_cutoff_err": kb["combined"],
                 "frequency_cutoff_hz": c["k_cutoff"] * scale,
                 "frequency_cutoff_err_hz": fb["combined"], "species": who,
@@ -351,11 +349,16 @@ def _window_clumps(widths_by_record, idx, n_cm3) -> dict:
     out.update({"size_median": med, "size_median_cm": med * cm,
                 "size_median_err": b["combined"],
                 "size_median_err_cm": b["combined"] * cm if b["combined"] is not None else None,
-                "size_median_budget_cm": {**b, "terms": {k: (v * cm if v is not None else None)
-                                                  for k, v in b["terms"].items()},
-                                   "combined": b["combined"] * cm
-                                   if b["combined"] is not None else None}})
+                "size_median_budget_cm": _scaled(b, cm)})
     return out
+
+
+def _scaled(b: dict, factor: float) -> dict:
+    """An error budget (:func:`streamsim.analysis.emission.budget`) in another unit: its terms
+    and combined error times ``factor``."""
+    return {**b, "terms": {k: (v * factor if v is not None else None)
+                           for k, v in b["terms"].items()},
+            "combined": b["combined"] * factor if b["combined"] is not None else None}
 
 
 def _lines(head: dict) -> list[str]:
