@@ -424,3 +424,13 @@ def test_dispersion_from_dict_refuses_an_error_block():
         theory.Dispersion.from_dict({"error": "ValueError: no species"})
     with pytest.raises(ValueError, match="missing"):
         theory.Dispersion.from_dict({"model": "cold"})
+
+
+def test_box_modes_follow_output_recorded_modes():
+    """The theory's box modes are the modes the run records (|E_k| for m = 1..recorded_modes),
+    so growth fits always have a theory row beside them."""
+    import streamsim
+    from streamsim.theory import theory_for_deck
+    deck = streamsim.load_deck(Path(__file__).parents[1] / "runs" / "warm-pair-beams.toml",
+                              ["output.recorded_modes=5"])
+    assert [b.mode for b in theory_for_deck(deck).box_modes] == [1, 2, 3, 4, 5]

@@ -193,6 +193,18 @@ def _time_from_efoldings(efoldings, growth: float) -> float | None:
     return efoldings / growth
 
 
+
+def _maxwellian_alternative(model, species, km, notes) -> list:
+    """The growth of the box modes ``km`` in the maxwellian model (negative = Landau damping)
+    beside a juttner deck, whose model gives growing roots only; None per mode otherwise."""
+    if model != "juttner":
+        return [None] * len(km)
+    mx = _Solver(species, "maxwellian")
+    notes.append("box_modes[].maxwellian_growth: the same modes in the maxwellian model "
+                 "(negative = Landau damping rate), since the juttner model gives growing "
+                 "roots only")
+    return list(mx.growth(mx.best(km)))
+
 def theory_for_deck(deck, model: str | None = None, kmax: float | None = None,
                     nk: int = 400) -> Dispersion:
     """Linear theory for a deck: growth curve on nk points in (0, kmax], fastest mode, unstable
@@ -267,17 +279,11 @@ def theory_for_deck(deck, model: str | None = None, kmax: float | None = None,
             band = min(bands, key=lambda b: min(abs(b[0] - fastest.k), abs(b[1] - fastest.k)))
 
     length = float(deck.box.length)
-    nmodes = int(getattr(deck.output, "modes", 0) or min(deck.box.cells // 2, 64))
+    nmodes = int(deck.output.recorded_modes or min(deck.box.cells // 2, 64))
     m = np.arange(1, nmodes + 1)
     km = 2 * math.pi * m / length
     if verdict.stable and model in ("juttner", "table"):
-        alt = [None] * nmodes
-        if model == "juttner":
-            mx = _Solver(species, "maxwellian")
-            alt = list(mx.growth(mx.best(km)))
-            notes.append("box_modes[].maxwellian_growth: the same modes in the maxwellian model "
-                         "(negative = Landau damping rate), since the juttner model gives "
-                         "growing roots only")
+        alt = _maxwellian_alternative(model, species, km, notes)
         modes = [BoxMode(int(mi), float(ki), 0.0, None,
                          None if ai is None or not np.isfinite(ai) else float(ai))
                  for mi, ki, ai in zip(m, km, alt)]
@@ -291,13 +297,7 @@ def theory_for_deck(deck, model: str | None = None, kmax: float | None = None,
     extra = np.where(np.isfinite(w[j]), w[j] * km / k[j], np.nan) if not solver.rational else None
     wm = solver.best(km, extra=extra)
     gm = solver.growth(wm)
-    alt = [None] * nmodes
-    if model == "juttner":
-        mx = _Solver(species, "maxwellian")
-        alt = list(mx.growth(mx.best(km)))
-        notes.append("box_modes[].maxwellian_growth: the same modes in the maxwellian model "
-                     "(negative = Landau damping rate), since the juttner model gives growing "
-                     "roots only")
+    alt = _maxwellian_alternative(model, species, km, notes)
     modes = [BoxMode(int(mi), float(ki), float(gi) if np.isfinite(gi) else 0.0,
                      float(wi.real) if np.isfinite(wi) else None,
                      None if ai is None or not np.isfinite(ai) else float(ai))
